@@ -1,0 +1,102 @@
+"""The check report: everything `foldsim check` says about a mechanism.
+
+The keys are an interface that scripts parse (docs/cli.md): keep them stable, add
+rather than rename.
+"""
+
+import numpy as np
+
+from ..gearing import fold_schedule
+from ..kinematics import poses_at
+from ..tolerances import DEFAULT
+from .closure import closure_summary, cut_edge_gaps
+from .collision import collision_intervals, flat_overlaps, panels
+
+
+def hinge_table(mech, schedule):
+    """One row per hinge, in file order (angles in degrees).
+
+    Returns
+    -------
+    list of dict
+        ``hinge``, ``faces`` (as given), ``parent``, ``child``,
+        ``closed_angle_deg`` (needed to close), ``end_angle_deg`` (reached at
+        t = 1), ``couplings`` (indices of the couplings it takes part in).
+    """
+    rows = []
+    for h in range(mech.n_hinges):
+        rows.append({
+            "hinge": h,
+            "faces": [int(f) for f in mech.hinge_faces[h]],
+            "parent": int(mech.parent[h]),
+            "child": int(mech.child[h]),
+            "closed_angle_deg": float(np.degrees(mech.closed_angles[h])),
+            "end_angle_deg": float(np.degrees(schedule.rates[h])),
+            "couplings": [k for k, c in enumerate(mech.couplings) if h in c.hinges],
+        })
+    return rows
+
+
+def check(mech, t_from=0.0, t_to=1.0, gap_tol=None, clearance=0.0, sheet=False, tol=DEFAULT):
+    """Run every check over the motion and gather the report.
+
+    Parameters
+    ----------
+    mech : Mechanism
+    t_from, t_to : float
+        Range of the drive parameter swept for collisions.
+    gap_tol : float, optional
+        Largest closure gap that counts as meeting (model units); default
+        ``tol.gap * mech.size``.
+    clearance : float
+        Minimum distance between panels not in contact by design.
+    sheet : bool
+        The pattern is cut from one sheet: a self-overlapping flat layout fails.
+    tol : Tolerances
+
+    Returns
+    -------
+    dict
+        JSON-ready; see docs/cli.md for the keys.
+    """
+    schedule = fold_schedule(mech, tol)
+    tolerance = tol.gap * mech.size if gap_tol is None else float(gap_tol)
+    end = poses_at(mech, schedule, np.array([1.0]))
+    closure = closure_summary(mech, cut_edge_gaps(mech, end)[0], tolerance)
+    pan = panels(mech, tol)
+    collisions = collision_intervals(mech, schedule, t_from, t_to, clearance, tol, pan=pan)
+    overlap = flat_overlaps(mech, tol, pan=pan)
+    problems = []
+    if schedule.dof != 1:
+        problems.append(f"the gearing leaves {schedule.dof} degrees of freedom, not 1")
+    if schedule.locked_cycles:
+        problems.append(f"{len(schedule.locked_cycles)} coupling cycle(s) lock the motion")
+    if not closure["meets"]:
+        n_open = sum(not e["meets"] for e in closure["edges"])
+        problems.append(f"{n_open} cut edge(s) do not meet (largest gap {closure['max_gap']:.4g} {mech.units})")
+    if collisions:
+        problems.append(f"{len(collisions)} collision(s) between panels")
+    if sheet and len(overlap):
+        problems.append(f"the flat layout overlaps itself ({len(overlap)} pair(s))")
+    return {
+        "model": mech.name,
+        "units": mech.units,
+        "state": mech.state,
+        "faces": mech.n_faces,
+        "hinges": mech.n_hinges,
+        "root": mech.root,
+        "drive": mech.drive,
+        "schedule": schedule.kind,
+        "dof": schedule.dof,
+        "free_hinges": list(schedule.free_hinges),
+        "locked_cycles": [list(c) for c in schedule.locked_cycles],
+        "hinge_table": hinge_table(mech, schedule),
+        "closure": closure,
+        "t_range": [float(t_from), float(t_to)],
+        "clearance": float(clearance),
+        "collisions": collisions,
+        "flat_overlap": bool(len(overlap)),
+        "flat_overlap_pairs": overlap.tolist(),
+        "problems": problems,
+        "ok": not problems,
+    }
