@@ -89,7 +89,8 @@ def overlapping_boxes(lo, hi, allowed=None):
     axis = int(np.argmax(centres.var(axis=0)))
     pairs = _candidate_pairs(lo, hi, axis)
     i, j = pairs[:, 0], pairs[:, 1]
-    overlap = ((lo[i] <= hi[j]) & (lo[j] <= hi[i])).all(axis=1)
+    # The boxes' intersection is not empty (so an empty box meets nothing).
+    overlap = (np.maximum(lo[i], lo[j]) <= np.minimum(hi[i], hi[j])).all(axis=1)
     i, j = i[overlap], j[overlap]
     pairs = np.stack([np.minimum(i, j), np.maximum(i, j)], axis=1)
     if allowed is not None:

@@ -87,11 +87,6 @@ def triangulate(polygon, *, eps=DEFAULT_EPS):
     size = np.ptp(q, axis=0).max()
     turn_tol = eps * size * size
 
-    def cross(o, s, t):
-        return (s[..., 0] - o[..., 0]) * (t[..., 1] - o[..., 1]) - (s[..., 1] - o[..., 1]) * (
-            t[..., 0] - o[..., 0]
-        )
-
     remaining = list(range(len(p)))
     triangles = []
     while len(remaining) > 3:
@@ -100,14 +95,14 @@ def triangulate(polygon, *, eps=DEFAULT_EPS):
         best, best_quality = None, 0.0
         for pos in range(len(ring)):
             i0, i1, i2 = prev[pos], ring[pos], nxt[pos]
-            twice_area = cross(q[i0], q[i1], q[i2])
+            twice_area = _turn(q[i0], q[i1], q[i2])
             if twice_area <= turn_tol:
                 continue
             others = q[np.setdiff1d(ring, (i0, i1, i2))]
             inside = (
-                (cross(q[i0], q[i1], others) >= -turn_tol)
-                & (cross(q[i1], q[i2], others) >= -turn_tol)
-                & (cross(q[i2], q[i0], others) >= -turn_tol)
+                (_turn(q[i0], q[i1], others) >= -turn_tol)
+                & (_turn(q[i1], q[i2], others) >= -turn_tol)
+                & (_turn(q[i2], q[i0], others) >= -turn_tol)
             )
             if inside.any():
                 continue
@@ -121,6 +116,13 @@ def triangulate(polygon, *, eps=DEFAULT_EPS):
         del remaining[best]
     triangles.append(tuple(remaining))
     return np.array(triangles, dtype=int)
+
+
+def _turn(o, s, t):
+    """Twice the signed area of 2D triangles (o, s, t), points (..., 2) -> (...,)."""
+    return (s[..., 0] - o[..., 0]) * (t[..., 1] - o[..., 1]) - (s[..., 1] - o[..., 1]) * (
+        t[..., 0] - o[..., 0]
+    )
 
 
 def _plane_basis(normal):
@@ -324,7 +326,7 @@ def _barycentric_projection(p, t):
     with np.errstate(divide="ignore", invalid="ignore"):
         beta = (d11 * d20 - d01 * d21) / denom
         gamma = (d00 * d21 - d01 * d20) / denom
-    inside = (denom > 0.0) & (beta >= 0.0) & (gamma >= 0.0) & (beta + gamma <= 1.0)
+        inside = (denom > 0.0) & (beta >= 0.0) & (gamma >= 0.0) & (beta + gamma <= 1.0)
     beta, gamma = np.where(inside, beta, 0.0), np.where(inside, gamma, 0.0)
     return t[..., 0, :] + beta[..., None] * v0 + gamma[..., None] * v1, inside
 
