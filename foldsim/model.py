@@ -355,18 +355,19 @@ def _shared_cut_edges(mech, edges):
 
 
 def _matched_cut_edges(mech, edges, closed, tol):
-    """Cut edges of a flat file: free edges that coincide when ideally closed.
+    """Cut edges of a flat file: unhinged edges that coincide when ideally closed.
 
     ``closed`` is (F, 4, 4), the face poses at the closing angles.
     """
     from scipy.spatial import cKDTree
 
+    hinged = {(min(a, b), max(a, b)) for a, b in mech.hinge_faces.tolist()}
     free = []
-    for (u, v), uses in edges.items():
-        if len(uses) == 1:
-            f, k, _ = uses[0]
-            n = len(mech.faces[f])
-            free.append((f, k, (k + 1) % n))
+    for uses in edges.values():
+        if len(uses) == 2 and (min(uses[0][0], uses[1][0]), max(uses[0][0], uses[1][0])) in hinged:
+            continue
+        for f, k, _ in uses:
+            free.append((f, k, (k + 1) % len(mech.faces[f])))
     if not free:
         return np.zeros((0, 2), np.int64), np.zeros((0, 2, 2, 3))
     free = np.array(free)

@@ -1,7 +1,7 @@
 """The one place for numerical tolerances.
 
-Lengths are relative to the model's size (the diagonal of its bounding box) unless
-a name says otherwise; `Tolerances.absolute` turns them into lengths.
+Lengths are relative to the model's size (`Mechanism.size`, the diagonal of the
+closed shape's bounding box): multiply by it to get a length in model units.
 """
 
 from dataclasses import dataclass

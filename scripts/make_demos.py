@@ -96,7 +96,7 @@ def central_hinge(graph):
 def _teeth(ratio, base=24):
     """Tooth counts (zi, zj) with zi / zj == ratio exactly, zi a multiple of ``base``."""
     frac = Fraction(ratio).limit_denominator(12)
-    if abs(float(frac) - ratio) > 1e-9 * abs(ratio):
+    if abs(float(frac) - ratio) > 1e-7 * abs(ratio):
         raise ValueError(f"ratio {ratio} has no small gear pair")
     scale = base // math.gcd(base, frac.numerator) if frac.numerator < base else 1
     return frac.numerator * scale, frac.denominator * scale
@@ -143,8 +143,9 @@ def gift_box(length=120.0, depth=80.0, height=60.0):
 def lantern(side=40.0, height=90.0, n=6):
     """Closed right hexagonal prism; base-side, side-side and side-top hinges."""
     radius = side / (2.0 * math.sin(math.pi / n))  # a regular n-gon's circumradius
-    ring = [[radius * math.cos(2 * math.pi * k / n), radius * math.sin(2 * math.pi * k / n)]
-            for k in range(n)]
+    # Rounded to a nanometre so the file reads cleanly (+ 0.0 turns -0.0 into 0.0).
+    ring = [[round(radius * math.cos(2 * math.pi * k / n), 9) + 0.0,
+             round(radius * math.sin(2 * math.pi * k / n), 9) + 0.0] for k in range(n)]
     vertices = [[px, py, 0.0] for px, py in ring] + [[px, py, height] for px, py in ring]
     base = list(range(n))[::-1]  # seen from below
     sides = [[k, (k + 1) % n, n + (k + 1) % n, n + k] for k in range(n)]

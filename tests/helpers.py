@@ -93,7 +93,8 @@ class Shape:
 def moved(poly, seed, shift=(0.0, 0.0, 0.0)):
     """The polyhedron under a rigid motion: a seeded random rotation, then ``shift``."""
     rotation = Rotation.random(random_state=seed)
-    return Shape(rotation.apply(poly.vertices) + np.asarray(shift, float), poly.faces,
+    vertices = np.array(poly.vertices, dtype=float)  # a writable copy for scipy
+    return Shape(rotation.apply(vertices) + np.asarray(shift, float), poly.faces,
                  getattr(poly, "name", ""))
 
 
@@ -240,3 +241,45 @@ def built_in_solids():
         "truncated-tetrahedron": solids.truncated_tetrahedron,
         "cuboctahedron": solids.cuboctahedron, "geodesic:1": lambda: solids.geodesic(1),
     }
+
+
+def turn_subtrees(start, faces, hinges, root, angles):
+    """Face vertices after turning every hinge by an angle, one hinge at a time.
+
+    Walking out from the root, each hinge (parent, child) turns the child and
+    everything beyond it about the hinge's current line, right-handed about the
+    shared edge as it runs in the parent face (a positive angle turns the child
+    toward its back), using scipy's `Rotation.from_rotvec`.
+
+    Parameters
+    ----------
+    start : sequence of (k, 3) float
+        Each face's vertices before turning, in the face's own vertex order.
+    faces : sequence of sequences of int
+        Vertex ids of each face (used to find shared edges).
+    hinges : sequence of (a, b)
+        Hinge face pairs; ``angles[k]`` belongs to ``hinges[k]``.
+    root : int
+    angles : (H,) float
+        Radians.
+
+    Returns
+    -------
+    dict
+        Face index -> (k, 3) float, the turned vertices.
+    """
+    graph = nx.Graph()
+    graph.add_nodes_from(range(len(faces)))
+    for k, (a, b) in enumerate(hinges):
+        graph.add_edge(int(a), int(b), hinge=k)
+    tree = nx.bfs_tree(graph, root)
+    now = {f: np.array(p, dtype=float) for f, p in enumerate(start)}
+    for parent, child in nx.bfs_edges(graph, root):
+        ring = [int(v) for v in faces[parent]]
+        other = {int(v) for v in faces[child]}
+        k = next(i for i in range(len(ring)) if ring[i] in other and ring[(i + 1) % len(ring)] in other)
+        a, b = now[parent][k], now[parent][(k + 1) % len(ring)]
+        turn = Rotation.from_rotvec(angles[graph.edges[parent, child]["hinge"]] * (b - a) / np.linalg.norm(b - a))
+        for f in {child} | nx.descendants(tree, child):
+            now[f] = turn.apply(now[f] - a) + a
+    return now

@@ -137,18 +137,15 @@ def test_cut_points_are_the_shared_edge_in_each_face(name):
     mech = mechanism_from_solid(poly, couplings="none")
     adjacency = face_adjacency(poly)
     for (a, b), points in zip(mech.cut_faces.tolist(), mech.cut_points):
-        u, v = adjacency.edges[a, b]["runs"][a]
+        named = []
         for side, f in enumerate((a, b)):
-            local = [list(poly.faces[f]).index(w) for w in (u, v)]
-            copy = mech.flat_faces[f][local]
-            # both sides name the same endpoints in the same order (hand check)
-            candidates = [copy, copy[::-1]]
-            err = min(np.abs(points[side] - c).max() for c in candidates)
-            np.testing.assert_allclose(err, 0.0, rtol=0, atol=1e-12)
-        # the two sides' endpoint k is the same closed vertex: distances to the
-        # hinged-in copy agree with the input's edge length
-        np.testing.assert_allclose(np.linalg.norm(points[:, 1] - points[:, 0], axis=-1),
-                                   np.linalg.norm(poly.vertices[u] - poly.vertices[v]), rtol=0, atol=1e-12)
+            # which corner of face f each endpoint is (nearest flat corner, at distance 0)
+            dist = np.linalg.norm(points[side][:, None] - mech.flat_faces[f][None], axis=-1)
+            np.testing.assert_allclose(dist.min(axis=1), 0.0, rtol=0, atol=1e-12)
+            named.append([int(poly.faces[f][j]) for j in dist.argmin(axis=1)])
+        # both sides list the same two closed vertices, in the same order (hand check)
+        assert named[0] == named[1]
+        assert set(named[0]) == set(adjacency.edges[a, b]["runs"][a])
 
 
 # ---------------------------------------------------------------- flat layout
