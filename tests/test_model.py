@@ -8,6 +8,7 @@ with numpy and networkx, never with foldsim.
 
 import json
 
+import networkx as nx
 import numpy as np
 import pytest
 
@@ -185,8 +186,6 @@ def test_flat_layout_keeps_hinge_edges_joined(name):
 
 def test_bfs_tree_is_a_spanning_tree():
     """The helper's own hinge tree, checked with networkx (reference library)."""
-    import networkx as nx
-
     for name, make in SOLIDS.items():
         poly = make()
         tree = nx.Graph(bfs_hinges(poly))

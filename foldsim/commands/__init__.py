@@ -1,0 +1,1 @@
+"""One module per `foldsim` subcommand, each with `register(subparsers)`."""
