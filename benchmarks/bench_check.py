@@ -142,9 +142,9 @@ def stage_sweep(mech, schedule, pan, rows):
         counts["t"] += len(angles)
         return poses_fn(m, angles)
 
-    def counting_state(m, p, poses, frame, pairs, *args):
-        counts["pairs"] += len(pairs)
-        return state_fn(m, p, poses, frame, pairs, *args)
+    def counting_state(*args, **kwargs):
+        counts["pairs"] += len(kwargs["pairs"] if "pairs" in kwargs else args[4])
+        return state_fn(*args, **kwargs)
 
     collision.face_poses, collision.pair_state = counting_poses, counting_state
     try:

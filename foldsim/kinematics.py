@@ -76,15 +76,55 @@ def posed_faces(mech, poses):
     return [geometry.transform_points(poses[f], p) for f, p in enumerate(mech.flat_faces)]
 
 
+def speed_profile(mech, rates):
+    """Speed bounds of every face split by how far up its chain they reach.
+
+    A point of face f moves with velocity ``sum_h w_h x (p - a_h)`` over the hinges
+    h on its path from the root, ``|w_h| = |rates[h]|``. The distance from a point
+    of hinge h's line to p is bounded by the length of the path from the hinge's
+    midpoint through the midpoints of the later hinges on the chain to the farthest
+    vertex of f; every leg of that path lies in one rigid face, so the bound holds
+    at every t.
+
+    Parameters
+    ----------
+    mech : Mechanism
+    rates : (H,) float
+        Fold angle reached per unit t by each hinge (radians).
+
+    Returns
+    -------
+    (F, D + 1) float
+        ``out[f, d]``: the part of f's bound from the hinges more than d steps
+        below the root (D is the tree's depth). ``out[:, 0]`` bounds each face's
+        speed in the root's frame; ``out[f, d]`` bounds it in the frame of f's
+        ancestor at depth d.
+    """
+    mids = mech.axes.mean(axis=1)
+    depth = len(mech.levels)
+    out = np.zeros((mech.n_faces, depth + 1))
+    # lever[f]: path length from each chain hinge's midpoint to f's entry hinge
+    # midpoint, in chain order; walked root-first so a parent is done before a child.
+    lever = {mech.root: np.zeros(0)}
+    chain = {mech.root: np.zeros(0, np.int64)}
+    for level in mech.levels:
+        for h in level:
+            p, c = mech.parent[h], mech.child[h]
+            entry = mech.face_hinge[p]
+            step = np.linalg.norm(mids[h] - mids[entry]) if entry >= 0 else 0.0
+            lever[c] = np.append(lever[p] + step, 0.0)
+            chain[c] = np.append(chain[p], h)
+            far = np.linalg.norm(mech.flat_faces[c] - mids[h], axis=1).max()
+            part = np.abs(rates[chain[c]]) * (lever[c] + far)
+            tail = np.cumsum(part[::-1])[::-1]
+            out[c, :len(tail)] = tail
+    return out
+
+
 def speed_bounds(mech, rates):
     """Upper bound on how fast any point of each face moves, per unit of t.
 
-    A point of face f moves with velocity ``sum_h w_h x (p - a_h)`` over the hinges
-    h on its path, ``|w_h| = |rates[h]|``. The distance from a point of hinge h's
-    line to p is bounded by the length of the path from the hinge's midpoint
-    through the midpoints of the later hinges on the chain to the farthest vertex
-    of f; every leg of that path lies in one rigid face, so the bound holds at
-    every t.
+    See `speed_profile` for the bound.
 
     Parameters
     ----------
@@ -95,21 +135,53 @@ def speed_bounds(mech, rates):
     Returns
     -------
     (F,) float
-        Length per unit t.
+        Length per unit t, in the root's frame.
     """
-    mids = mech.axes.mean(axis=1)
-    bound = np.zeros(mech.n_faces)
-    # lever[f]: for each hinge on f's chain, path length from its midpoint to f's
-    # entry hinge midpoint; walked root-first so a parent is done before its child.
-    lever = {mech.root: {}}
+    return speed_profile(mech, rates)[:, 0]
+
+
+def common_depth(mech, pairs):
+    """Depth of the lowest common ancestor of face pairs in the hinge tree.
+
+    Parameters
+    ----------
+    mech : Mechanism
+    pairs : (n, 2) int
+
+    Returns
+    -------
+    (n,) int
+        Number of hinges between the root and the pair's common ancestor.
+    """
+    chain = np.zeros((mech.n_faces, mech.n_hinges), bool)
     for level in mech.levels:
-        for h in level:
-            p, c = mech.parent[h], mech.child[h]
-            entry = mech.face_hinge[p]
-            step = np.linalg.norm(mids[h] - mids[entry]) if entry >= 0 else 0.0
-            chain = {k: v + step for k, v in lever[p].items()}
-            chain[h] = 0.0
-            lever[c] = chain
-            far = np.linalg.norm(mech.flat_faces[c] - mids[h], axis=1).max()
-            bound[c] = sum(abs(rates[k]) * (v + far) for k, v in chain.items())
-    return bound
+        chain[mech.child[level]] = chain[mech.parent[level]]
+        chain[mech.child[level], level] = True
+    bits = np.packbits(chain, axis=1)
+    ones = np.unpackbits(np.arange(256, dtype=np.uint8)[:, None], axis=1).sum(axis=1)
+    out = np.empty(len(pairs), np.int64)
+    for k in range(0, len(pairs), 4096):
+        sub = pairs[k:k + 4096]
+        out[k:k + 4096] = ones[bits[sub[:, 0]] & bits[sub[:, 1]]].sum(axis=1)
+    return out
+
+
+def relative_speed_bounds(mech, rates, pairs):
+    """Bound on how fast the distance between two faces can change, per unit t.
+
+    Hinges above the pair's common ancestor move both faces together, so only
+    the hinges below it count (`speed_profile` in the ancestor's frame).
+
+    Parameters
+    ----------
+    mech : Mechanism
+    rates : (H,) float
+    pairs : (n, 2) int
+
+    Returns
+    -------
+    (n,) float
+    """
+    profile = speed_profile(mech, rates)
+    depth = common_depth(mech, pairs)
+    return profile[pairs[:, 0], depth] + profile[pairs[:, 1], depth]

@@ -43,7 +43,8 @@ def test_demo_loads(stem):
     faces, hinges = {"gift-box": (6, 5), "lantern": (8, 7), "tray": (9, 8), "tray-overfold": (9, 8)}[stem]
     assert (mech.n_faces, mech.n_hinges) == (faces, hinges)
     assert mech.units == "mm"
-    # hinges form a tree over the faces, so a tree of couplings has one fewer edge.
+    # hand check: the couplings form a tree over the hinges (one degree of freedom),
+    # and a tree over H nodes has H - 1 edges.
     assert len(mech.couplings) == mech.n_hinges - 1
 
 
@@ -59,6 +60,8 @@ def test_gears_sit_on_a_face_both_hinges_share(stem):
 @pytest.mark.parametrize("stem", ["gift-box", "lantern", "tray"])
 def test_good_demos_check_ok(stem, reports, capsys):
     report = reports[stem]
+    # design rule: a spanning tree of couplings from the drive leaves one degree of
+    # freedom; the expected verdicts are those in scripts/make_demos.py's docstring.
     assert report["dof"] == 1
     assert report["schedule"] == "geared"
     assert report["closure"]["meets"]
@@ -162,6 +165,7 @@ def _overfold_gaps(width=30.0, height=30.0, ratio=OVERFOLD_RATIO):
 
 def test_overfold_collides_with_the_base(reports, capsys):
     report = reports["tray-overfold"]
+    # design rule: one wrong ratio changes no degree of freedom.
     assert report["dof"] == 1
     hits = {tuple(c["faces"]): c for c in report["collisions"]}
     # hand check (above): the back flaps 7 and 8 collide with the base 0, nothing else.

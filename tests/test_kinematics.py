@@ -13,6 +13,7 @@ from scipy.spatial.transform import Rotation
 
 from foldsim.analysis.closure import cut_edge_gaps
 from foldsim.gearing import fold_schedule
+from foldsim import geometry
 from foldsim.kinematics import face_poses, poses_at, speed_bounds
 from foldsim.model import Coupling, build_mechanism
 
@@ -248,3 +249,36 @@ def test_speed_of_one_flap_by_hand():
     # far corner is 2 from the hinge line x = 1: speed 2 · 2 = 4 (hand check)
     np.testing.assert_allclose(speeds[:, 1], 4.0, rtol=1e-6)
     assert speed_bounds(mech, np.array([2.0]))[1] >= 4.0 * (1 - 1e-12)
+
+
+def test_relative_speed_bounds_hold_for_vertex_distances():
+    # Finite differences (reference: plain numerics): the distance between any
+    # vertex of face a and any vertex of face b changes no faster than the pair's
+    # bound, which counts only the hinges below their common ancestor.
+    from foldsim import solids
+    from foldsim.gearing import fold_schedule
+    from foldsim.kinematics import common_depth, relative_speed_bounds
+    from foldsim.nets import bfs_net, face_graph
+
+    poly = solids.dodecahedron()
+    mech = build_mechanism(poly.vertices, poly.faces, bfs_net(face_graph(poly.faces), 0))
+    sched = fold_schedule(mech)
+    rng = np.random.default_rng(7)
+    pairs = np.array([p for p in rng.integers(0, mech.n_faces, (60, 2)) if p[0] != p[1]])
+    bound = relative_speed_bounds(mech, sched.rates, pairs)
+    ts = np.linspace(-1, 1, 801)
+    poses = poses_at(mech, sched, ts)
+    dt = ts[1] - ts[0]
+    for (a, b), limit in zip(pairs, bound):
+        pa = geometry.transform_points(poses[:, a, None], mech.flat_faces[a][None])
+        pb = geometry.transform_points(poses[:, b, None], mech.flat_faces[b][None])
+        dist = np.linalg.norm(pa[:, :, None] - pb[:, None], axis=-1)
+        assert np.abs(np.diff(dist, axis=0)).max() / dt <= limit * (1 + 1e-9)
+    # Reference (networkx): a face and its parent have the parent as their common
+    # ancestor, whose depth is its hop distance from the root along the hinges.
+    import networkx as nx
+
+    tree = nx.Graph([tuple(e) for e in mech.hinge_faces.tolist()])
+    hops = nx.single_source_shortest_path_length(tree, mech.root)
+    pc = np.column_stack([mech.parent, mech.child])
+    np.testing.assert_array_equal(common_depth(mech, pc), [hops[p] for p in mech.parent])

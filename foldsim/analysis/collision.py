@@ -17,8 +17,8 @@ resolution. The separation is
   two panels' wedges at that vertex, with L the sum of the fold rates of the hinges
   between them (their relative rotation);
 - for every other pair: the Euclidean distance between the panels (less the
-  clearance), with L the sum of the two panels' speed bounds
-  (`kinematics.speed_bounds`).
+  clearance), with L the sum of the two panels' speed bounds in the frame of
+  their common ancestor in the hinge tree (`kinematics.speed_profile`).
 
 Candidate pairs per interval come from sweep-and-prune on boxes that contain each
 panel's whole sweep over the interval (the boxes at both ends, grown by half the
@@ -32,7 +32,7 @@ from scipy.spatial import cKDTree
 
 from ..geometry import transform_points, unit
 from ..gearing import fold_angles
-from ..kinematics import face_poses, speed_bounds
+from ..kinematics import common_depth, face_poses, speed_profile
 from ..tolerances import DEFAULT
 from . import broadphase, triangles
 
@@ -63,6 +63,8 @@ class Panels:
         Flat-frame directions of the two edges leaving the shared point, per face.
     pivot_path : (P, H) bool
         Hinges on the tree path between the pair's faces.
+    centre, radius : (F, 3) float, (F,) float
+        A sphere around each face (flat frame): vertex centroid and reach.
     """
 
     tri_face: np.ndarray
@@ -74,6 +76,8 @@ class Panels:
     pivot_keys: np.ndarray
     pivot_dirs: np.ndarray
     pivot_path: np.ndarray
+    centre: np.ndarray
+    radius: np.ndarray
 
 
 def _keys(pairs, n_faces):
@@ -151,12 +155,15 @@ def panels(mech, tol=DEFAULT):
             dirs.append([poly[(k + 1) % len(poly)] - poly[k], poly[k - 1] - poly[k]])
         pivots.append(((a, b), dirs, path))
     pivots.sort(key=lambda p: p[0][0] * n + p[0][1])
+    centre = np.array([p.mean(axis=0) for p in mech.flat_faces])
+    radius = np.array([np.linalg.norm(p - c, axis=1).max() for p, c in zip(mech.flat_faces, centre)])
     return Panels(
         tri_face=np.concatenate(owner), tri_points=np.concatenate(tris), start=start, count=count,
         skip_keys=np.unique(_keys(list(skip), n)), touch_keys=np.unique(_keys(list(touch), n)),
         pivot_keys=_keys([p[0] for p in pivots], n),
         pivot_dirs=np.array([p[1] for p in pivots], float).reshape(-1, 2, 2, 3),
-        pivot_path=np.array([p[2] for p in pivots], bool).reshape(-1, mech.n_hinges))
+        pivot_path=np.array([p[2] for p in pivots], bool).reshape(-1, mech.n_hinges),
+        centre=centre, radius=radius)
 
 
 def _in_sorted(keys, table):
@@ -218,8 +225,9 @@ class _Evaluator:
         self.mech, self.schedule, self.pan = mech, schedule, pan
         self.clearance = clearance
         self.eps = tol.contact * mech.size
-        self.speed = speed_bounds(mech, schedule.rates)
-        self.turn = np.abs(schedule.rates)
+        self.profile = speed_profile(mech, schedule.rates)
+        self.speed = self.profile[:, 0]
+        self.pivot_rate = pan.pivot_path.astype(float) @ np.abs(schedule.rates)
 
     def poses(self, t):
         """(T, F, 4, 4) poses, computed in chunks to bound memory."""
@@ -230,30 +238,42 @@ class _Evaluator:
 
     def rates(self, pairs):
         """(n,) bound on d(separation)/dt for face pairs (n, 2)."""
-        keys = _keys(pairs, self.mech.n_faces)
-        is_pivot, pos = _in_sorted(keys, self.pan.pivot_keys)
-        linear = self.speed[pairs[:, 0]] + self.speed[pairs[:, 1]]
+        keys, first, back = np.unique(_keys(pairs, self.mech.n_faces), return_index=True,
+                                      return_inverse=True)
+        unique_pairs = np.sort(pairs[first], axis=1)
+        depth = common_depth(self.mech, unique_pairs)
+        linear = (self.profile[unique_pairs[:, 0], depth] + self.profile[unique_pairs[:, 1], depth])[back]
+        is_pivot, pos = _in_sorted(keys[back], self.pan.pivot_keys)
         if not is_pivot.any():
             return linear
-        angular = self.pan.pivot_path[pos] @ self.turn
-        return np.where(is_pivot, angular, linear)
+        return np.where(is_pivot, self.pivot_rate[pos], linear)
 
-    def evaluate(self, t, pairs):
-        """Separation (n,) and collision flag (n,) of face pairs (n, 2) at t (n,)."""
+    def evaluate(self, t, pairs, need):
+        """Separation (n,) and collision flag (n,) of face pairs (n, 2) at t (n,).
+
+        Where the panels' bounding spheres are already ``need`` (n,) apart, that
+        gap is returned as the separation (a lower bound is all the advancement
+        needs) and the exact test is skipped.
+        """
         times, t_index = np.unique(t, return_inverse=True)
         sep = np.empty(len(pairs))
-        hit = np.empty(len(pairs), bool)
+        hit = np.zeros(len(pairs), bool)
         for k in range(0, len(times), POSE_CHUNK):
             rows = np.flatnonzero((t_index >= k) & (t_index < k + POSE_CHUNK))
             poses = self.poses(times[k:k + POSE_CHUNK])
-            sep[rows], hit[rows] = self._evaluate(poses, t_index[rows] - k, pairs[rows])
+            frame = t_index[rows] - k
+            centre = transform_points(poses[frame[:, None], pairs[rows]], self.pan.centre[pairs[rows]])
+            gap = (np.linalg.norm(centre[:, 0] - centre[:, 1], axis=1)
+                   - self.pan.radius[pairs[rows]].sum(axis=1) - self.clearance)
+            far = gap >= need[rows]
+            sep[rows[far]] = gap[far]
+            near = rows[~far]
+            sep[near], hit[near] = pair_state(self.mech, self.pan, poses, frame[~far], pairs[near],
+                                              self.clearance, self.eps)
         return sep, hit
 
-    def _evaluate(self, poses, frame, pairs):
-        return pair_state(self.mech, self.pan, poses, frame, pairs, self.clearance, self.eps)
 
-
-def pair_state(mech, pan, poses, frame, pairs, clearance, eps):
+def pair_state(mech, pan, poses, frame, pairs, clearance, eps, separation=True):
     """Separation and collision flag of face pairs.
 
     Parameters
@@ -266,6 +286,9 @@ def pair_state(mech, pan, poses, frame, pairs, clearance, eps):
     pairs : (n, 2) int
     clearance, eps : float
         Clearance between panels not in contact by design; contact tolerance.
+    separation : bool
+        Compute ``sep``; without it (and with no clearance) only ``hit`` is
+        meaningful and ``sep`` is all inf.
 
     Returns
     -------
@@ -275,21 +298,26 @@ def pair_state(mech, pan, poses, frame, pairs, clearance, eps):
     hit : (n,) bool
     """
     ia, ib, row = _triangle_pairs(pan, pairs)
-    fa, fb = pan.tri_face[ia], pan.tri_face[ib]
-    ta = transform_points(poses[frame[row], fa][:, None], pan.tri_points[ia])
-    tb = transform_points(poses[frame[row], fb][:, None], pan.tri_points[ib])
+    if len(poses) * len(pan.tri_face) < len(row):
+        posed = _posed_triangles(pan, poses)
+        ta, tb = posed[frame[row], ia], posed[frame[row], ib]
+    else:
+        ta = transform_points(poses[frame[row], pan.tri_face[ia]][:, None], pan.tri_points[ia])
+        tb = transform_points(poses[frame[row], pan.tri_face[ib]][:, None], pan.tri_points[ib])
     overlap = triangles.crossing_overlap(ta, tb, eps)
-    dist = triangles.triangle_distance(ta, tb)
     hit = np.zeros(len(pairs), bool)
     np.logical_or.at(hit, row, overlap > eps)
-    sep = np.full(len(pairs), np.inf)
-    np.minimum.at(sep, row, dist)
     keys = _keys(pairs, mech.n_faces)
+    is_pivot, pos = _in_sorted(keys, pan.pivot_keys)
+    sep = np.full(len(pairs), np.inf)
+    if not (separation or clearance > 0):
+        return sep, hit
+    measured = ~is_pivot[row] & ~hit[row]
+    np.minimum.at(sep, row[measured], triangles.triangle_distance(ta[measured], tb[measured]))
     if clearance > 0:
         touching, _ = _in_sorted(keys, pan.touch_keys)
-        hit |= ~touching & (sep < clearance)
+        hit |= ~touching & ~is_pivot & (sep < clearance)
         sep = np.where(touching, sep, np.maximum(sep - clearance, 0.0))
-    is_pivot, pos = _in_sorted(keys, pan.pivot_keys)
     if is_pivot.any():
         rows = np.flatnonzero(is_pivot)
         dirs = pan.pivot_dirs[pos[rows]]
@@ -302,9 +330,14 @@ def pair_state(mech, pan, poses, frame, pairs, clearance, eps):
     return sep, hit
 
 
+def _posed_triangles(pan, poses):
+    """(T, K, 3, 3) every triangle at every pose set (T, F, 4, 4)."""
+    return transform_points(poses[:, pan.tri_face][:, :, None], pan.tri_points[None])
+
+
 def _face_boxes(pan, poses):
     """Bounding boxes (T, F, 3) lo and hi of every face at every pose set (T, F, 4, 4)."""
-    pts = transform_points(poses[:, pan.tri_face][:, :, None], pan.tri_points[None])
+    pts = _posed_triangles(pan, poses)
     lo = np.minimum.reduceat(pts.min(axis=2), pan.start, axis=1)
     hi = np.maximum.reduceat(pts.max(axis=2), pan.start, axis=1)
     return lo, hi
@@ -359,8 +392,9 @@ def collision_intervals(mech, schedule, t_from=0.0, t_to=1.0, clearance=0.0, tol
     cand = _swept_candidates(mech, pan, ev, grid, poses)
     pairs = cand[:, 1:]
     t0, t1 = grid[cand[:, 0]], grid[cand[:, 0] + 1]
-    sep0, hit0 = ev.evaluate(t0, pairs)
-    sep1, hit1 = ev.evaluate(t1, pairs)
+    need = ev.rates(pairs) * (t1 - t0)
+    sep0, hit0 = ev.evaluate(t0, pairs, need)
+    sep1, hit1 = ev.evaluate(t1, pairs, need)
     found = []
     resolution = tol.t_resolution / 2
     while len(pairs):
@@ -373,7 +407,7 @@ def collision_intervals(mech, schedule, t_from=0.0, t_to=1.0, clearance=0.0, tol
         pairs, t0, t1 = pairs[open_], t0[open_], t1[open_]
         sep0, hit0, sep1, hit1 = sep0[open_], hit0[open_], sep1[open_], hit1[open_]
         mid = 0.5 * (t0 + t1)
-        sep_m, hit_m = ev.evaluate(mid, pairs)
+        sep_m, hit_m = ev.evaluate(mid, pairs, rate[open_] * (mid - t0))
         pairs = np.concatenate([pairs, pairs])
         t0, t1 = np.concatenate([t0, mid]), np.concatenate([mid, t1])
         sep0, sep1 = np.concatenate([sep0, sep_m]), np.concatenate([sep_m, sep1])
@@ -418,7 +452,7 @@ def colliding_pairs(mech, poses, clearance=0.0, tol=DEFAULT, pan=None):
     if not len(pairs):
         return pairs.reshape(0, 2)
     _, hit = pair_state(mech, pan, poses[None], np.zeros(len(pairs), np.int64), pairs, clearance,
-                        tol.contact * mech.size)
+                        tol.contact * mech.size, separation=False)
     return pairs[hit]
 
 
