@@ -16,8 +16,11 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from scipy.spatial import cKDTree
+
 from . import geometry
 from .errors import ModelError
+from .kinematics import face_poses
 from .tolerances import DEFAULT
 
 
@@ -286,8 +289,6 @@ def build_mechanism(vertices, faces, hinges, root=0, drive=0, couplings=(), stat
         levels=levels, cut_faces=np.zeros((0, 2), np.int64), cut_points=np.zeros((0, 2, 2, 3)),
         size=size, extras=dict(extras or {}))
     if state == "flat":
-        from .kinematics import face_poses
-
         closed = face_poses(mech, angles[None])[0]
         pts = np.concatenate([geometry.transform_points(closed[f], p) for f, p in enumerate(flat_faces)])
         object.__setattr__(mech, "size", float(np.linalg.norm(np.ptp(pts, axis=0))) or size)
@@ -359,8 +360,6 @@ def _matched_cut_edges(mech, edges, closed, tol):
 
     ``closed`` is (F, 4, 4), the face poses at the closing angles.
     """
-    from scipy.spatial import cKDTree
-
     hinged = {(min(a, b), max(a, b)) for a, b in mech.hinge_faces.tolist()}
     free = []
     for uses in edges.values():
