@@ -9,10 +9,10 @@ import argparse
 import sys
 
 from . import __version__
-from .commands import check
+from .commands import app, check, export, nets, new, stackup
 from .errors import FoldsimError
 
-COMMANDS = (check,)
+COMMANDS = (check, new, nets, stackup, export, app)
 
 
 def _parser():
@@ -30,10 +30,11 @@ def main(argv=None):
     """Run the command line; return the exit code."""
     parser = _parser()
     args = parser.parse_args(argv)
-    if args.command is None:
-        parser.print_help()
-        return 0
     try:
+        if args.command is None:
+            from .commands.app import launch
+
+            return launch()
         return args.run(args)
     except FoldsimError as exc:
         print(f"foldsim: {exc}", file=sys.stderr)

@@ -267,6 +267,8 @@ def build_mechanism(vertices, faces, hinges, root=0, drive=0, couplings=(), stat
                 raise ModelError(f"couplings[{i}]: hinge {h} out of range (0..{n_hinges - 1})")
         if c.hinges[0] == c.hinges[1]:
             raise ModelError(f"couplings[{i}]: couples hinge {c.hinges[0]} to itself")
+        if not (np.isfinite(c.ratio) and c.ratio != 0):
+            raise ModelError(f"couplings[{i}].ratio: must be a finite non-zero number, not {c.ratio}")
     # Directed hinge edge as it runs in the parent face.
     axis_index = np.array([d if parent[i] == hinge_faces[i][0] else d[::-1] for i, d in enumerate(directed)])
     if state == "closed":

@@ -53,6 +53,31 @@ def face_graph(faces):
     return graph
 
 
+def face_pairs(graph):
+    """The face graph's edges as sorted face pairs, in sorted order.
+
+    Row ``e`` is "edge e" of the face graph wherever edges are numbered: in tree
+    bitmasks (bit ``e`` set: the pair is a hinge) and in symmetry permutations.
+
+    Parameters
+    ----------
+    graph : networkx.Graph
+        Nodes 0..F-1.
+
+    Returns
+    -------
+    numpy.ndarray, shape (E, 2), int64
+        ``pairs[e] = (a, b)`` with a < b, rows sorted.
+
+    Examples
+    --------
+    >>> face_pairs(face_graph([[0, 1, 2], [0, 2, 3], [0, 3, 1], [1, 3, 2]])).tolist()
+    [[0, 1], [0, 2], [0, 3], [1, 2], [1, 3], [2, 3]]
+    """
+    pairs = sorted((min(a, b), max(a, b)) for a, b in graph.edges())
+    return np.array(pairs, dtype=np.int64).reshape(-1, 2)
+
+
 def distances(graph):
     """(F, F) float hop distances between faces (inf where unconnected)."""
     n = graph.number_of_nodes()

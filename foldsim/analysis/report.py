@@ -8,6 +8,7 @@ import numpy as np
 
 from ..gearing import fold_schedule
 from ..kinematics import poses_at
+from ..parts import part_types
 from ..tolerances import DEFAULT
 from .closure import closure_summary, cut_edge_gaps
 from .collision import collision_intervals, flat_overlaps, panels
@@ -97,6 +98,8 @@ def check(mech, t_from=0.0, t_to=1.0, gap_tol=None, clearance=0.0, sheet=False, 
         "collisions": collisions,
         "flat_overlap": bool(len(overlap)),
         "flat_overlap_pairs": overlap.tolist(),
+        "part_types": (types := part_types(mech, tol=tol)),
+        "part_type_count": len(types),
         "problems": problems,
         "ok": not problems,
     }

@@ -23,6 +23,14 @@ def register(sub):
                        help="panels not in contact by design collide when nearer than this")
     check.add_argument("--sheet", action="store_true",
                        help="the pattern is cut from one sheet: fail if the flat layout overlaps itself")
+    check.add_argument("--play-p95-limit", type=float, default=None, metavar="LEN",
+                       help="also run the play stack-up (foldsim stackup) and fail when the 95th-percentile "
+                            "closure gap of any cut edge exceeds LEN (model units)")
+    check.add_argument("--process", default=None, metavar="NAME",
+                       help="process preset for the play check: sintered-nylon, filament or machined-metal "
+                            "(replaces the one the file names)")
+    check.add_argument("--samples", type=int, default=None, metavar="N",
+                       help="Monte Carlo samples for the play check (default 10,000)")
     check.set_defaults(run=run)
 
 
@@ -66,6 +74,11 @@ def _format_check(report):
         lines.append(f"flat layout overlaps itself: pairs {report['flat_overlap_pairs']}")
     else:
         lines.append("flat layout: no overlap")
+    if "play" in report:
+        play = report["play"]
+        lines.append(f"play stack-up ({play['process'] or 'file values'}, {play['samples']} samples): "
+                     f"p95 closure gap {play['p95_gap']:.4g} {units} (limit {play['limit']:.4g}) -> "
+                     f"{'within' if play['ok'] else 'OVER'}")
     lines.append("")
     lines.append("OK" if report["ok"] else "PROBLEMS: " + "; ".join(report["problems"]))
     return "\n".join(lines)
@@ -80,8 +93,47 @@ def run(args):
     for value, name in ((args.gap_tol, "--gap-tol"), (args.clearance, "--clearance")):
         if value is not None and not value >= 0:
             raise FoldsimError(f"{name}: must be a non-negative length, not {value}")
+    _check_play_options(args)
     mech = load(args.model)
     report = check(mech, t_from=args.t_from, t_to=args.t_to, gap_tol=args.gap_tol,
                    clearance=args.clearance, sheet=args.sheet)
+    if args.play_p95_limit is not None:
+        _play_check(mech, report, args)
     print(json.dumps(report, indent=2) if args.json else _format_check(report))
     return 0 if report["ok"] else 1
+
+
+def _check_play_options(args):
+    from .stackup import check_options
+
+    if args.play_p95_limit is None:
+        for value, name in ((args.process, "--process"), (args.samples, "--samples")):
+            if value is not None:
+                raise FoldsimError(f"{name}: only used by the play check; give --play-p95-limit too")
+        return
+    if not args.play_p95_limit >= 0:
+        raise FoldsimError(f"--play-p95-limit: must be a non-negative length, not {args.play_p95_limit}")
+    check_options(10_000 if args.samples is None else args.samples, args.process)
+
+
+def _play_check(mech, report, args):
+    """Run the stack-up at closure; add ``play`` to the report and a problem when over the limit."""
+    from ..stackup import DEFAULT_SAMPLES, stackup
+
+    samples = DEFAULT_SAMPLES if args.samples is None else args.samples
+    limit = args.play_p95_limit
+    result = stackup(mech, process=args.process, samples=samples, seed=0, times=(1.0,))
+    p95 = result.mc.gap_p95[result.closure]
+    worst = int(p95.argmax()) if len(p95) else None
+    ok = result.p95_gap <= limit
+    report["play"] = {
+        "limit": float(limit), "p95_gap": result.p95_gap, "ok": bool(ok),
+        "worst_edge": mech.cut_faces[worst].tolist() if worst is not None else None,
+        "process": result.spec.process, "samples": samples, "seed": 0, "dist": "uniform",
+        "contributors": result.contributors(top=3),
+    }
+    if not ok:
+        a, b = report["play"]["worst_edge"]
+        report["problems"].append(f"with play the 95th-percentile closure gap reaches {result.p95_gap:.4g} "
+                                  f"{mech.units} at cut edge {a}-{b} (limit {limit:.4g})")
+        report["ok"] = False

@@ -126,6 +126,10 @@ def from_document(doc, tol=DEFAULT):
             raise ModelError(f"{key}: must be a string")
     known = {"schema", "name", "units", "state", "vertices", "faces", "root", "hinges", "couplings", "drive"}
     extras = {k: v for k, v in doc.items() if k not in known}
+    if "tolerances" in extras:  # optional hinge play and gear backlash, docs/stackup.md
+        from ..stackup import parse_tolerances
+
+        parse_tolerances(extras["tolerances"], len(hinges), len(couplings))
     return build_mechanism(
         np.array(vertices, dtype=float).reshape(-1, 3), faces, np.array(hinges, np.int64).reshape(-1, 2),
         root=root, drive=drive, couplings=couplings, state=state,
