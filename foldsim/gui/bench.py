@@ -1,0 +1,92 @@
+"""Measure how fast the 3D view follows the drive on a large model.
+
+Run ``python -m foldsim.gui.bench [SUBDIVISIONS]`` under a display (Xvfb works).
+It folds a geodesic sphere (20 * 4**k triangular panels, k = 3 by default: 1,280
+panels) on a breadth-first net and prints updates per second for
+
+- the core's share of a frame (poses, collisions at this t, gaps),
+- a whole frame: that plus moving every panel item and drawing the scene,
+- drawing alone, with the panels standing still.
+
+It asserts nothing; compare the numbers between versions and machines.
+"""
+
+import sys
+import time
+
+import numpy as np
+
+from .. import nets, solids
+from ..analysis.closure import cut_edge_gaps
+from ..analysis.collision import colliding_pairs, panels
+from ..gearing import fold_schedule
+from ..kinematics import poses_at
+from ..model import build_mechanism
+
+
+def sphere_mechanism(k):
+    """A geodesic sphere of subdivision level k on a breadth-first net."""
+    shape = solids.geodesic(k)
+    hinges = nets.bfs_net(nets.face_graph(shape.faces), root=0)
+    return build_mechanism(shape.vertices, shape.faces, hinges, root=0, name=shape.name)
+
+
+def _rate(step, values, budget=4.0):
+    """Calls per second of step(t) over the values, for at most `budget` seconds."""
+    start = time.perf_counter()
+    done = 0
+    for t in values:
+        step(t)
+        done += 1
+        if time.perf_counter() - start > budget:
+            break
+    return done / (time.perf_counter() - start)
+
+
+def main(argv=None):
+    """Print the rates; return 0."""
+    from OpenGL import GL
+    from PySide6 import QtWidgets
+
+    from .viewport import FoldView
+
+    argv = sys.argv[1:] if argv is None else argv
+    k = int(argv[0]) if argv else 3
+    app = QtWidgets.QApplication.instance() or QtWidgets.QApplication([])
+    mech = sphere_mechanism(k)
+    schedule = fold_schedule(mech)
+    pan = panels(mech)
+    view = FoldView()
+    view.resize(960, 720)
+    view.show()
+    app.processEvents()
+    view.set_mechanism(mech, schedule, pan)
+    view.set_view("iso")
+    app.processEvents()
+    values = np.linspace(0.0, 1.0, 400)
+
+    def core(t):
+        poses = poses_at(mech, schedule, np.array([t]))
+        colliding_pairs(mech, poses[0], pan=pan)
+        cut_edge_gaps(mech, poses)
+
+    def draw():
+        view.makeCurrent()
+        view.paintGL()
+        GL.glFinish()
+        view.doneCurrent()
+
+    def frame(t):
+        view.set_t(t)
+        draw()
+
+    print(f"{mech.name}: {mech.n_faces} panels, {mech.n_hinges} hinges, {len(mech.cut_faces)} cut edges")
+    print(f"core only     {_rate(core, values):8.1f} updates/s")
+    print(f"whole frame   {_rate(frame, values):8.1f} updates/s")
+    print(f"drawing only  {_rate(lambda t: draw(), values):8.1f} frames/s")
+    view.close()
+    return 0
+
+
+if __name__ == "__main__":
+    sys.exit(main())

@@ -1,0 +1,123 @@
+"""The 3D view on its own: display frame, camera, rays and offscreen frames."""
+
+import math
+
+import numpy as np
+import pytest
+
+pytest.importorskip("PySide6")
+pytest.importorskip("pyqtgraph")
+
+from foldsim.geometry import transform_points  # noqa: E402
+from foldsim.gui import palette  # noqa: E402
+from foldsim.gui.viewport import FoldView, stage_transform  # noqa: E402
+from foldsim.io.mechanism_json import from_document  # noqa: E402
+
+from test_gui import strip150_document  # noqa: E402
+
+
+@pytest.fixture
+def view(qtbot):
+    v = FoldView()
+    qtbot.addWidget(v)
+    v.resize(400, 300)
+    v.show()
+    qtbot.waitExposed(v)
+    v.set_mechanism(from_document(strip150_document()))
+    return v
+
+
+def display(view, face, points):
+    """Display-frame coordinates of flat-frame points of one face at the view's t."""
+    stage = stage_transform(view.mech)
+    return transform_points(stage @ view.poses[face], np.asarray(points, float))
+
+
+def test_root_lies_in_the_floor_and_panels_fold_upward(view):
+    view.set_t(0.5)
+    corners = display(view, 1, view.mech.flat_faces[1])
+    np.testing.assert_allclose(corners[:, 2], 0.0, atol=1e-12)
+    np.testing.assert_allclose(corners.mean(axis=0), 0.0, atol=1e-12)
+    # Face 0's far edge is 1 from its hinge; at t = 0.5 the hinge is at 75°, so
+    # the edge rises to sin 75° above the floor (hand check).
+    far = display(view, 0, [[0.0, 0.0, 0.0], [0.0, 1.0, 0.0]])
+    np.testing.assert_allclose(far[:, 2], math.sin(math.radians(75)), atol=1e-12)
+
+
+def test_top_view_of_the_flat_strip_keeps_its_proportions(view):
+    view.set_t(0.0)
+    view.set_view("top")
+    view.fit()
+    corners = np.concatenate(view.mech.flat_faces)
+    px = view.model_to_pixels(corners)
+    w, h = np.ptp(px, axis=0)
+    # Three unit squares seen square-on: 3 wide, 1 high, at the same scale.
+    np.testing.assert_allclose(w / h, 3.0, rtol=1e-9)
+    # Fitted: the strip spans most of the width and stays inside the view.
+    assert 0.7 * view.width() < w < view.width()
+    assert (px >= 0).all() and (px[:, 0] <= view.width()).all() and (px[:, 1] <= view.height()).all()
+
+
+def test_front_view_sees_the_flat_strip_edge_on(view):
+    view.set_t(0.0)
+    view.set_view("front")
+    view.fit()  # the flat shape alone: the camera sits level with it
+    px = view.model_to_pixels(np.concatenate(view.mech.flat_faces))
+    np.testing.assert_allclose(px[:, 1], px[0, 1], atol=1e-6)
+
+
+def test_the_ray_through_a_pixel_projects_back_onto_it(view):
+    view.set_t(0.3)
+    view.set_view("iso")
+    for x, y in ((200, 150), (37.5, 250.25), (390, 10)):
+        origin, direction = view.ray_at(x, y)
+        np.testing.assert_allclose(np.linalg.norm(direction), 1.0)
+        along = origin + np.outer([0.5, 3.0, 20.0], direction)
+        np.testing.assert_allclose(view.model_to_pixels(along), [[x, y]] * 3, atol=1e-6)
+
+
+def test_picking_the_pixel_of_each_panel_centre(view):
+    view.set_t(0.4)
+    view.set_view("top")
+    for face in range(3):
+        centre = view.poses[face, :3, :3] @ view.mech.flat_faces[face].mean(axis=0) + view.poses[face, :3, 3]
+        x, y = view.model_to_pixels(centre)[0]
+        assert view.pick(x, y) == face
+    assert view.pick(2, 2) == -1
+
+
+def test_selected_face_is_tinted_and_outlined(view):
+    view.set_t(0.4)
+    view.set_view("iso")
+    front_before, _ = view.panel_colors()
+    assert pixels(view.render_image(400, 300), palette.HIGHLIGHT) == 0
+    view.select_face(0)
+    front, _ = view.panel_colors()
+    assert not np.allclose(front[0], front_before[0])
+    np.testing.assert_allclose(front[1:], front_before[1:])
+    assert pixels(view.render_image(400, 300), palette.HIGHLIGHT) > 50
+
+
+def pixels(img, rgb, tol=10):
+    return int((np.abs(img[..., :3].astype(int) - np.array(rgb)) <= tol).all(axis=-1).sum())
+
+
+def test_offscreen_frame_matches_the_widget_at_its_own_size(view):
+    view.set_t(0.6)
+    view.set_view("iso")
+    view.repaint()
+    on_screen = view.grabFramebuffer().convertToFormat(view.grabFramebuffer().Format.Format_RGBA8888)
+    from foldsim.gui.viewport import image_array
+
+    screen = image_array(on_screen).astype(int)
+    frame = view.render_image(view.width(), view.height()).astype(int)
+    # Same scene and camera; anti-aliased edges may differ by a little.
+    close = (np.abs(screen[..., :3] - frame[..., :3]).max(axis=-1) <= 24).mean()
+    assert close > 0.97
+
+
+def test_render_image_needs_a_shown_view(qtbot):
+    v = FoldView()
+    qtbot.addWidget(v)
+    with pytest.raises(RuntimeError, match="shown"):
+        v.render_image(10, 10)
