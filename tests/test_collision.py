@@ -223,3 +223,20 @@ def test_flat_overlap_is_reported_and_fails_only_for_one_sheet():
     assert loose["flat_overlap"] and loose["flat_overlap_pairs"] == [[0, 4]]
     assert loose["ok"]
     assert not check(mech, sheet=True)["ok"]
+
+
+def test_sweep_reports_progress_and_can_be_abandoned():
+    # Common practice for long work: progress rises to 1; raising from the
+    # callback stops the sweep and reaches the caller.
+    seen = []
+    sweep(fan([70, 80, 90, 100, 110]), progress=seen.append)
+    assert seen[-1] == 1.0 and all(0.0 <= a <= b <= 1.0 for a, b in zip(seen, seen[1:]))
+
+    class Stop(Exception):
+        pass
+
+    def stop(fraction):
+        raise Stop
+
+    with pytest.raises(Stop):
+        sweep(fan([70, 80, 90, 100, 110]), progress=stop)

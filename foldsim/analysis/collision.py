@@ -355,7 +355,8 @@ def _swept_candidates(mech, pan, ev, grid, poses):
     return rows[~skip]
 
 
-def collision_intervals(mech, schedule, t_from=0.0, t_to=1.0, clearance=0.0, tol=DEFAULT, pan=None):
+def collision_intervals(mech, schedule, t_from=0.0, t_to=1.0, clearance=0.0, tol=DEFAULT, pan=None,
+                        progress=None):
     """Every colliding face pair over the motion, with its first and last t.
 
     Parameters
@@ -370,6 +371,10 @@ def collision_intervals(mech, schedule, t_from=0.0, t_to=1.0, clearance=0.0, tol
         ``t_resolution`` bounds the error of the reported ends.
     pan : Panels, optional
         Reuse a triangulation.
+    progress : callable, optional
+        Called as ``progress(fraction)`` after each refinement round, with the
+        share in [0, 1] of the candidate stretches of t already settled. It may
+        raise to abandon the sweep; the exception propagates to the caller.
 
     Returns
     -------
@@ -397,6 +402,7 @@ def collision_intervals(mech, schedule, t_from=0.0, t_to=1.0, clearance=0.0, tol
     sep1, hit1 = ev.evaluate(t1, pairs, need)
     found = []
     resolution = tol.t_resolution / 2
+    total = float((t1 - t0).sum()) or 1.0
     while len(pairs):
         rate = ev.rates(pairs)
         both = hit0 & hit1
@@ -406,12 +412,16 @@ def collision_intervals(mech, schedule, t_from=0.0, t_to=1.0, clearance=0.0, tol
         open_ = ~both & (sep0 + sep1 <= rate * (t1 - t0)) & (t1 - t0 > resolution)
         pairs, t0, t1 = pairs[open_], t0[open_], t1[open_]
         sep0, hit0, sep1, hit1 = sep0[open_], hit0[open_], sep1[open_], hit1[open_]
+        if progress is not None:
+            progress(1.0 - float((t1 - t0).sum()) / total)
         mid = 0.5 * (t0 + t1)
         sep_m, hit_m = ev.evaluate(mid, pairs, rate[open_] * (mid - t0))
         pairs = np.concatenate([pairs, pairs])
         t0, t1 = np.concatenate([t0, mid]), np.concatenate([mid, t1])
         sep0, sep1 = np.concatenate([sep0, sep_m]), np.concatenate([sep_m, sep1])
         hit0, hit1 = np.concatenate([hit0, hit_m]), np.concatenate([hit_m, hit1])
+    if progress is not None:
+        progress(1.0)
     return _merge(np.concatenate(found) if found else np.zeros((0, 4)))
 
 
