@@ -30,12 +30,15 @@ import networkx as nx
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
 
-from foldsim.netcount import (  # noqa: E402
-    enumerate_spanning_trees, fixed_spanning_trees, nets_up_to_symmetry, number_of_spanning_trees,
+from foldsim.netcount import (
+    enumerate_spanning_trees,
+    fixed_spanning_trees,
+    nets_up_to_symmetry,
+    number_of_spanning_trees,
 )
-from foldsim.nets import face_graph  # noqa: E402
-from foldsim.solids import builtin  # noqa: E402
-from foldsim.symmetry import symmetry_group  # noqa: E402
+from foldsim.nets import face_graph
+from foldsim.solids import builtin
+from foldsim.symmetry import symmetry_group
 
 PUBLISHED = {  # distinct nets: Buekenhout & Parker 1998; OEIS A103535
     "tetrahedron": 2, "cube": 11, "octahedron": 11, "dodecahedron": 43_380, "icosahedron": 43_380,

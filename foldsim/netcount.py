@@ -14,9 +14,9 @@ reflection, `foldsim.symmetry.symmetry_group`) carries one tree onto the other.
   orbits of its edge permutation, which are few, so those are counted by a search
   over orbits.
 - Listing works by a frontier search over the edges (each edge in or out, keeping
-  only the partition of the faces still to be touched into joined groups), which
-  merges equal partial states; each tree is then kept as its orbit's representative
-  when no symmetry maps it to a smaller bitmask.
+  only how the faces with both decided and undecided edges are already joined),
+  which merges equal partial states; each tree is then kept as its orbit's
+  representative when no symmetry maps it to a smaller bitmask.
 """
 
 from collections import Counter, defaultdict
@@ -26,7 +26,7 @@ import networkx as nx
 import numpy as np
 
 from .errors import ModelError
-from .nets import face_graph, face_pairs
+from .nets import _check_connected, face_graph, face_pairs, tree_diameter
 from .symmetry import symmetry_group
 
 DEFAULT_LIMIT = 10_000_000
@@ -105,10 +105,11 @@ def number_of_spanning_trees(graph):
 class _FrontierSearch:
     """Spanning trees made of whole edge groups, decided one group at a time.
 
-    After deciding groups ``0..i-1`` only the partition of the frontier (the nodes
-    some later group touches) into already-joined blocks matters; a state is that
-    partition as a tuple of block labels, numbered by first appearance. A block that
-    leaves the frontier is finished, which is a dead end unless it is the whole graph.
+    After deciding groups ``0..i-1`` only the *active* nodes matter: those an earlier
+    group touched and a later one touches. A state is their partition into blocks
+    already joined, as a tuple of block labels numbered by first appearance; nodes no
+    group has touched yet are blocks of their own. A block none of whose nodes a
+    later group touches is finished, a dead end unless it is the whole graph.
 
     Parameters
     ----------
@@ -122,22 +123,29 @@ class _FrontierSearch:
     def __init__(self, n_nodes, pairs, groups):
         self.groups = groups
         self.n_nodes = n_nodes
-        touched = [set() for _ in range(len(groups) + 1)]
+        nodes = [sorted({int(v) for e in group for v in pairs[e]}) for group in groups]
+        later = [set() for _ in range(len(groups) + 1)]
         for i in reversed(range(len(groups))):
-            touched[i] = touched[i + 1] | {int(v) for e in groups[i] for v in pairs[e]}
-        self.frontier = [sorted(t) for t in touched]
-        self.ends, self.keep = [], []
+            later[i] = later[i + 1] | set(nodes[i])
+        seen, active = set(), []
+        self.ends, self.keep, self.fresh, self.unseen = [], [], [], []
         for i, group in enumerate(groups):
-            pos = {v: k for k, v in enumerate(self.frontier[i])}
+            new = [v for v in nodes[i] if v not in seen]
+            seen.update(new)
+            here = active + new  # the state's nodes, then this group's new ones
+            pos = {v: k for k, v in enumerate(here)}
+            active = [v for v in here if v in later[i + 1]]
+            self.fresh.append(len(new))
             self.ends.append([(pos[int(pairs[e][0])], pos[int(pairs[e][1])]) for e in group])
-            self.keep.append([pos[v] for v in self.frontier[i + 1]])
+            self.keep.append([pos[v] for v in active])
+            self.unseen.append(n_nodes - len(seen))
         sizes = [len(g) for g in groups]
         self.remaining = np.cumsum(sizes[::-1])[::-1].tolist() + [0]
-        self.start = tuple(range(n_nodes)) if len(self.frontier[0]) == n_nodes > 1 else None
+        self.start = () if len(later[0]) == n_nodes > 1 else None
 
     def step(self, i, state, include):
         """State after deciding group ``i`` (in or out), or None if no tree follows."""
-        labels = list(state)
+        labels = list(state) + list(range(len(state), len(state) + self.fresh[i]))
         if include:
             for pu, pv in self.ends[i]:
                 a, b = labels[pu], labels[pv]
@@ -146,11 +154,11 @@ class _FrontierSearch:
                 labels = [a if x == b else x for x in labels]
         kept = [labels[p] for p in self.keep[i]]
         finished = len(set(labels)) - len(set(kept))
-        if finished and (kept or finished > 1):
+        if finished and (kept or self.unseen[i] or finished > 1):
             return None
         number = {}
         out = tuple(number.setdefault(x, len(number)) for x in kept)
-        if len(number) - 1 > self.remaining[i + 1]:
+        if len(number) + self.unseen[i] - 1 > self.remaining[i + 1]:
             return None  # too few edges left to join the blocks
         return out
 
@@ -271,12 +279,8 @@ def _check_face_graph(graph):
         raise ModelError("graph: nodes must be the integers 0..n-1")
 
 
-def _tree_batches(graph, limit):
-    """Spanning trees of ``graph`` as (n, W) uint64 bitmask rows, after checking ``limit``."""
-    _check_face_graph(graph)
-    total = number_of_spanning_trees(graph)
-    if limit is not None and total > limit:
-        raise ModelError(f"limit: the graph has {total} spanning trees, more than the limit of {limit}")
+def _tree_batches(graph):
+    """Spanning trees of a face graph as (n, W) uint64 bitmask rows, in batches."""
     pairs = face_pairs(graph)
     groups = [[int(e)] for e in _search_order(graph, pairs)]
     search = _FrontierSearch(graph.number_of_nodes(), pairs, groups)
@@ -311,7 +315,11 @@ def enumerate_spanning_trees(graph, limit=DEFAULT_LIMIT):
     >>> sorted(enumerate_spanning_trees(nx.cycle_graph(4)))
     [7, 11, 13, 14]
     """
-    for rows in _tree_batches(graph, limit):
+    _check_face_graph(graph)
+    total = number_of_spanning_trees(graph)
+    if limit is not None and total > limit:
+        raise ModelError(f"limit: the graph has {total} spanning trees, more than the limit of {limit}")
+    for rows in _tree_batches(graph):
         if rows.shape[1] == 1:
             yield from rows[:, 0].tolist()
         else:
@@ -429,7 +437,8 @@ def fixed_spanning_trees(graph, permutations, max_states=DEFAULT_MAX_STATES):
     list of int or None
         Length G. The identity counts every tree (matrix-tree theorem); any other
         element counts the trees that are unions of whole orbits of its edges, or
-        is None if its search was given up.
+        is None if its search was given up; after one is given up the other
+        non-identity elements are None too (Burnside's sum is out of reach anyway).
         Conjugate elements fix equally many trees and are counted once, as are the
         generators of one cyclic subgroup (they have the same orbits).
 
@@ -457,6 +466,8 @@ def fixed_spanning_trees(graph, permutations, max_states=DEFAULT_MAX_STATES):
         if key not in cache:
             if len(orbits) == len(pairs):
                 cache[key] = number_of_spanning_trees(graph)
+            elif None in cache.values():
+                cache[key] = None
             else:
                 groups = _greedy_order(orbits, pairs, rank)
                 cache[key] = _FrontierSearch(graph.number_of_nodes(), pairs, groups).count(max_states)
@@ -600,26 +611,6 @@ def _less(a, b):
     return less
 
 
-def _diameter(tree, pairs, n_faces):
-    """Longest path, in edges, of the tree given by a bitmask over ``pairs``."""
-    adjacency = [[] for _ in range(n_faces)]
-    for a, b in tree_pairs(tree, pairs):
-        adjacency[a].append(b)
-        adjacency[b].append(a)
-
-    def farthest(source):
-        depth = {source: 0}
-        queue = [source]
-        for f in queue:
-            for g in adjacency[f]:
-                if g not in depth:
-                    depth[g] = depth[f] + 1
-                    queue.append(g)
-        return queue[-1], depth[queue[-1]]
-
-    return farthest(farthest(0)[0])[1]
-
-
 def nets_up_to_symmetry(poly, limit=DEFAULT_LIMIT, progress=None, max_states=DEFAULT_MAX_STATES):
     """Count a polyhedron's nets and, if the trees are few enough, list one per net.
 
@@ -647,20 +638,20 @@ def nets_up_to_symmetry(poly, limit=DEFAULT_LIMIT, progress=None, max_states=DEF
     (16, 24, 2, {2: 1, 3: 1})
     """
     graph = face_graph(poly.faces)
-    if not nx.is_connected(graph):
-        raise ModelError("faces: not all connected through shared edges")
+    _check_connected(graph)
     group = symmetry_group(poly)
     pairs = face_pairs(graph)
     fixed = fixed_spanning_trees(graph, group.edges, max_states)
     total = fixed[0]
     nets, chiral = _burnside(fixed, group, poly)
-    census = dict(faces=graph.number_of_nodes(), pairs=pairs, spanning_trees=total, symmetry_order=group.order,
-                  rotations=int(group.rotations.sum()), fixed=tuple(fixed), nets=nets, nets_up_to_rotation=chiral)
+    census = {"faces": graph.number_of_nodes(), "pairs": pairs, "spanning_trees": total,
+              "symmetry_order": group.order, "rotations": int(group.rotations.sum()), "fixed": tuple(fixed),
+              "nets": nets, "nets_up_to_rotation": chiral}
     if limit is not None and total > limit:
         return NetCensus(enumerated=False, **census)
     tables = _byte_tables(group.edges[1:], len(pairs))
     found, done = [], 0
-    for rows in _tree_batches(graph, None):
+    for rows in _tree_batches(graph):
         keep = np.arange(len(rows))
         for table in tables:
             keep = keep[~_less(_image(rows[keep], table), rows[keep])]
@@ -670,46 +661,7 @@ def nets_up_to_symmetry(poly, limit=DEFAULT_LIMIT, progress=None, max_states=DEF
             progress(done, total)
     if census["nets"] is None:
         census["nets"] = len(found)
-    diameters = [_diameter(tree, pairs, census["faces"]) for tree in found]
+    diameters = [tree_diameter(census["faces"], tree_pairs(tree, pairs)) for tree in found]
     order = sorted(range(len(found)), key=lambda k: (diameters[k], found[k]))
     return NetCensus(enumerated=True, representatives=tuple(found[k] for k in order),
                      diameters=np.array([diameters[k] for k in order], dtype=np.int64), **census)
-
-
-def central_face(n_faces, hinges):
-    """The face of a tree farthest from none: least eccentricity, lowest index on ties.
-
-    Parameters
-    ----------
-    n_faces : int
-    hinges : sequence of (int, int)
-        Tree edges.
-
-    Returns
-    -------
-    int
-
-    Examples
-    --------
-    >>> central_face(5, [(0, 1), (1, 2), (2, 3), (3, 4)])
-    2
-    """
-    tree = nx.Graph()
-    tree.add_nodes_from(range(n_faces))
-    tree.add_edges_from(hinges)
-    eccentricity = nx.eccentricity(tree)
-    return min(range(n_faces), key=lambda f: (eccentricity[f], f))
-
-
-def hinges_from(root, hinges):
-    """Tree edges as (parent, child) pairs in breadth-first order from a root face.
-
-    Examples
-    --------
-    >>> hinges_from(2, [(0, 1), (1, 2), (2, 3)])
-    [(2, 1), (2, 3), (1, 0)]
-    """
-    tree = nx.Graph()
-    tree.add_node(root)
-    tree.add_edges_from(hinges)
-    return [(int(a), int(b)) for a, b in nx.bfs_edges(tree, root, sort_neighbors=sorted)]

@@ -111,6 +111,27 @@ class NetChoice:
     lower_bound: int
 
 
+def _tree_adjacency(n_nodes, hinges):
+    """Neighbour lists of a forest on nodes 0..n_nodes-1."""
+    adjacency = [[] for _ in range(n_nodes)]
+    for a, b in hinges:
+        adjacency[a].append(b)
+        adjacency[b].append(a)
+    return adjacency
+
+
+def _depths(adjacency, source):
+    """Hop distances from ``source`` to the nodes of its tree, in breadth-first order."""
+    depth = {source: 0}
+    queue = [source]
+    for f in queue:
+        for g in adjacency[f]:
+            if g not in depth:
+                depth[g] = depth[f] + 1
+                queue.append(g)
+    return depth
+
+
 def tree_diameter(n_nodes, hinges):
     """Diameter in edges of a tree given as an edge list.
 
@@ -119,11 +140,57 @@ def tree_diameter(n_nodes, hinges):
     >>> tree_diameter(4, [(0, 1), (1, 2), (2, 3)])
     3
     """
-    tree = nx.Graph()
-    tree.add_nodes_from(range(n_nodes))
-    tree.add_edges_from(hinges)
-    far = max(nx.single_source_shortest_path_length(tree, 0).items(), key=lambda kv: (kv[1], -kv[0]))[0]
-    return max(nx.single_source_shortest_path_length(tree, far).values())
+    adjacency = _tree_adjacency(n_nodes, hinges)
+    depth = _depths(adjacency, 0)
+    far = max(depth.items(), key=lambda kv: (kv[1], -kv[0]))[0]
+    return max(_depths(adjacency, far).values())
+
+
+def central_face(n_faces, hinges):
+    """The face of a tree whose farthest face is nearest: least eccentricity, lowest index.
+
+    Parameters
+    ----------
+    n_faces : int
+    hinges : sequence of (int, int)
+        Tree edges spanning faces 0..n_faces-1.
+
+    Returns
+    -------
+    int
+
+    Examples
+    --------
+    >>> central_face(5, [(0, 1), (1, 2), (2, 3), (3, 4)])
+    2
+    """
+    adjacency = _tree_adjacency(n_faces, hinges)
+    far = max(_depths(adjacency, 0).items(), key=lambda kv: (kv[1], -kv[0]))[0]
+    end = _depths(adjacency, far)
+    other = max(end.items(), key=lambda kv: (kv[1], -kv[0]))[0]
+    back = _depths(adjacency, other)
+    return min(range(n_faces), key=lambda f: (max(end[f], back[f]), f))
+
+
+def hinges_from(root, hinges):
+    """Tree edges as (parent, child) pairs in breadth-first order from a root face.
+
+    Neighbours are visited in increasing order.
+
+    Examples
+    --------
+    >>> hinges_from(2, [(0, 1), (1, 2), (2, 3)])
+    [(2, 1), (2, 3), (1, 0)]
+    """
+    adjacency = _tree_adjacency(max([root, *(max(h) for h in hinges)]) + 1, hinges)
+    seen, queue, out = {root}, [root], []
+    for f in queue:
+        for g in sorted(adjacency[f]):
+            if g not in seen:
+                seen.add(g)
+                queue.append(g)
+                out.append((int(f), int(g)))
+    return out
 
 
 def _check_connected(graph):

@@ -141,7 +141,8 @@ def _best_nets(poly, census, choice, k, out_dir, progress):
     from ..analysis.collision import flat_overlaps
     from ..io.mechanism_json import save
     from ..model import build_mechanism
-    from ..netcount import central_face, hinges_from, tree_pairs
+    from ..netcount import tree_pairs
+    from ..nets import central_face, hinges_from
 
     def mechanism(hinges, rank=0):
         root = central_face(census.faces, hinges)
@@ -201,20 +202,19 @@ def _notes(census, limit):
         notes.append(f"counting the nets a symmetry leaves unchanged needs more than {DEFAULT_MAX_STATES:,} "
                      "partial states for this solid, so the counts up to symmetry are left out")
     if not census.enumerated:
-        notes.append(f"the distinct nets were not listed: {census.spanning_trees:,} spanning trees is more than "
-                     f"--limit {limit:,}; the shortest chain shown is that of a net grown from the face "
-                     "graph's centre")
+        notes.append(f"the distinct nets were not listed: there are more spanning trees than --limit "
+                     f"({limit:,}); the shortest chain shown is that of a net grown from the face graph's centre")
     return "; ".join(notes) or None
 
 
 def _format(report):
     """Human-readable text of a nets report."""
-    lines = [f"{report['shape']}: {report['faces']} faces, {report['face_pairs']} shared edges, "
-             f"{report['symmetry_order']} symmetries ({report['rotations']} rotations)",
+    lines = [(f"{report['shape']}: {report['faces']} faces, {report['face_pairs']} shared edges, "
+              f"{report['symmetry_order']} symmetries ({report['rotations']} rotations)"),
              f"spanning trees (cut patterns): {report['spanning_trees']:,}",
              "distinct nets up to rotation and reflection: " + _count_text(report),
-             f"shortest longest hinge chain: {report['min_diameter_hinges']} hinges "
-             f"(no net can do better than {report['lower_bound_hinges']})"]
+             (f"shortest longest hinge chain: {report['min_diameter_hinges']} hinges "
+              f"(no net can do better than {report['lower_bound_hinges']})")]
     if report["enumerated"]:
         lines.append("distinct nets by longest hinge chain:")
         for diameter, count in report["diameter_histogram"].items():
