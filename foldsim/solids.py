@@ -347,4 +347,7 @@ def builtin(spec, size=None):
         kwargs = {} if size is None else {"radius" if kind == "geodesic" else "edge": _positive(size, "size")}
     except (TypeError, ValueError):
         raise ModelError(f"built-in solid {spec!r}: size must be a positive number, got {size!r}") from None
-    return _NAMED[text](**kwargs) if family is None else family[0](int(number), **kwargs)
+    try:
+        return _NAMED[text](**kwargs) if family is None else family[0](int(number), **kwargs)
+    except ValueError as exc:
+        raise ModelError(f"built-in solid {spec!r}: {exc}") from None
