@@ -6,13 +6,14 @@ input (one line on stderr naming the file, the field and the index).
 """
 
 import argparse
+import os
 import sys
 
 from . import __version__
-from .commands import app, check, export, nets, new, stackup
+from .commands import app, check, export, nets, new, record, stackup
 from .errors import FoldsimError
 
-COMMANDS = (check, new, nets, stackup, export, app)
+COMMANDS = (check, new, nets, stackup, export, record, app)
 
 
 def _parser():
@@ -39,6 +40,10 @@ def main(argv=None):
     except FoldsimError as exc:
         print(f"foldsim: {exc}", file=sys.stderr)
         return 2
+    except BrokenPipeError:
+        # The reader (say, `| head`) stopped early: not an error of ours.
+        sys.stdout = open(os.devnull, "w")
+        return 0
 
 
 if __name__ == "__main__":

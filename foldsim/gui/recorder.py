@@ -179,7 +179,7 @@ def frame_count(seconds, fps):
     >>> frame_count(4, 30), frame_count(0.5, 25), frame_count(0.01, 10)
     (120, 12, 1)
     """
-    return max(1, int(round(seconds * fps)))
+    return max(1, round(seconds * fps))
 
 
 def check_options(fmt, t_from=0.0, t_to=1.0, seconds=4.0, fps=30, size=(1280, 720), orbit=False):
@@ -351,7 +351,7 @@ class _Caption:
             raise FoldsimError("no fonts to write the caption with: install a font package "
                                "(e.g. sudo apt-get install fonts-dejavu-core) or record with --no-overlay")
         w, h = size
-        self.px = max(11, int(round(min(h, 1.25 * w) * 0.03)))
+        self.px = max(12, round(min(h, 1.25 * w) * 0.03))
         self.pad = 0.6 * self.px
         self.regular = QtGui.QFont()
         self.regular.setPixelSize(self.px)
@@ -552,15 +552,50 @@ def _fit_region(viewport, points, size, region, margin, distance=None):
     return np.array([c.x(), c.y(), c.z()]), float(viewport.opts["distance"])
 
 
+def hull_meets_box(points, box):
+    """Whether the convex hull of 2D points overlaps an axis-aligned box.
+
+    Parameters
+    ----------
+    points : (n, 2) float
+    box : (x0, y0, x1, y1)
+
+    Examples
+    --------
+    >>> tri = np.array([[0.0, 0.0], [10.0, 0.0], [0.0, 10.0]])
+    >>> hull_meets_box(tri, (6, 6, 9, 9)), hull_meets_box(tri, (4, 4, 9, 9))
+    (False, True)
+    """
+    from scipy.spatial import ConvexHull, QhullError
+
+    pts = np.asarray(points, dtype=float)
+    x0, y0, x1, y1 = box
+    lo, hi = pts.min(axis=0), pts.max(axis=0)
+    if lo[0] >= x1 or lo[1] >= y1 or hi[0] <= x0 or hi[1] <= y0:
+        return False
+    try:
+        hull = pts[ConvexHull(pts).vertices]
+    except (QhullError, ValueError):
+        return True  # flat or tiny: its bounding box overlaps, call it a meet
+    corners = np.array([[x0, y0], [x1, y0], [x1, y1], [x0, y1]], dtype=float)
+    edges = np.roll(hull, -1, axis=0) - hull
+    for normal in np.column_stack([-edges[:, 1], edges[:, 0]]):
+        a, b = hull @ normal, corners @ normal
+        if a.max() <= b.min() or b.max() <= a.min():
+            return False
+    return True
+
+
 def plan_camera(viewport, t_values, turns, size, margin=MARGIN, reserve=None):
     """Camera of every frame such that the whole clip stays in view.
 
     From the view's current direction, turned by each frame's offset, the
-    model's shapes over the clip's range of t are fitted into the frame — or,
-    with ``reserve``, into the larger of the parts the caption leaves free (below
-    it, or right of it). The farthest camera distance over the orbit is kept for
-    every frame, so the model does not seem to grow and shrink; the centre is
-    found for each direction.
+    model's shapes over the clip's range of t are fitted into the frame,
+    centred. With ``reserve``, if those shapes would reach into the caption's
+    corner, they are fitted instead into the larger of the parts the caption
+    leaves free (below it, or right of it). The farthest camera distance over
+    the orbit is kept for every frame, so the model does not seem to grow and
+    shrink; the centre is found for each direction.
 
     Parameters
     ----------
@@ -570,7 +605,7 @@ def plan_camera(viewport, t_values, turns, size, margin=MARGIN, reserve=None):
     size : (int, int)
     margin : float
     reserve : (float, float), optional
-        Width and height in pixels kept free in the top-left corner.
+        Width and height in pixels to keep clear in the top-left corner.
 
     Returns
     -------
@@ -585,11 +620,7 @@ def plan_camera(viewport, t_values, turns, size, margin=MARGIN, reserve=None):
     points = _posed_corners(viewport, samples)
     turns = np.asarray(turns, dtype=float)
     sample_turns = np.unique(np.linspace(turns.min(), turns.max(), 9 if np.ptp(turns) > 0 else 1))
-    regions = [(0.0, 0.0, w, h)]
-    if reserve is not None:
-        rw, rh = reserve
-        regions = [r for r in ((0.0, rh, w, h), (rw, 0.0, w, h)) if r[2] - r[0] > w / 4 and r[3] - r[1] > h / 4]
-        regions = regions or [(0.0, 0.0, w, h)]
+    whole = (0.0, 0.0, float(w), float(h))
 
     def aim(turn, region, distance=None):
         viewport.opts["azimuth"] = saved["azimuth"] + turn
@@ -597,11 +628,23 @@ def plan_camera(viewport, t_values, turns, size, margin=MARGIN, reserve=None):
             viewport.fit(t_values=samples, margin=margin)
         return _fit_region(viewport, points, size, region, margin, distance)
 
+    def framing(region):
+        distance = max(aim(turn, region)[1] for turn in sample_turns)
+        centres, clear = [], True
+        for turn in sample_turns:
+            centres.append(aim(turn, region, distance)[0])
+            if reserve is not None:
+                clear &= not hull_meets_box(viewport.model_to_pixels(points, w, h), (0, 0, *reserve))
+        return distance, np.array(centres), clear
+
     try:
-        farthest = [max(aim(turn, region)[1] for turn in sample_turns) for region in regions]
-        best = int(np.argmin(farthest))
-        distance = farthest[best]
-        centres = np.array([aim(turn, regions[best], distance)[0] for turn in sample_turns])
+        distance, centres, clear = framing(whole)
+        if not clear:
+            rw, rh = reserve
+            options = [framing(r) for r in ((0.0, rh, w, h), (rw, 0.0, w, h))
+                       if r[2] - r[0] > w / 4 and r[3] - r[1] > h / 4]
+            if options:
+                distance, centres, _ = min(options, key=lambda o: o[0])
     finally:
         _set_camera(viewport, saved)
     plan = []
@@ -632,7 +675,7 @@ def _set_camera(viewport, camera):
 
 
 def render_frames(viewport, t_from=0.0, t_to=1.0, seconds=4.0, fps=30, size=(1280, 720), orbit=False,
-                  overlay=True, fit=True, title=None, samples=4, cancel=None):
+                  overlay=True, fit=True, title=None, samples=4, cancel=None, caption_room=None, only=None):
     """Yield a clip's frames one at a time, without writing anything.
 
     The view's drive value and camera are restored when the generator finishes
@@ -648,6 +691,12 @@ def render_frames(viewport, t_from=0.0, t_to=1.0, seconds=4.0, fps=30, size=(128
         Multisampling per pixel (`FoldView.render_image`).
     cancel : callable, optional
         Called before every frame; True raises `Cancelled`.
+    caption_room : bool, optional
+        With ``fit``, frame the model clear of the caption's corner (default:
+        when there is a caption).
+    only : sequence of int, optional
+        Draw only these frames of the clip (same camera and caption as in the
+        whole clip).
 
     Yields
     ------
@@ -671,17 +720,21 @@ def render_frames(viewport, t_from=0.0, t_to=1.0, seconds=4.0, fps=30, size=(128
     saved_t = float(viewport.t)
     saved = _camera(viewport)
     box_width, reserve = None, None
-    if overlay:
+    if overlay or caption_room:
         caption = _Caption(size)
         all_lines, all_colliding = clip_captions(viewport, t_values, title)
         reserve = caption.corner(all_lines, all_colliding)
         box_width = reserve[0] - 2 * caption.pad
+        if caption_room is False:
+            reserve = None
     try:
         if fit:
             cameras = plan_camera(viewport, t_values, turns, size, reserve=reserve)
         else:
             cameras = [dict(saved, azimuth=saved["azimuth"] + turn) for turn in turns]
-        for i, (t, camera) in enumerate(zip(t_values, cameras)):
+        chosen = range(len(t_values)) if only is None else sorted({int(k) for k in only})
+        for i, k in enumerate(chosen):
+            t, camera = t_values[k], cameras[k]
             if cancel is not None and cancel():
                 raise Cancelled("recording cancelled; nothing was written")
             viewport.set_t(float(t))
@@ -974,8 +1027,8 @@ def record_clip(viewport, path, t_from=0.0, t_to=1.0, seconds=4.0, fps=30, size=
     check_options(fmt, t_from, t_to, seconds, fps, size, orbit)
     target = _AtomicTarget(path)
     writer = None
-    options = dict(t_from=t_from, t_to=t_to, seconds=seconds, fps=fps, size=size, orbit=orbit,
-                   overlay=overlay, fit=fit, title=title, samples=samples)
+    options = {"t_from": t_from, "t_to": t_to, "seconds": seconds, "fps": fps, "size": size, "orbit": orbit,
+               "overlay": overlay, "fit": fit, "title": title, "samples": samples}
     info = ClipInfo(Path(path), fmt, 0, size, int(fps), float(t_from), float(t_to))
     n = frame_count(seconds, fps)
     try:
@@ -1011,13 +1064,10 @@ def _gif_palette(viewport, options, cancel):
     w, h = options["size"]
     small = dict(options, size=(max(MIN_SIDE, w // 2), max(MIN_SIDE, h // 2)))
     n = frame_count(options["seconds"], options["fps"])
-    pick = set(np.linspace(0, n - 1, min(n, 7)).round().astype(int).tolist())
-    kept = []
-    frames = render_frames(viewport, cancel=cancel, **small)
+    pick = np.linspace(0, n - 1, min(n, 7)).round().astype(int)
+    frames = render_frames(viewport, cancel=cancel, only=pick, **small)
     try:
-        for i, (_, _, rgba) in enumerate(frames):
-            if i in pick:
-                kept.append(rgba)
+        kept = [rgba for _, _, rgba in frames]
     finally:
         frames.close()
     return choose_palette(kept)
