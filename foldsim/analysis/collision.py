@@ -173,8 +173,20 @@ def _in_sorted(keys, table):
     return table[pos] == keys, pos
 
 
-def _triangle_pairs(pan, pairs):
-    """Expand face pairs (n, 2) into triangle index pairs and their owner row."""
+def triangle_pairs(pan, pairs):
+    """Expand face pairs into the pairs of their triangles.
+
+    Parameters
+    ----------
+    pan : Panels
+    pairs : (n, 2) int
+        Face pairs.
+
+    Returns
+    -------
+    ia, ib, row : (m,) int
+        Triangle indices into ``pan.tri_points`` and the face pair each came from.
+    """
     ca, cb = pan.count[pairs[:, 0]], pan.count[pairs[:, 1]]
     per = ca * cb
     row = np.repeat(np.arange(len(pairs)), per)
@@ -297,7 +309,7 @@ def pair_state(mech, pan, poses, frame, pairs, clearance, eps, separation=True):
         shared point; 0 where colliding.
     hit : (n,) bool
     """
-    ia, ib, row = _triangle_pairs(pan, pairs)
+    ia, ib, row = triangle_pairs(pan, pairs)
     if len(poses) * len(pan.tri_face) < len(row):
         posed = _posed_triangles(pan, poses)
         ta, tb = posed[frame[row], ia], posed[frame[row], ib]
