@@ -39,11 +39,12 @@ from PySide6 import QtCore, QtGui, QtOpenGL, QtWidgets
 from pyqtgraph import Vector
 
 from ..analysis.closure import cut_edge_gaps
-from ..analysis.collision import colliding_pairs, panels
-from ..gearing import fold_schedule
+from ..analysis.collision import colliding_pairs, panels, triangle_pairs
+from ..gearing import fold_angles, fold_schedule
 from ..geometry import transform_points, unit
 from ..kinematics import poses_at
 from ..picking import intersection_segments, pick_face
+from ..stackup import perturbed_poses
 from ..tolerances import DEFAULT
 from . import palette
 
@@ -71,6 +72,11 @@ NEAR_GAP = 0.25
 
 CLICK_SLOP = 4
 """A press and release nearer than this many pixels is a click, not a drag."""
+
+ENVELOPE = (176, 84, 0)
+"""Colour of the sampled-build outlines (`FoldView.set_envelope`), drawn see-through."""
+
+ENVELOPE_ALPHA = 0.35
 
 _VERTEX_SHADER = """
 uniform mat4 u_projection;
@@ -446,6 +452,9 @@ class FoldView(gl.GLViewWidget):
         self._overlay = _LabelOverlay(self)
         self._fitted = False
         self.frames_drawn = 0
+        self._envelope = None
+        self._envelope_errors = None
+        self.envelope_poses = None
 
     # ------------------------------------------------------------------ model
 
@@ -498,6 +507,9 @@ class FoldView(gl.GLViewWidget):
             item.setVisible(False)
         self.addItem(self._stage)
         self._base_colors = default_face_colors(mech) if face_colors is None else np.asarray(face_colors)
+        self._envelope = None
+        self._envelope_errors = None
+        self.envelope_poses = None
         self.set_t(self.t)
         self.fit_motion()
 
@@ -581,6 +593,7 @@ class FoldView(gl.GLViewWidget):
         self.gaps = cut_edge_gaps(mech, poses)[0] if len(mech.cut_faces) else np.zeros(0)
         self._update_gaps()
         self._update_marks()
+        self._update_envelope()
         self.update()
 
     def _update_crossings(self):
@@ -588,12 +601,7 @@ class FoldView(gl.GLViewWidget):
         if not len(pairs):
             self._crossings.setVisible(False)
             return
-        ca, cb = pan.count[pairs[:, 0]], pan.count[pairs[:, 1]]
-        per = ca * cb
-        row = np.repeat(np.arange(len(pairs)), per)
-        local = np.arange(per.sum()) - np.repeat(np.cumsum(per) - per, per)
-        ia = pan.start[pairs[row, 0]] + local // cb[row]
-        ib = pan.start[pairs[row, 1]] + local % cb[row]
+        ia, ib, _ = triangle_pairs(pan, pairs)
         ta = transform_points(self.poses[pan.tri_face[ia]][:, None], pan.tri_points[ia])
         tb = transform_points(self.poses[pan.tri_face[ib]][:, None], pan.tri_points[ib])
         segments, hit = intersection_segments(ta, tb)
@@ -645,6 +653,47 @@ class FoldView(gl.GLViewWidget):
         if self.mech is not None:
             self._update_gaps()
             self.update()
+
+    # --------------------------------------------------------------- envelope
+
+    def set_envelope(self, errors):
+        """Outline the panels of a few sampled builds around the ideal ones, or clear with None.
+
+        Parameters
+        ----------
+        errors : foldsim.stackup.Errors or None
+            Drawn hinge and mesh errors, one row per build. At every t the core
+            poses each build (`foldsim.stackup.perturbed_poses`) and the view draws
+            every panel's outline thin and see-through, so the spread shows how far
+            play and backlash can carry the panels.
+        """
+        if self.mech is None:
+            return
+        self._envelope_errors = errors if errors is not None and len(errors) else None
+        if self._envelope_errors is not None and self._envelope is None:
+            self._envelope = gl.GLLinePlotItem(parentItem=self._stage, mode="lines", width=1.0,
+                                               color=_rgba(ENVELOPE, ENVELOPE_ALPHA), antialias=True,
+                                               glOptions={GL.GL_DEPTH_TEST: True, GL.GL_BLEND: True,
+                                                          GL.GL_CULL_FACE: False})
+            self._envelope.setDepthValue(9)
+            polys = self.mech.flat_faces
+            self._envelope_owner = np.concatenate([np.full(len(p), f) for f, p in enumerate(polys)])
+            self._envelope_ends = np.concatenate([np.stack([p, np.roll(p, -1, axis=0)], axis=1) for p in polys])
+        self._update_envelope()
+        self.update()
+
+    def _update_envelope(self):
+        if self._envelope_errors is None:
+            self.envelope_poses = None
+            if self._envelope is not None:
+                self._envelope.setVisible(False)
+            return
+        angles = fold_angles(self.schedule, np.array([self.t]))
+        poses = perturbed_poses(self.mech, angles, self._envelope_errors)[:, 0]
+        self.envelope_poses = poses
+        ends = transform_points(poses[:, self._envelope_owner][:, :, None], self._envelope_ends[None])
+        self._envelope.setData(pos=ends.reshape(-1, 3))
+        self._envelope.setVisible(True)
 
     # -------------------------------------------------------------- selection
 

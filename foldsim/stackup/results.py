@@ -135,7 +135,7 @@ def _bounds_summary(spec):
 
 
 def stackup(mech, spec=None, process=None, samples=DEFAULT_SAMPLES, seed=0, dist="uniform",
-            times=DEFAULT_TIMES, chunk=None):
+            times=DEFAULT_TIMES, chunk=None, keep=False, progress=None):
     """Run the Monte Carlo and the linearised stack-up of one mechanism.
 
     Parameters
@@ -144,7 +144,7 @@ def stackup(mech, spec=None, process=None, samples=DEFAULT_SAMPLES, seed=0, dist
     spec : PlaySpec, optional
         Default: `play_spec(mech, process)`.
     process : str, optional
-    samples, seed, dist, times, chunk
+    samples, seed, dist, times, chunk, keep, progress
         As for `monte_carlo`.
 
     Returns
@@ -153,7 +153,8 @@ def stackup(mech, spec=None, process=None, samples=DEFAULT_SAMPLES, seed=0, dist
     """
     spec = play_spec(mech, process) if spec is None else spec
     schedule = fold_schedule(mech)
-    mc = monte_carlo(mech, spec, samples, seed, dist, times, chunk=chunk, schedule=schedule)
+    mc = monte_carlo(mech, spec, samples, seed, dist, times, chunk=chunk, keep=keep, schedule=schedule,
+                     progress=progress)
     lin = linear_stackup(mech, spec, mc.times, dist, schedule=schedule)
     return Stackup(mech, spec, mc, lin)
 

@@ -262,7 +262,7 @@ def _stats(values):
 
 
 def monte_carlo(mech, spec, samples=DEFAULT_SAMPLES, seed=0, dist="uniform", times=DEFAULT_TIMES,
-                chunk=None, keep=False, schedule=None):
+                chunk=None, keep=False, schedule=None, progress=None):
     """Sample the built mechanism many times and measure gaps and panel deviations.
 
     Parameters
@@ -281,6 +281,9 @@ def monte_carlo(mech, spec, samples=DEFAULT_SAMPLES, seed=0, dist="uniform", tim
     keep : bool
         Return every sample's gaps and deviations too.
     schedule : Schedule, optional
+    progress : callable, optional
+        Called as ``progress(done, samples)`` after each chunk; it may raise to
+        abandon the run (the exception reaches the caller).
 
     Returns
     -------
@@ -312,6 +315,8 @@ def monte_carlo(mech, spec, samples=DEFAULT_SAMPLES, seed=0, dist="uniform", tim
         for i, poses in enumerate(_pose_batches(mech, angles, errors, tree, frames)):
             gaps[sl, i] = cut_edge_gaps(mech, poses)
             tips[sl, i] = tip_deviations(poses, ideal_poses[i], padded)
+        if progress is not None:
+            progress(sl.stop, samples)
     g = [s.reshape(len(times), n_e) for s in _stats(gaps)]
     p = [s.reshape(len(times), n_f) for s in _stats(tips)]
     return MonteCarloResult(times, int(samples), seed, dist, ideal_gaps, *g, *p,
