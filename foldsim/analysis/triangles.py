@@ -317,7 +317,8 @@ def segment_segment_distance(p0, p1, q0, q1):
 def _barycentric_projection(p, t):
     """Foot of `p` (..., 3) on the plane of `t` (..., 3, 3) and whether it is inside.
 
-    Returns the foot (..., 3) and a (...,) bool, False for degenerate triangles.
+    Returns the foot (..., 3) and a (...,) bool, False for degenerate triangles
+    (a corner angle below about 1e-6 rad).
     """
     v0, v1, w = t[..., 1, :] - t[..., 0, :], t[..., 2, :] - t[..., 0, :], p - t[..., 0, :]
     d00, d01, d11 = _dot(v0, v0), _dot(v0, v1), _dot(v1, v1)
@@ -326,7 +327,9 @@ def _barycentric_projection(p, t):
     with np.errstate(divide="ignore", invalid="ignore"):
         beta = (d11 * d20 - d01 * d21) / denom
         gamma = (d00 * d21 - d01 * d20) / denom
-        inside = (denom > 0.0) & (beta >= 0.0) & (gamma >= 0.0) & (beta + gamma <= 1.0)
+        # Slivers whose corner angle is below about 1e-6 rad count as degenerate:
+        # their plane is round-off, and they act as their edges.
+        inside = (denom > 1e-12 * d00 * d11) & (beta >= 0.0) & (gamma >= 0.0) & (beta + gamma <= 1.0)
     beta, gamma = np.where(inside, beta, 0.0), np.where(inside, gamma, 0.0)
     return t[..., 0, :] + beta[..., None] * v0 + gamma[..., None] * v1, inside
 
