@@ -1,7 +1,8 @@
 """Headless pictures of posed panels as inline SVG (no display, no GPU).
 
 An orthographic camera looks at the model from a fixed direction (default from
-front-right-above, model Z up). Panels are projected, sorted far to near by the
+front-right-above, with the root face as the floor and the panels folding up from
+it). Panels are projected, sorted far to near by the
 depth of their centroid and drawn in that order (the painter's algorithm), each
 flat-shaded by the angle between its normal and a light that comes from over
 the viewer's left shoulder. A panel seen from its outside side is drawn warm, one
@@ -16,7 +17,7 @@ from xml.sax.saxutils import escape
 
 import numpy as np
 
-from ..geometry import transform_points, unit
+from ..geometry import newell_normals, transform_points, unit
 from .common import face_normals, fmt
 
 OUTSIDE_RGB = np.array([236.0, 196.0, 128.0])
@@ -24,14 +25,17 @@ INSIDE_RGB = np.array([150.0, 172.0, 204.0])
 DEFAULT_VIEW = (1.0, -1.35, 0.95)
 
 
-def camera(direction=DEFAULT_VIEW):
+def camera(direction=DEFAULT_VIEW, up=(0.0, 0.0, 1.0)):
     """Screen axes of an orthographic camera looking toward ``-direction``.
 
     Parameters
     ----------
     direction : (3,) float
-        From the scene toward the camera, in model coordinates (Z up); must not
+        From the scene toward the camera, in a frame whose third axis is ``up``
+        (and whose first is model X, or model Y when ``up`` is along X); must not
         be vertical.
+    up : (3,) float
+        The direction shown as screen up (default model Z).
 
     Returns
     -------
@@ -42,10 +46,31 @@ def camera(direction=DEFAULT_VIEW):
     --------
     >>> (np.round(camera((0.0, -1.0, 0.0)), 12) + 0.0).tolist()
     [[1.0, 0.0, 0.0], [0.0, 0.0, 1.0], [0.0, -1.0, 0.0]]
+
+    Turned upside down (the frame turns half a revolution about model X, so its
+    "front" is model +Y):
+
+    >>> (np.round(camera((0.0, -1.0, 0.0), up=(0.0, 0.0, -1.0)), 12) + 0.0).tolist()
+    [[1.0, 0.0, 0.0], [0.0, 0.0, -1.0], [0.0, 1.0, 0.0]]
     """
-    toward = unit(np.asarray(direction, float))
-    right = unit(np.cross([0.0, 0.0, 1.0], toward))
+    up = unit(np.asarray(up, float))
+    axis = np.eye(3)[0] if abs(up[0]) < 0.9 else np.eye(3)[1]
+    first = unit(axis - (axis @ up) * up)
+    d = np.asarray(direction, float)
+    toward = unit(d[0] * first + d[1] * np.cross(up, first) + d[2] * up)
+    right = unit(np.cross(up, toward))
     return np.array([right, np.cross(toward, right), toward])
+
+
+def panels_up(mech, t_to=1.0):
+    """The direction in which the panels fold away from the root face, (3,) float.
+
+    Positive folds turn panels toward their backs, so for t > 0 the shell forms on
+    the inside of the root face; pictures with this direction up show the root as
+    the floor and the panels rising from it.
+    """
+    normal = unit(newell_normals([mech.flat_faces[mech.root]])[0])
+    return -normal if t_to >= 0 else normal
 
 
 def project(cam, points):

@@ -231,9 +231,10 @@ def build(mech, t_from=0.0, t_to=1.0, frames=41, views=None, clearance=0.0, gap_
 
     # Renders.
     body.append("<h2>Pictures</h2>")
-    body.append("<p>Orthographic view from front-right-above (model Z up), panels drawn far to near. "
+    body.append("<p>Orthographic view from front-right-above with the root panel as the floor, panels drawn "
+                "far to near. "
                 "Warm: a panel's outside face; cool: its inside. Red outline: the panel collides at that t.</p>")
-    cam = render.camera()
+    cam = render.camera(up=render.panels_up(mech, t_to if abs(t_to) >= abs(t_from) else t_from))
     sample_t = np.unique(np.concatenate([np.linspace(t_from, t_to, 9), views]))
     box = render.screen_box(mech, cam, common.poses(mech, sample_t, schedule))
     body.append('<div class="renders">')
