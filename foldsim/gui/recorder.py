@@ -26,40 +26,25 @@ Qt is imported only by the functions that draw; the checks of a clip's options
 bad input before starting a display.
 """
 
-import math
-import os
-import tempfile
 from dataclasses import dataclass
-from fractions import Fraction
 from pathlib import Path
 
 import numpy as np
 
 from ..errors import FoldsimError
+from .caption import _Caption, _qimage, clip_captions, collision_text, draw_overlay, overlay_lines, t_text
+from .clip_options import (FORMATS, MAX_FPS, MAX_SECONDS, MAX_SIDE, MIN_SIDE, ORBIT_DEGREES, check_options,
+                           clip_format, clip_plan, frame_count, orbit_degrees, parse_size)
+from .encoders import _WRITERS, GIF_CELL_BITS, _AtomicTarget, check_target, choose_palette, palette_lookup
+from .framing import MARGIN, _camera, _set_camera, hull_meets_box, plan_camera
 
-FORMATS = {".mp4": "mp4", ".gif": "gif", ".png": "png"}
-"""File suffix to format."""
-
-ORBIT_DEGREES = 40.0
-"""Azimuth turned over a whole clip with ``orbit=True``, centred on the starting view."""
-
-MAX_SIDE = 7680
-"""Largest frame width or height."""
-
-MIN_SIDE = 16
-"""Smallest frame width or height."""
-
-MAX_FPS = {"mp4": 120, "gif": 50}
-"""Highest frame rate per format (GIF players stretch delays under 2/100 s)."""
-
-MAX_SECONDS = 600.0
-"""Longest clip."""
-
-MARGIN = 1.12
-"""Room left around the model when a clip is framed, as a factor on its projected size."""
-
-GIF_CELL_BITS = 5
-"""Bits per channel of the colour grid the GIF palette is chosen and looked up on."""
+__all__ = [  # the recorder's whole interface, including what it takes from its helper modules
+    "FORMATS", "GIF_CELL_BITS", "MARGIN", "MAX_FPS", "MAX_SECONDS", "MAX_SIDE", "MIN_SIDE", "ORBIT_DEGREES",
+    "Cancelled", "ClipInfo", "check_options", "check_target", "choose_palette", "clip_captions", "clip_format",
+    "clip_plan", "collision_text", "draw_overlay", "frame_count", "hull_meets_box", "is_blank", "orbit_degrees",
+    "overlay_lines", "palette_lookup", "parse_size", "plan_camera", "record_clip", "render_frames",
+    "save_screenshot", "t_text",
+]
 
 
 class Cancelled(FoldsimError):
@@ -120,331 +105,6 @@ class ClipInfo:
                        f"({self.collision_frames} frame{'s' if self.collision_frames != 1 else ''})")
 
 
-# ------------------------------------------------------------------ options
-
-
-def clip_format(path):
-    """The format named by a target's suffix.
-
-    Examples
-    --------
-    >>> clip_format("fold.MP4"), clip_format("a/b.gif"), clip_format("shot.png")
-    ('mp4', 'gif', 'png')
-    >>> clip_format("fold.avi")
-    Traceback (most recent call last):
-    ...
-    foldsim.errors.FoldsimError: fold.avi: unknown output format '.avi' (use .mp4, .gif or .png)
-    """
-    suffix = Path(path).suffix.lower()
-    if suffix not in FORMATS:
-        raise FoldsimError(f"{path}: unknown output format {suffix or '(no suffix)'!r} (use .mp4, .gif or .png)")
-    return FORMATS[suffix]
-
-
-def parse_size(text):
-    """``"WIDTHxHEIGHT"`` as a pair of ints.
-
-    Examples
-    --------
-    >>> parse_size("1280x720"), parse_size(" 640 X 480 ")
-    ((1280, 720), (640, 480))
-    >>> parse_size("big")
-    Traceback (most recent call last):
-    ...
-    foldsim.errors.FoldsimError: --size: must be WIDTHxHEIGHT in pixels, like 1280x720, not 'big'
-    """
-    parts = text.strip().lower().split("x")
-    try:
-        if len(parts) != 2:
-            raise ValueError
-        return int(parts[0]), int(parts[1])
-    except ValueError:
-        raise FoldsimError(f"--size: must be WIDTHxHEIGHT in pixels, like 1280x720, not {text!r}") from None
-
-
-def orbit_degrees(orbit):
-    """Azimuth turned over a clip: 0 for False/None, `ORBIT_DEGREES` for True, else the number."""
-    if orbit is None or orbit is False:
-        return 0.0
-    if orbit is True:
-        return ORBIT_DEGREES
-    return float(orbit)
-
-
-def frame_count(seconds, fps):
-    """Frames in a clip: seconds × fps, rounded (at least 1).
-
-    Examples
-    --------
-    >>> frame_count(4, 30), frame_count(0.5, 25), frame_count(0.01, 10)
-    (120, 12, 1)
-    """
-    return max(1, round(seconds * fps))
-
-
-def check_options(fmt, t_from=0.0, t_to=1.0, seconds=4.0, fps=30, size=(1280, 720), orbit=False):
-    """Refuse options a clip cannot be made with (one-line FoldsimError each).
-
-    Parameters
-    ----------
-    fmt : str
-        ``"mp4"``, ``"gif"`` or ``"png"``.
-    t_from, t_to : float
-        Drive values at the first and last frame, each in [-1, 1].
-    seconds : float
-        Length of the clip, more than 0 and at most `MAX_SECONDS`.
-    fps : int
-        Frames per second, a whole number from 1 to `MAX_FPS` of the format.
-    size : (int, int)
-        Width and height, `MIN_SIDE` to `MAX_SIDE`; even for MP4.
-    orbit : bool or float
-        Degrees of orbit, at most 360 either way.
-
-    Raises
-    ------
-    FoldsimError
-
-    Examples
-    --------
-    >>> check_options("mp4", size=(1281, 720))
-    Traceback (most recent call last):
-    ...
-    foldsim.errors.FoldsimError: --size 1281x720: MP4 (H.264, yuv420p) needs an even width and height
-    >>> check_options("gif", fps=60)
-    Traceback (most recent call last):
-    ...
-    foldsim.errors.FoldsimError: --fps 60: must be a whole number from 1 to 50 for GIF
-    """
-    w, h = size
-    for name, value in (("--from", t_from), ("--to", t_to)):
-        if not isinstance(value, (int, float)) or not math.isfinite(value) or not -1.0 <= value <= 1.0:
-            raise FoldsimError(f"{name} {value}: the drive value must be from -1 to 1")
-    if fmt not in MAX_FPS.keys() | {"png"}:
-        raise FoldsimError(f"unknown output format {fmt!r}")
-    if not all(isinstance(v, (int, np.integer)) and not isinstance(v, bool) for v in (w, h)) \
-            or not (MIN_SIDE <= w <= MAX_SIDE and MIN_SIDE <= h <= MAX_SIDE):
-        raise FoldsimError(f"--size {w}x{h}: width and height must be whole numbers from {MIN_SIDE} to {MAX_SIDE}")
-    if fmt == "mp4" and (w % 2 or h % 2):
-        raise FoldsimError(f"--size {w}x{h}: MP4 (H.264, yuv420p) needs an even width and height")
-    if fmt == "png":
-        return
-    top = MAX_FPS[fmt]
-    if isinstance(fps, bool) or not isinstance(fps, (int, np.integer)) or not 1 <= fps <= top:
-        raise FoldsimError(f"--fps {fps}: must be a whole number from 1 to {top} for {fmt.upper()}")
-    if not isinstance(seconds, (int, float)) or not math.isfinite(seconds) or not 0 < seconds <= MAX_SECONDS:
-        raise FoldsimError(f"--seconds {seconds}: must be more than 0 and at most {MAX_SECONDS:g}")
-    degrees = orbit_degrees(orbit)
-    if not math.isfinite(degrees) or abs(degrees) > 360:
-        raise FoldsimError(f"--orbit {degrees:g}: must be at most 360 degrees either way")
-
-
-def clip_plan(t_from, t_to, seconds, fps, orbit=False):
-    """The drive value and camera turn of every frame.
-
-    Parameters
-    ----------
-    t_from, t_to : float
-    seconds : float
-    fps : int
-    orbit : bool or float
-        See `orbit_degrees`.
-
-    Returns
-    -------
-    t : (n,) float
-        From ``t_from`` at the first frame to exactly ``t_to`` at the last.
-    turn : (n,) float
-        Azimuth offsets in degrees from the starting view, from −orbit/2 to +orbit/2.
-
-    Examples
-    --------
-    >>> t, turn = clip_plan(0, 1, 1, 5, orbit=40)
-    >>> t.tolist(), turn.tolist()
-    ([0.0, 0.25, 0.5, 0.75, 1.0], [-20.0, -10.0, 0.0, 10.0, 20.0])
-    """
-    n = frame_count(seconds, fps)
-    degrees = orbit_degrees(orbit)
-    if n == 1:
-        return np.array([float(t_to)]), np.zeros(1)
-    return np.linspace(float(t_from), float(t_to), n), np.linspace(-degrees / 2, degrees / 2, n)
-
-
-# ------------------------------------------------------------------ overlay
-
-
-def collision_text(pairs, shown=3):
-    """The caption's collision line for the colliding face pairs (k, 2).
-
-    Examples
-    --------
-    >>> collision_text(np.zeros((0, 2), int))
-    'no collision'
-    >>> collision_text(np.array([[0, 2]]))
-    'collision: panels 0 and 2'
-    >>> collision_text(np.array([[0, 2], [1, 4], [3, 5], [6, 7]]))
-    'collision: panels 0–2, 1–4, 3–5 and 1 more pair'
-    """
-    pairs = np.asarray(pairs).reshape(-1, 2)
-    if not len(pairs):
-        return "no collision"
-    if len(pairs) == 1:
-        return f"collision: panels {pairs[0, 0]} and {pairs[0, 1]}"
-    text = "collision: panels " + ", ".join(f"{a}–{b}" for a, b in pairs[:shown].tolist())
-    rest = len(pairs) - shown
-    if rest > 0:
-        text += f" and {rest} more pair{'s' if rest != 1 else ''}"
-    return text
-
-
-def overlay_lines(viewport, title=None):
-    """The caption for the view's current state: name, drive value, collision line.
-
-    Parameters
-    ----------
-    viewport : FoldView
-    title : str, optional
-        Default the model's name.
-
-    Returns
-    -------
-    list of str
-        Three lines.
-    """
-    mech = viewport.mech
-    name = title if title is not None else (getattr(mech, "name", None) or "mechanism")
-    return [str(name), t_text(viewport.t), collision_text(viewport.colliding)]
-
-
-def t_text(t):
-    """The caption's drive line, with a true minus sign.
-
-    Examples
-    --------
-    >>> t_text(0.5), t_text(-1), t_text(-0.0)
-    ('t = 0.500', 't = −1.000', 't = 0.000')
-    """
-    t = float(t) + 0.0
-    return f"t = {abs(t):.3f}" if round(t, 3) == 0 or t > 0 else f"t = −{-t:.3f}"
-
-
-def _qimage(rgba):
-    """A QImage viewing an (h, w, 4) uint8 RGBA array (keep the array alive)."""
-    from PySide6 import QtGui
-
-    h, w = rgba.shape[:2]
-    return QtGui.QImage(rgba.data, w, h, 4 * w, QtGui.QImage.Format.Format_RGBA8888)
-
-
-def _font_families():
-    from PySide6 import QtGui
-
-    return QtGui.QFontDatabase.families()
-
-
-class _Caption:
-    """Fonts and sizes of the caption for one frame size (Qt needed)."""
-
-    def __init__(self, size):
-        from PySide6 import QtGui
-
-        if not _font_families():
-            raise FoldsimError("no fonts to write the caption with: install a font package "
-                               "(e.g. sudo apt-get install fonts-dejavu-core) or record with --no-overlay")
-        w, h = size
-        self.px = max(12, round(min(h, 1.25 * w) * 0.03))
-        self.pad = 0.6 * self.px
-        self.regular = QtGui.QFont()
-        self.regular.setPixelSize(self.px)
-        self.bold = QtGui.QFont(self.regular)
-        self.bold.setBold(True)
-        self.dot = 0.55 * self.px
-
-    def fonts(self, colliding):
-        return [self.bold, self.regular, self.bold if colliding else self.regular]
-
-    def box(self, lines, colliding):
-        """(width, height) of the caption's box for these lines."""
-        from PySide6 import QtGui
-
-        metrics = [QtGui.QFontMetricsF(f) for f in self.fonts(colliding)]
-        widths = [m.horizontalAdvance(text) for m, text in zip(metrics, lines)]
-        if colliding:
-            widths[-1] += self.dot + 0.4 * self.px
-        return max(widths) + 2 * self.pad, sum(m.height() for m in metrics) + 1.9 * self.pad
-
-    def corner(self, all_lines, all_colliding):
-        """Width and height from the frame's top-left corner that the widest caption covers, with a gap."""
-        boxes = [self.box(lines, c) for lines, c in zip(all_lines, all_colliding)]
-        return (self.pad + max(b[0] for b in boxes) + self.pad,
-                self.pad + max(b[1] for b in boxes) + self.pad)
-
-
-def draw_overlay(rgba, lines, colliding, box_width=None):
-    """Draw the caption into the top-left corner of a frame.
-
-    A pale rounded box with the model's name (bold), t and the collision line —
-    in the warning red with a red dot when panels collide. Text size follows the
-    frame's size, so it reads the same at any resolution.
-
-    Parameters
-    ----------
-    rgba : (h, w, 4) uint8
-        The frame; not changed.
-    lines : sequence of str
-        `overlay_lines`.
-    colliding : bool
-    box_width : float, optional
-        Width of the box in pixels (a clip keeps one width for all its frames);
-        default: as wide as the text.
-
-    Returns
-    -------
-    (h, w, 4) uint8
-        A new frame with the caption.
-
-    Raises
-    ------
-    FoldsimError
-        Qt finds no font to write with.
-    """
-    from PySide6 import QtCore, QtGui
-
-    from . import palette
-
-    out = np.ascontiguousarray(rgba, dtype=np.uint8).copy()
-    h, w = out.shape[:2]
-    cap = _Caption((w, h))
-    bw, bh = cap.box(lines, colliding)
-    box = QtCore.QRectF(cap.pad, cap.pad, max(bw, box_width or 0.0), bh)
-    image = _qimage(out)
-    painter = QtGui.QPainter(image)
-    try:
-        painter.setRenderHints(QtGui.QPainter.RenderHint.Antialiasing | QtGui.QPainter.RenderHint.TextAntialiasing)
-        edge = QtGui.QColor(*palette.WARNING) if colliding else QtGui.QColor(*palette.OUTLINE, 90)
-        pen = QtGui.QPen(edge)
-        pen.setWidthF(max(1.0, cap.px / 9))
-        painter.setPen(pen)
-        painter.setBrush(QtGui.QColor(255, 255, 255, 235))
-        painter.drawRoundedRect(box, 0.35 * cap.px, 0.35 * cap.px)
-        y = box.top() + cap.pad
-        colours = [palette.LABEL_TEXT, palette.LABEL_TEXT, palette.WARNING if colliding else (70, 90, 80)]
-        for k, (text, font) in enumerate(zip(lines, cap.fonts(colliding))):
-            m = QtGui.QFontMetricsF(font)
-            painter.setFont(font)
-            x = box.left() + cap.pad
-            if k == len(lines) - 1 and colliding:
-                painter.setPen(QtCore.Qt.PenStyle.NoPen)
-                painter.setBrush(QtGui.QColor(*palette.WARNING))
-                painter.drawEllipse(QtCore.QRectF(x, y + (m.height() - cap.dot) / 2, cap.dot, cap.dot))
-                x += cap.dot + 0.4 * cap.px
-            painter.setPen(QtGui.QColor(*colours[k]))
-            painter.drawText(QtCore.QPointF(x, y + m.ascent()), text)
-            y += m.height()
-    finally:
-        painter.end()
-    return out
-
-
 # ------------------------------------------------------------------ frames
 
 
@@ -469,209 +129,6 @@ def _check_not_blank(rgba):
             "the 3D view drew a blank frame (one colour): OpenGL is not drawing here, or the model is out of "
             "view; on Linux check that Mesa and libxcb-glx0 are installed (sudo apt-get install "
             "libgl1-mesa-dri libglx-mesa0 libxcb-glx0)")
-
-
-def _clip_poses(viewport, t_values, chunk=64):
-    """The core's poses (T, F, 4, 4) at each drive value, in chunks."""
-    from ..kinematics import poses_at
-
-    t_values = np.asarray(t_values, dtype=float)
-    return np.concatenate([poses_at(viewport.mech, viewport.schedule, t_values[k:k + chunk])
-                           for k in range(0, len(t_values), chunk)])
-
-
-def _posed_corners(viewport, t_values):
-    """Every panel corner (n, 3), in the model frame, at each drive value (from the core)."""
-    from ..geometry import transform_points
-
-    mech = viewport.mech
-    flat = np.concatenate(mech.flat_faces)
-    owner = np.concatenate([np.full(len(p), f) for f, p in enumerate(mech.flat_faces)])
-    return np.concatenate([transform_points(p[owner], flat) for p in _clip_poses(viewport, t_values)])
-
-
-def clip_captions(viewport, t_values, title=None):
-    """Every frame's caption lines and collision state, from the core, before drawing.
-
-    Returns
-    -------
-    lines : list of list of str
-    colliding : list of bool
-    """
-    from ..analysis.collision import colliding_pairs
-
-    mech = viewport.mech
-    name = title if title is not None else (getattr(mech, "name", None) or "mechanism")
-    lines, colliding = [], []
-    for t, poses in zip(t_values, _clip_poses(viewport, t_values)):
-        pairs = colliding_pairs(mech, poses, pan=viewport.pan)
-        lines.append([str(name), t_text(t), collision_text(pairs)])
-        colliding.append(len(pairs) > 0)
-    return lines, colliding
-
-
-def _eye_axes(viewport):
-    """The camera's right and up directions (3,) in the display frame."""
-    m = np.array(viewport.viewMatrix().data(), dtype=float).reshape(4, 4).T
-    return m[0, :3], m[1, :3]
-
-
-def _fit_region(viewport, points, size, region, margin, distance=None):
-    """Aim the camera (along its line of sight) so that ``points`` fill ``region`` of the frame.
-
-    ``region`` is (x0, y0, x1, y1) in pixels of a frame of ``size``. Without
-    ``distance`` the camera also moves nearer or farther until the points'
-    projected box is ``1 / margin`` of the region; with it, only the centre moves.
-    """
-    from pyqtgraph import Vector
-
-    w, h = size
-    x0, y0, x1, y1 = region
-    if distance is not None:
-        viewport.opts["distance"] = float(distance)
-    for _ in range(12):
-        px = viewport.model_to_pixels(points, w, h)
-        if not np.isfinite(px).all():
-            viewport.opts["distance"] *= 2.0
-            continue
-        lo, hi = px.min(axis=0), px.max(axis=0)
-        if distance is None:
-            factor = max((hi[0] - lo[0]) / (x1 - x0), (hi[1] - lo[1]) / (y1 - y0)) * margin
-            viewport.opts["distance"] *= factor
-        else:
-            factor = 1.0
-        dx, dy = (x0 + x1) / 2 - (lo[0] + hi[0]) / 2, (y0 + y1) / 2 - (lo[1] + hi[1]) / 2
-        per_pixel = 2 * viewport.opts["distance"] * math.tan(math.radians(viewport.opts["fov"]) / 2) / w
-        right, up = _eye_axes(viewport)
-        c = viewport.opts["center"]
-        centre = np.array([c.x(), c.y(), c.z()]) + per_pixel * (-dx * right + dy * up)
-        viewport.opts["center"] = Vector(*centre)
-        if abs(factor - 1.0) < 1e-3 and abs(dx) < 0.25 and abs(dy) < 0.25:
-            break
-    c = viewport.opts["center"]
-    return np.array([c.x(), c.y(), c.z()]), float(viewport.opts["distance"])
-
-
-def hull_meets_box(points, box):
-    """Whether the convex hull of 2D points overlaps an axis-aligned box.
-
-    Parameters
-    ----------
-    points : (n, 2) float
-    box : (x0, y0, x1, y1)
-
-    Examples
-    --------
-    >>> tri = np.array([[0.0, 0.0], [10.0, 0.0], [0.0, 10.0]])
-    >>> hull_meets_box(tri, (6, 6, 9, 9)), hull_meets_box(tri, (4, 4, 9, 9))
-    (False, True)
-    """
-    from scipy.spatial import ConvexHull, QhullError
-
-    pts = np.asarray(points, dtype=float)
-    x0, y0, x1, y1 = box
-    lo, hi = pts.min(axis=0), pts.max(axis=0)
-    if lo[0] >= x1 or lo[1] >= y1 or hi[0] <= x0 or hi[1] <= y0:
-        return False
-    try:
-        hull = pts[ConvexHull(pts).vertices]
-    except (QhullError, ValueError):
-        return True  # flat or tiny: its bounding box overlaps, call it a meet
-    corners = np.array([[x0, y0], [x1, y0], [x1, y1], [x0, y1]], dtype=float)
-    edges = np.roll(hull, -1, axis=0) - hull
-    for normal in np.column_stack([-edges[:, 1], edges[:, 0]]):
-        a, b = hull @ normal, corners @ normal
-        if a.max() <= b.min() or b.max() <= a.min():
-            return False
-    return True
-
-
-def plan_camera(viewport, t_values, turns, size, margin=MARGIN, reserve=None):
-    """Camera of every frame such that the whole clip stays in view.
-
-    From the view's current direction, turned by each frame's offset, the
-    model's shapes over the clip's range of t are fitted into the frame,
-    centred. With ``reserve``, if those shapes would reach into the caption's
-    corner, they are fitted instead into the larger of the parts the caption
-    leaves free (below it, or right of it). The farthest camera distance over
-    the orbit is kept for every frame, so the model does not seem to grow and
-    shrink; the centre is found for each direction.
-
-    Parameters
-    ----------
-    viewport : FoldView
-    t_values, turns : (n,) float
-        `clip_plan`.
-    size : (int, int)
-    margin : float
-    reserve : (float, float), optional
-        Width and height in pixels to keep clear in the top-left corner.
-
-    Returns
-    -------
-    list of dict
-        Per frame: ``center`` (3,), ``distance``, ``azimuth``, ``elevation``.
-        The view's camera is left as it was.
-    """
-    w, h = size
-    saved = _camera(viewport)
-    lo, hi = float(np.min(t_values)), float(np.max(t_values))
-    samples = np.unique(np.concatenate([np.linspace(lo, hi, 13), [t_values[0], t_values[-1]]]))
-    points = _posed_corners(viewport, samples)
-    turns = np.asarray(turns, dtype=float)
-    sample_turns = np.unique(np.linspace(turns.min(), turns.max(), 9 if np.ptp(turns) > 0 else 1))
-    whole = (0.0, 0.0, float(w), float(h))
-
-    def aim(turn, region, distance=None):
-        viewport.opts["azimuth"] = saved["azimuth"] + turn
-        if distance is None:
-            viewport.fit(t_values=samples, margin=margin)
-        return _fit_region(viewport, points, size, region, margin, distance)
-
-    def framing(region):
-        distance = max(aim(turn, region)[1] for turn in sample_turns)
-        centres, clear = [], True
-        for turn in sample_turns:
-            centres.append(aim(turn, region, distance)[0])
-            if reserve is not None:
-                clear &= not hull_meets_box(viewport.model_to_pixels(points, w, h), (0, 0, *reserve))
-        return distance, np.array(centres), clear
-
-    try:
-        distance, centres, clear = framing(whole)
-        if not clear:
-            rw, rh = reserve
-            options = [framing(r) for r in ((0.0, rh, w, h), (rw, 0.0, w, h))
-                       if r[2] - r[0] > w / 4 and r[3] - r[1] > h / 4]
-            if options:
-                distance, centres, _ = min(options, key=lambda o: o[0])
-    finally:
-        _set_camera(viewport, saved)
-    plan = []
-    for turn in turns:
-        centre = [np.interp(turn, sample_turns, centres[:, k]) for k in range(3)]
-        plan.append({"center": np.array(centre), "distance": distance,
-                     "azimuth": saved["azimuth"] + turn, "elevation": saved["elevation"]})
-    return plan
-
-
-def _camera(viewport):
-    c = viewport.opts["center"]
-    return {"center": np.array([c.x(), c.y(), c.z()]), "distance": float(viewport.opts["distance"]),
-            "azimuth": float(viewport.opts["azimuth"]), "elevation": float(viewport.opts["elevation"]),
-            "fitted": getattr(viewport, "_fitted", False)}
-
-
-def _set_camera(viewport, camera):
-    from pyqtgraph import Vector
-
-    viewport.opts["center"] = Vector(*(float(v) for v in camera["center"]))
-    viewport.opts["distance"] = float(camera["distance"])
-    viewport.opts["azimuth"] = float(camera["azimuth"])
-    viewport.opts["elevation"] = float(camera["elevation"])
-    if "fitted" in camera and hasattr(viewport, "_fitted"):
-        viewport._fitted = camera["fitted"]
-    viewport.update()
 
 
 def render_frames(viewport, t_from=0.0, t_to=1.0, seconds=4.0, fps=30, size=(1280, 720), orbit=False,
@@ -751,223 +208,7 @@ def render_frames(viewport, t_from=0.0, t_to=1.0, seconds=4.0, fps=30, size=(128
         _set_camera(viewport, saved)
 
 
-# ------------------------------------------------------------------ writers
-
-
-def check_target(path):
-    """Refuse a target whose folder does not exist (one-line FoldsimError)."""
-    parent = Path(path).parent
-    if not parent.is_dir():
-        raise FoldsimError(f"{path}: cannot write file: folder {parent} does not exist")
-
-
-class _AtomicTarget:
-    """A temporary file beside ``target``, renamed onto it by `commit`, else removed."""
-
-    def __init__(self, target):
-        self.target = Path(target)
-        check_target(self.target)
-        try:
-            fd, name = tempfile.mkstemp(dir=self.target.parent, prefix=f".{self.target.name}.", suffix=".part")
-        except OSError as exc:
-            raise FoldsimError(f"{self.target}: cannot write file: {exc.strerror or exc}") from None
-        os.close(fd)
-        self.path = Path(name)
-
-    def commit(self):
-        umask = os.umask(0)
-        os.umask(umask)
-        os.chmod(self.path, 0o666 & ~umask)
-        try:
-            os.replace(self.path, self.target)
-        except OSError as exc:
-            self.discard()
-            raise FoldsimError(f"{self.target}: cannot write file: {exc.strerror or exc}") from None
-
-    def discard(self):
-        try:
-            self.path.unlink()
-        except FileNotFoundError:
-            pass
-
-
-def _av():
-    try:
-        import av
-    except ImportError:
-        raise FoldsimError("recording MP4 and GIF needs PyAV (pip install av)") from None
-    return av
-
-
-class _Mp4Writer:
-    """H.264 (libx264), yuv420p with BT.709 colour, in an MP4 with the index up front."""
-
-    def __init__(self, path, size, fps):
-        av = _av()
-        from av.video.reformatter import ColorRange, Colorspace
-
-        self._space, self._range, self._full = Colorspace.ITU709, ColorRange.MPEG, ColorRange.JPEG
-        self.container = av.open(str(path), mode="w", format="mp4", container_options={"movflags": "+faststart"})
-        codec = "libx264" if "libx264" in av.codecs_available else "h264"
-        stream = self.container.add_stream(codec, rate=int(fps))
-        stream.width, stream.height = size
-        stream.pix_fmt = "yuv420p"
-        stream.options = {"crf": "18", "preset": "medium", "tune": "animation"}
-        ctx = stream.codec_context
-        ctx.colorspace = ctx.color_primaries = ctx.color_trc = 1  # BT.709
-        ctx.color_range = 1  # limited (MPEG) range
-        self.stream = stream
-        self.frames = 0
-
-    def write(self, rgba):
-        from av.video.frame import VideoFrame
-
-        frame = VideoFrame.from_ndarray(np.ascontiguousarray(rgba[..., :3]), format="rgb24")
-        frame = frame.reformat(format="yuv420p", src_colorspace=self._space, dst_colorspace=self._space,
-                               src_color_range=self._full, dst_color_range=self._range,
-                               dst_color_trc=1, dst_color_primaries=1)
-        frame.pts = self.frames
-        self.frames += 1
-        for packet in self.stream.encode(frame):
-            self.container.mux(packet)
-
-    def close(self):
-        for packet in self.stream.encode():
-            self.container.mux(packet)
-        self.container.close()
-
-    def abort(self):
-        try:
-            self.container.close()
-        except Exception:  # noqa: BLE001 - the file is removed anyway
-            pass
-
-
-def _cells(rgb):
-    """Index of every pixel's cell on the palette grid (`GIF_CELL_BITS` per channel)."""
-    shift = 8 - GIF_CELL_BITS
-    q = (np.asarray(rgb, dtype=np.uint32) >> shift).reshape(-1, 3)
-    return (q[:, 0] << (2 * GIF_CELL_BITS)) | (q[:, 1] << GIF_CELL_BITS) | q[:, 2]
-
-
-def choose_palette(frames, colours=256):
-    """A palette for a set of frames by median cut over their pixels.
-
-    Parameters
-    ----------
-    frames : sequence of (h, w, 3 or 4) uint8
-    colours : int
-
-    Returns
-    -------
-    (k, 3) uint8
-        At most ``colours`` colours, each the mean of the pixels it stands for.
-
-    Examples
-    --------
-    >>> f = np.zeros((2, 2, 3), np.uint8); f[0, 0] = (200, 10, 10); f[1, 1] = (10, 10, 200)
-    >>> sorted(map(tuple, choose_palette([f]).tolist()))
-    [(0, 0, 0), (10, 10, 200), (200, 10, 10)]
-    """
-    n_cells = 1 << (3 * GIF_CELL_BITS)
-    counts = np.zeros(n_cells)
-    sums = np.zeros((n_cells, 3))
-    for frame in frames:
-        rgb = np.asarray(frame)[..., :3].reshape(-1, 3).astype(float)
-        cells = _cells(rgb)
-        counts += np.bincount(cells, minlength=n_cells)
-        for k in range(3):
-            sums[:, k] += np.bincount(cells, weights=rgb[:, k], minlength=n_cells)
-    used = np.flatnonzero(counts)
-    weight = counts[used]
-    mean = sums[used] / weight[:, None]
-    boxes = [np.arange(len(used))]
-    while len(boxes) < colours:
-        # Split the box whose colours spread widest, weighted gently by how many
-        # pixels it holds, so small but distinct marks (a red dot, a yellow line)
-        # keep their own colours.
-        scores = [np.ptp(mean[b], axis=0).max() * math.log2(2 + weight[b].sum()) if len(b) > 1 else -1
-                  for b in boxes]
-        k = int(np.argmax(scores))
-        if scores[k] <= 0:
-            break
-        box = boxes.pop(k)
-        axis = int(np.argmax(np.ptp(mean[box], axis=0)))
-        order = box[np.argsort(mean[box, axis], kind="stable")]
-        cum = np.cumsum(weight[order])
-        cut = int(np.searchsorted(cum, cum[-1] / 2))
-        cut = min(max(cut, 1), len(order) - 1)
-        boxes += [order[:cut], order[cut:]]
-    pal = [np.average(mean[b], axis=0, weights=weight[b]) for b in boxes]
-    return np.clip(np.round(pal), 0, 255).astype(np.uint8)
-
-
-def palette_lookup(pal):
-    """For every cell of the palette grid, the index of the nearest palette colour."""
-    n = 1 << GIF_CELL_BITS
-    step = 1 << (8 - GIF_CELL_BITS)
-    axis = np.arange(n) * step + step / 2 - 0.5
-    grid = np.stack(np.meshgrid(axis, axis, axis, indexing="ij"), axis=-1).reshape(-1, 3)
-    pal = pal.astype(float)
-    out = np.empty(len(grid), np.uint8)
-    for start in range(0, len(grid), 4096):
-        part = grid[start:start + 4096]
-        d = ((part[:, None, :] - pal[None, :, :]) ** 2).sum(axis=-1)
-        out[start:start + 4096] = np.argmin(d, axis=1)
-    # A cell holding a palette colour exactly maps to that colour, not to a neighbour.
-    out[_cells(pal.astype(np.uint8))] = np.arange(len(pal), dtype=np.uint8)
-    return out
-
-
-class _GifWriter:
-    """An animated GIF looping forever, one palette for all frames (set by `set_palette`)."""
-
-    def __init__(self, path, size, fps):
-        av = _av()
-        self.container = av.open(str(path), mode="w", format="gif", container_options={"loop": "0"})
-        stream = self.container.add_stream("gif", rate=int(fps))
-        stream.width, stream.height = size
-        stream.pix_fmt = "pal8"
-        self.stream = stream
-        self.fps = int(fps)
-        self.frames = 0
-        self.argb = None
-        self.lookup = None
-
-    def set_palette(self, pal):
-        argb = np.zeros((256, 4), np.uint8)
-        argb[:, 0] = 255
-        argb[:len(pal), 1:] = pal
-        self.argb = argb
-        self.lookup = palette_lookup(pal)
-
-    def write(self, rgba):
-        from av.video.frame import VideoFrame
-
-        h, w = rgba.shape[:2]
-        index = self.lookup[_cells(rgba[..., :3])].reshape(h, w)
-        frame = VideoFrame.from_ndarray((np.ascontiguousarray(index), self.argb), format="pal8")
-        # The muxer counts in hundredths of a second: rounding each frame's time
-        # (not its delay) keeps the clip's length at frame rates like 30.
-        frame.pts = self.frames
-        frame.time_base = Fraction(1, self.fps)
-        self.frames += 1
-        for packet in self.stream.encode(frame):
-            self.container.mux(packet)
-
-    def close(self):
-        for packet in self.stream.encode():
-            self.container.mux(packet)
-        self.container.close()
-
-    def abort(self):
-        try:
-            self.container.close()
-        except Exception:  # noqa: BLE001 - the file is removed anyway
-            pass
-
-
-_WRITERS = {"mp4": _Mp4Writer, "gif": _GifWriter}
+# ------------------------------------------------------------------ recording
 
 
 def record_clip(viewport, path, t_from=0.0, t_to=1.0, seconds=4.0, fps=30, size=(1280, 720), orbit=False,
@@ -1031,6 +272,7 @@ def record_clip(viewport, path, t_from=0.0, t_to=1.0, seconds=4.0, fps=30, size=
                "overlay": overlay, "fit": fit, "title": title, "samples": samples}
     info = ClipInfo(Path(path), fmt, 0, size, int(fps), float(t_from), float(t_to))
     n = frame_count(seconds, fps)
+    written = False
     try:
         writer = _WRITERS[fmt](target.path, size, fps)
         if fmt == "gif":
@@ -1050,11 +292,12 @@ def record_clip(viewport, path, t_from=0.0, t_to=1.0, seconds=4.0, fps=30, size=
         writer.close()
         writer = None
         target.commit()
-    except BaseException:
-        if writer is not None:
-            writer.abort()
-        target.discard()
-        raise
+        written = True
+    finally:
+        if not written:
+            if writer is not None:
+                writer.abort()
+            target.discard()
     info.frames = n
     return info
 
@@ -1110,6 +353,7 @@ def save_screenshot(viewport, path, size=(1280, 720), t=None, overlay=False, fit
     t = float(viewport.t if t is None else t)
     check_options("png", t, t, size=size)
     target = _AtomicTarget(path)
+    written = False
     try:
         frames = render_frames(viewport, t, t, seconds=1, fps=1, size=size, overlay=overlay, fit=fit,
                                title=title, samples=samples)
@@ -1120,8 +364,10 @@ def save_screenshot(viewport, path, size=(1280, 720), t=None, overlay=False, fit
         if not _qimage(rgba).save(str(target.path), "PNG"):
             raise FoldsimError(f"{path}: cannot write file")
         target.commit()
-    except BaseException:
-        target.discard()
-        raise
+        written = True
+    finally:
+        if not written:
+            target.discard()
     return ClipInfo(Path(path), "png", 1, size, 0, t, t, collision_frames=int(colliding),
                     first_collision_t=t if colliding else None)
+
