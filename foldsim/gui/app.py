@@ -10,6 +10,10 @@ place. The collision sweep over the whole range, large models, new models,
 exports and the stack-up run in worker threads (`sweep`); clips are drawn by
 `recorder` with a progress dialog.
 
+This module assembles the window (layout, menus, drive, selection, status); its
+file commands live in `files`, its background work in `jobs` and what it holds
+about one mechanism in `model`.
+
 ``FOLDSIM_QUIT_AFTER_MS`` in the environment makes `run` quit after that many
 milliseconds (for smoke tests and unattended screenshots).
 """
@@ -21,28 +25,21 @@ from pathlib import Path
 import numpy as np
 from PySide6 import QtCore, QtGui, QtWidgets
 
-from ..analysis.closure import cut_edge_gaps
-from ..analysis.collision import panels
-from ..analysis.report import hinge_table
 from ..commands.app import is_mesh, shape_args
 from ..errors import FoldsimError
-from ..gearing import fold_angles, fold_schedule
-from ..io.mechanism_json import load, save
-from ..kinematics import poses_at
-from ..tolerances import DEFAULT
-from . import palette, recorder
+from ..gearing import fold_angles
+from .files import MAX_RECENT, FileHandling
+from .jobs import Jobs
+from .model import GAP_GRID, Model, error_line, file_stem, label_colors, part_labels
 from .panels import DriveBar, GapModel, GapPlot, HingeModel, make_table
 from .stackup_view import StackupPanel
-from .sweep import CallTask, ReportTask, SweepTask, export_file
-from .tools import ClipDialog, ExportDialog, ShapeDialog, busy_dialog
 from .viewport import FoldView, default_face_colors
+
+__all__ = ["BACKGROUND_BYTES", "DEMO", "GAP_GRID", "MAX_RECENT", "MainWindow", "Model", "error_line",
+           "file_stem", "label_colors", "part_labels", "run"]
 
 DEMO = Path(__file__).resolve().parents[2] / "assets" / "gift-box.mech.json"
 """The model the app opens when started without a file."""
-
-MAX_RECENT = 8
-GAP_GRID = 401
-"""Drive values from -1 to 1 at which the gap plot is computed."""
 
 SIDE_PANEL_MS = 100
 """During playback the tables, the gap plot's cursor and the status follow this often."""
@@ -54,160 +51,7 @@ BACKGROUND_BYTES = 64_000
 """Model files larger than this are read in a worker thread (about 450 panels and up)."""
 
 
-def error_line(exc):
-    """The one line the command line prints for a refused file.
-
-    Examples
-    --------
-    >>> error_line(FoldsimError("box.mech.json: faces[2]: repeats a vertex"))
-    'foldsim: box.mech.json: faces[2]: repeats a vertex'
-    """
-    return f"foldsim: {exc}"
-
-
-def part_labels(part_types, n_faces):
-    """A part-type label per face from a report's ``part_types``, or None.
-
-    Accepts the core's list of groups (each a list of faces; labelled "type 1",
-    "type 2", ... in order), a list of groups as dicts with ``faces`` (and
-    optionally ``name``), a mapping from label to faces, or one label per face.
-    Anything else, or groups that leave a face out, gives None.
-
-    Examples
-    --------
-    >>> part_labels([[0, 2], [1]], 3)
-    ['type 1', 'type 2', 'type 1']
-    >>> part_labels({"x": [1], "y": [0]}, 2)
-    ['y', 'x']
-    >>> part_labels([[0]], 2) is None
-    True
-    """
-    if isinstance(part_types, dict):
-        groups = list(part_types.items())
-    elif isinstance(part_types, list) and part_types and all(isinstance(g, (list, tuple)) for g in part_types):
-        groups = [(f"type {k + 1}", g) for k, g in enumerate(part_types)]
-    elif isinstance(part_types, list) and part_types and all(isinstance(g, dict) for g in part_types):
-        groups = [(g.get("name", f"type {k + 1}"), g.get("faces", [])) for k, g in enumerate(part_types)]
-    elif isinstance(part_types, list) and len(part_types) == n_faces:
-        return [str(p) for p in part_types]
-    else:
-        return None
-    labels = [None] * n_faces
-    for name, faces in groups:
-        for f in faces:
-            if isinstance(f, (int, np.integer)) and 0 <= f < n_faces:
-                labels[f] = str(name)
-    return labels if all(label is not None for label in labels) else None
-
-
-def label_colors(labels):
-    """Colours (F, 3) in [0, 1]: one palette colour per distinct label, in order of first use."""
-    order = {}
-    for label in labels:
-        order.setdefault(label, len(order))
-    return np.array([palette.unit_rgb(palette.PANELS[order[label] % len(palette.PANELS)]) for label in labels])
-
-
-def file_stem(path):
-    """A model file's name without ``.mech.json`` (or its one suffix).
-
-    Examples
-    --------
-    >>> file_stem("a/gift-box.mech.json"), file_stem("cube.stl")
-    ('gift-box', 'cube')
-    """
-    name = Path(path).name
-    return name[:-len(".mech.json")] if name.endswith(".mech.json") else Path(name).stem
-
-
-class Model:
-    """Everything the window shows about one loaded mechanism.
-
-    A model comes from a mechanism file (``path``), or is made from a shape
-    (`from_shape`: ``recipe`` holds the options of `foldsim new`; ``path`` is
-    None until it is saved).
-
-    Attributes
-    ----------
-    path : Path or None
-        The mechanism file, once there is one.
-    source : Path or None
-        The file the model was read or made from (watched for changes).
-    recipe : argparse.Namespace or None
-        How a model made from a shape was made.
-    build_report : dict or None
-        `foldsim new`'s report for a model made from a shape.
-    mech, schedule, pan
-    table : list of dict
-        `foldsim.analysis.report.hinge_table`.
-    t_grid : (T,) float
-        Drive values from -1 to 1 (the last is exactly 1).
-    gaps : (T, E) float
-        Every cut edge's gap over ``t_grid``.
-    labels : list of str or None
-        Part type of every face, once the background report has come in.
-    """
-
-    def __init__(self, path=None, tol=DEFAULT, mech=None, recipe=None, source=None):
-        self.path = Path(path) if path is not None else None
-        self.source = Path(source) if source is not None else self.path
-        self.recipe = recipe
-        self.build_report = None
-        self.mech = load(self.path, tol) if mech is None else mech
-        self.schedule = fold_schedule(self.mech, tol)
-        self.pan = panels(self.mech, tol)
-        self.table = hinge_table(self.mech, self.schedule)
-        self.t_grid = np.linspace(-1.0, 1.0, GAP_GRID)
-        chunks = []
-        for k in range(0, GAP_GRID, 64):
-            poses = poses_at(self.mech, self.schedule, self.t_grid[k:k + 64])
-            chunks.append(cut_edge_gaps(self.mech, poses))
-        self.gaps = np.concatenate(chunks)
-        self.labels = None
-
-    @classmethod
-    def from_shape(cls, recipe, mech=None):
-        """A model made from a built-in solid or a mesh file as `foldsim new` makes it.
-
-        Parameters
-        ----------
-        recipe : argparse.Namespace
-            `foldsim.commands.app.shape_args`.
-        mech : Mechanism, optional
-            Already made from the recipe.
-        """
-        from ..commands.new import build
-
-        report = None
-        if mech is None:
-            mech, report = build(recipe)
-        shape = Path(recipe.shape)
-        model = cls(mech=mech, recipe=recipe, source=shape if is_mesh(shape) or shape.is_file() else None)
-        model.build_report = report
-        if report is not None:
-            model.labels = part_labels(report.get("part_types"), mech.n_faces)
-        return model
-
-    def name(self):
-        """What the window calls the model."""
-        if self.mech.name:
-            return self.mech.name
-        return self.source.name if self.source is not None else "new model"
-
-    def default_stem(self):
-        """A file name (no suffix) for saving or exporting the model."""
-        if self.path is not None:
-            return file_stem(self.path)
-        if self.source is not None:
-            return file_stem(self.source)
-        return "".join(c if c.isalnum() or c in "-_" else "-" for c in self.name()) or "model"
-
-    def folder(self):
-        """The folder of the model's file, or the current one."""
-        return self.source.parent if self.source is not None else Path.cwd()
-
-
-class MainWindow(QtWidgets.QMainWindow):
+class MainWindow(FileHandling, Jobs, QtWidgets.QMainWindow):
     """The app's window; `open_path` loads a model into it."""
 
     def __init__(self, settings=None):
@@ -367,33 +211,7 @@ class MainWindow(QtWidgets.QMainWindow):
         self._action(drive, "Closed the other way (t = −1)", lambda: self.drive.set_t(-1.0), "Shift+End")
         self._refresh_recent()
 
-    def _refresh_recent(self):
-        self.recent_menu.clear()
-        for path in self.recent_files():
-            action = self.recent_menu.addAction(path)
-            action.triggered.connect(lambda _=False, p=path: self.open_path(p))
-        self.recent_menu.setEnabled(bool(self.recent_files()))
-
-    def recent_files(self):
-        """Recently opened files, newest first."""
-        value = self.settings.value("recent", [])
-        return [value] if isinstance(value, str) else list(value or [])
-
-    def _remember(self, path):
-        path = str(Path(path).resolve())
-        recent = [path] + [p for p in self.recent_files() if p != path]
-        self.settings.setValue("recent", recent[:MAX_RECENT])
-        self._refresh_recent()
-
     # ------------------------------------------------------------------ files
-
-    def open_dialog(self):
-        start = str(self.model.folder()) if self.model else ""
-        path, _ = QtWidgets.QFileDialog.getOpenFileName(
-            self, "Open mechanism or mesh", start,
-            "Mechanisms and meshes (*.mech.json *.json *.obj *.off *.stl *.ply);;All files (*)")
-        if path:
-            self.open_path(path)
 
     def open_path(self, path, keep_view=False):
         """Load a model file and show it; on a bad file show the error and keep the old model.
@@ -420,308 +238,6 @@ class MainWindow(QtWidgets.QMainWindow):
         self._show_model(model, keep_view)
         self._remember(path)
         return True
-
-    def shape_dialog(self):
-        """File ▸ New from shape…"""
-        box = ShapeDialog(self.model.folder() if self.model else "", self)
-        box.accepted.connect(lambda box=box: self._shape_chosen(box))
-        box.finished.connect(box.deleteLater)
-        self.dialog = box
-        box.open()
-        return box
-
-    def _shape_chosen(self, box):
-        try:
-            recipe = box.recipe()
-        except FoldsimError as exc:
-            self.show_error(error_line(exc))
-            return
-        self.open_shape(recipe, remember=Path(recipe.shape) if box.use_mesh.isChecked() else None)
-
-    def open_shape(self, recipe, keep_view=False, remember=None, built=None):
-        """Make a model from a shape as `foldsim new` does (in the background) and show it.
-
-        Parameters
-        ----------
-        recipe : argparse.Namespace
-            `foldsim.commands.app.shape_args`.
-        keep_view : bool
-        remember : Path, optional
-            A mesh file to add to the recent files.
-        built : Mechanism, optional
-            Already made from the recipe: shown at once.
-        """
-        if built is not None:
-            self._show_model(Model.from_shape(recipe, built), keep_view)
-            if remember is not None:
-                self._remember(remember)
-            return True
-        name = Path(recipe.shape).name
-        return self._load_in_background(lambda: Model.from_shape(recipe), f"Unfolding and gearing {name}…",
-                                        keep_view, remember)
-
-    def loading(self):
-        """Whether a model is being read or made in the background."""
-        return self.load_task is not None
-
-    def _load_in_background(self, make, text, keep_view, remember):
-        self.cancel_load()
-        task = CallTask(lambda task: make())
-        dialog = busy_dialog(self, text)
-        dialog.canceled.connect(lambda task=task: self.cancel_load(task))
-        task.signals.finished.connect(lambda model, task=task: self._loaded(task, model, keep_view, remember))
-        task.signals.failed.connect(lambda message, task=task: self._load_failed(task, message))
-        task.signals.cancelled.connect(lambda task=task: self._load_ended(task))
-        self.load_task, self.load_dialog = task, dialog
-        self.tool_pool.start(task)
-        return True
-
-    def cancel_load(self, task=None):
-        """Stop waiting for a model being read or made; the shown model stays."""
-        if self.load_task is not None and task in (None, self.load_task):
-            self.load_task.cancel()
-            self._load_ended(self.load_task)
-            self.statusBar().showMessage("Stopped; the model shown stays", 5000)
-
-    def _load_ended(self, task):
-        if task is not self.load_task:
-            return False
-        self.load_task = None
-        dialog, self.load_dialog = self.load_dialog, None
-        if dialog is not None:
-            dialog.cancel()
-            dialog.deleteLater()
-        return True
-
-    def _loaded(self, task, model, keep_view, remember):
-        if task is not self.load_task:
-            return
-        if self.recording:
-            QtCore.QTimer.singleShot(200, lambda: self._loaded(task, model, keep_view, remember))
-            return
-        self._load_ended(task)
-        self._show_model(model, keep_view)
-        if remember is not None:
-            self._remember(remember)
-        report = model.build_report
-        if report is not None:
-            self.statusBar().showMessage(
-                f"made {model.name()}: {report['faces']} panels, {len(report['couplings'])} gear pairs, "
-                f"degrees of freedom {report['dof']}; not saved yet", 10000)
-
-    def _load_failed(self, task, message):
-        if not self._load_ended(task):
-            return
-        self.show_error(error_line(message))
-        if self.model is not None:
-            self._watch(self.model.source)
-
-    def reload(self, auto=False):
-        """Read the current model's file again, keeping t, the camera and the selection.
-
-        A model made from a shape is made again (from its mesh file, which may
-        have changed).
-        """
-        if self.model is None:
-            return False
-        if auto and self.recording:
-            self.reload_timer.start()
-            return False
-        path = self.model.path
-        if path is None:
-            if self.model.recipe is None:
-                return False
-            return self.open_shape(self.model.recipe, keep_view=True)
-        if not path.exists():
-            self._watch(path)
-            if not auto:
-                self.show_error(error_line(FoldsimError(f"{path}: cannot read file: No such file or directory")))
-            return False
-        ok = self.open_path(path, keep_view=True)
-        if not ok:
-            self._watch(path)
-        return ok
-
-    def _watch(self, path):
-        files = self.watcher.files()
-        if files:
-            self.watcher.removePaths(files)
-        if path is not None and Path(path).exists():
-            self.watcher.addPath(str(path))
-
-    def _file_changed(self, path):
-        if self.model is not None and self.model.source is not None and Path(path) == self.model.source:
-            self.reload_timer.start()
-
-    def save(self):
-        if self.model is None:
-            return
-        if self.model.path is None:
-            self.save_as()
-        else:
-            self._write(self.model.path)
-
-    def save_as(self):
-        if self.model is None:
-            return
-        start = self.model.path or self.model.folder() / f"{self.model.default_stem()}.mech.json"
-        path, _ = QtWidgets.QFileDialog.getSaveFileName(self, "Save mechanism as", str(start),
-                                                        "Mechanisms (*.mech.json)")
-        if path:
-            self.save_to(path)
-
-    def save_to(self, path):
-        """Write the model to a mechanism file, which becomes the model's file."""
-        if self._write(Path(path)):
-            self.model.path = self.model.source = Path(path)
-            self.model.recipe = None
-            self._watch(path)
-            self._remember(path)
-            self._update_title()
-
-    def _write(self, path):
-        try:
-            self.watcher.blockSignals(True)
-            save(self.model.mech, path)
-        except OSError as exc:
-            self.show_error(error_line(FoldsimError(f"{path}: cannot write file: {exc.strerror or exc}")))
-            return False
-        finally:
-            self.watcher.blockSignals(False)
-            self._watch(self.model.source)
-        return True
-
-    # ---------------------------------------------------------------- exports
-
-    def export_dialog(self):
-        """File ▸ Export…"""
-        if self.model is None:
-            return None
-        start = self.model.folder() / f"{self.model.default_stem()}.glb"
-        box = ExportDialog(str(start), t_now=self.view.t, units=self.model.mech.units, parent=self)
-        box.accepted.connect(lambda box=box: self._export_chosen(box))
-        box.finished.connect(box.deleteLater)
-        self.dialog = box
-        box.open()
-        return box
-
-    def _export_chosen(self, box):
-        try:
-            options = box.options()
-        except FoldsimError as exc:
-            self.show_error(error_line(exc))
-            return
-        self.export_to(box.target(), **options)
-
-    def exporting(self):
-        return self.export_task is not None
-
-    def export_to(self, path, **options):
-        """Export the model through `foldsim.export.export` in the background.
-
-        Parameters are those of `foldsim.export.export`. The result line goes to
-        the status bar; a refusal to a dialog.
-        """
-        if self.model is None:
-            return None
-        self.cancel_export()
-        mech, path = self.model.mech, Path(path)
-        task = CallTask(lambda task: export_file(mech, path, options, task))
-        dialog = busy_dialog(self, f"Writing {path.name}…")
-        dialog.canceled.connect(lambda task=task: self.cancel_export(task))
-        task.signals.finished.connect(lambda line, task=task: self._export_ended(task, line))
-        task.signals.failed.connect(lambda message, task=task: self._export_ended(task, error=message))
-        task.signals.cancelled.connect(lambda task=task: self._export_ended(task))
-        self.export_task, self.export_progress = task, dialog
-        self.tool_pool.start(task)
-        return task
-
-    def cancel_export(self, task=None):
-        """Stop an export: nothing is written (an old file of that name stays whole)."""
-        if self.export_task is not None and task in (None, self.export_task):
-            self.export_task.cancel()
-            self._export_ended(self.export_task)
-            self.statusBar().showMessage("Export stopped; nothing was written", 5000)
-
-    def _export_ended(self, task, line=None, error=None):
-        if task is not self.export_task:
-            return
-        self.export_task = None
-        dialog, self.export_progress = self.export_progress, None
-        if dialog is not None:
-            dialog.cancel()
-            dialog.deleteLater()
-        if line:
-            self.statusBar().showMessage(line, 10000)
-        if error:
-            self.show_error(error_line(error))
-
-    # --------------------------------------------------------- clips and stills
-
-    def save_image(self):
-        """File ▸ Save screenshot…: one PNG of the view (by default twice its size, as shown)."""
-        return self.clip_dialog(still=True)
-
-    def clip_dialog(self, still=False):
-        """File ▸ Record clip… (or, with ``still``, Save screenshot…)."""
-        if self.model is None:
-            return None
-        suffix = ".png" if still else ".mp4"
-        size = (self.view.width() * 2, self.view.height() * 2) if still else (1280, 720)
-        start = self.model.folder() / f"{self.model.default_stem()}{suffix}"
-        box = ClipDialog(str(start), size=size, still=still, t_now=self.view.t, parent=self)
-        box.accepted.connect(lambda box=box: self.record(box.target(), **box.options()))
-        box.finished.connect(box.deleteLater)
-        self.dialog = box
-        box.open()
-        return box
-
-    def record(self, path, **options):
-        """Write a clip (MP4, GIF) or a still (PNG) of the view with `recorder`.
-
-        The frames are drawn by the view's GL context, which lives on this
-        thread, so the recording runs here under a progress dialog whose Cancel
-        stops it between frames (nothing is written then).
-
-        Returns
-        -------
-        recorder.ClipInfo or None
-        """
-        if self.model is None:
-            return None
-        self.drive.play(False)
-        progress = QtWidgets.QProgressDialog(f"Recording {Path(path).name}…", "Cancel", 0, 0, self)
-        progress.setWindowTitle("foldsim")
-        progress.setWindowModality(QtCore.Qt.WindowModality.WindowModal)
-        progress.setMinimumDuration(0)
-        progress.setAutoClose(False)
-        progress.setAutoReset(False)
-
-        def step(done, total):
-            progress.setMaximum(total)
-            progress.setValue(done)
-            QtWidgets.QApplication.processEvents()
-
-        self.recording = True
-        info = None
-        try:
-            QtWidgets.QApplication.processEvents()
-            if recorder.clip_format(path) == "png":
-                info = recorder.save_screenshot(self.view, path, **options)
-            else:
-                info = recorder.record_clip(self.view, path, progress=step, cancel=progress.wasCanceled,
-                                            **options)
-        except recorder.Cancelled as exc:
-            self.statusBar().showMessage(str(exc), 5000)
-        except FoldsimError as exc:
-            self.show_error(error_line(exc))
-        finally:
-            self.recording = False
-            progress.cancel()
-            progress.deleteLater()
-        if info is not None:
-            self.statusBar().showMessage(info.summary(), 10000)
-        return info
 
     def show_error(self, message):
         """Tell the user about a refused file in a dialog (non-blocking) and the status bar."""
@@ -781,22 +297,6 @@ class MainWindow(QtWidgets.QMainWindow):
         if model.labels is None:
             self.start_report()
         self.start_sweep()
-
-    def start_report(self):
-        """Ask for the check report (part types) in the background."""
-        model = self.model
-        task = ReportTask(model.mech)
-        task.signals.finished.connect(lambda report, task=task, model=model: self._report_done(model, report))
-        task.signals.failed.connect(lambda message: self.statusBar().showMessage(error_line(message), 10000))
-        self.report_task = task
-        self.pool.start(task)
-
-    def _report_done(self, model, report):
-        if model is not self.model:
-            return
-        model.labels = part_labels(report.get("part_types"), model.mech.n_faces)
-        self._part_types_ready(model)
-
     def _part_types_ready(self, model):
         have = model.labels is not None
         self.color_by_part.setEnabled(have)
@@ -833,53 +333,6 @@ class MainWindow(QtWidgets.QMainWindow):
         else:
             name = f"{self.model.name()} (not saved)"
         self.setWindowTitle(f"{name} — foldsim" if name else "foldsim")
-
-    # ------------------------------------------------------------------ sweep
-
-    def start_sweep(self):
-        """Start the collision sweep over [-1, 1] for the current model in the background."""
-        model = self.model
-        task = SweepTask(model.mech, model.schedule, model.pan)
-        task.signals.progress.connect(lambda done, total, found, task=task: self._sweep_progress(task, done, total, found))
-        task.signals.finished.connect(lambda found, task=task: self._sweep_done(task, found))
-        task.signals.cancelled.connect(lambda task=task: self._sweep_stopped(task))
-        task.signals.failed.connect(lambda message, task=task: self._sweep_stopped(task, message))
-        self.sweep = task
-        self.drive.show_progress((0, len(task.edges) - 1))
-        self.pool.start(task)
-
-    def cancel_sweep(self):
-        """Stop a running sweep (what it found so far stays on the strip)."""
-        if self.sweep is not None:
-            self.sweep.cancel()
-            self.drive.show_progress(None)
-            self.sweep = None
-
-    def sweeping(self):
-        return self.sweep is not None
-
-    def _sweep_progress(self, task, done, total, found):
-        if task is not self.sweep:
-            return
-        self.intervals = found
-        self.drive.strip.set_intervals(found, (task.edges[0], task.edges[done]))
-        self.drive.show_progress((done, total))
-
-    def _sweep_done(self, task, found):
-        if task is not self.sweep:
-            return
-        self.intervals = found
-        self.drive.strip.set_intervals(found, (task.edges[0], task.edges[-1]))
-        self.drive.show_progress(None)
-        self.sweep = None
-        self._update_status()
-
-    def _sweep_stopped(self, task, message=None):
-        if task is self.sweep:
-            self.sweep = None
-            self.drive.show_progress(None)
-        if message:
-            self.statusBar().showMessage(error_line(message), 10000)
 
     # ------------------------------------------------------------------ drive
 

@@ -1,0 +1,218 @@
+"""The app's work beside the model on show: sweep, check report, exports and recordings.
+
+`Jobs` is a part of `app.MainWindow`. The collision sweep over the whole range and
+the check report (for part types) run in the window's ``pool``; exports run in its
+``tool_pool`` under a busy dialog whose Cancel writes nothing; clips and stills are
+drawn by `recorder` on the GUI thread (the view's GL context lives there) under a
+progress dialog.
+"""
+
+from pathlib import Path
+
+from PySide6 import QtCore, QtWidgets
+
+from ..errors import FoldsimError
+from . import recorder
+from .model import error_line, part_labels
+from .sweep import CallTask, ReportTask, SweepTask, export_file
+from .tools import ClipDialog, ExportDialog, busy_dialog
+
+
+class Jobs:
+    """The main window's background and long-running work (a mixin of `app.MainWindow`)."""
+
+    # ---------------------------------------------------------------- exports
+
+    def export_dialog(self):
+        """File ▸ Export…"""
+        if self.model is None:
+            return None
+        start = self.model.folder() / f"{self.model.default_stem()}.glb"
+        box = ExportDialog(str(start), t_now=self.view.t, units=self.model.mech.units, parent=self)
+        box.accepted.connect(lambda box=box: self._export_chosen(box))
+        box.finished.connect(box.deleteLater)
+        self.dialog = box
+        box.open()
+        return box
+
+    def _export_chosen(self, box):
+        try:
+            options = box.options()
+        except FoldsimError as exc:
+            self.show_error(error_line(exc))
+            return
+        self.export_to(box.target(), **options)
+
+    def exporting(self):
+        return self.export_task is not None
+
+    def export_to(self, path, **options):
+        """Export the model through `foldsim.export.export` in the background.
+
+        Parameters are those of `foldsim.export.export`. The result line goes to
+        the status bar; a refusal to a dialog.
+        """
+        if self.model is None:
+            return None
+        self.cancel_export()
+        mech, path = self.model.mech, Path(path)
+        task = CallTask(lambda task: export_file(mech, path, options, task))
+        dialog = busy_dialog(self, f"Writing {path.name}…")
+        dialog.canceled.connect(lambda task=task: self.cancel_export(task))
+        task.signals.finished.connect(lambda line, task=task: self._export_ended(task, line))
+        task.signals.failed.connect(lambda message, task=task: self._export_ended(task, error=message))
+        task.signals.cancelled.connect(lambda task=task: self._export_ended(task))
+        self.export_task, self.export_progress = task, dialog
+        self.tool_pool.start(task)
+        return task
+
+    def cancel_export(self, task=None):
+        """Stop an export: nothing is written (an old file of that name stays whole)."""
+        if self.export_task is not None and task in (None, self.export_task):
+            self.export_task.cancel()
+            self._export_ended(self.export_task)
+            self.statusBar().showMessage("Export stopped; nothing was written", 5000)
+
+    def _export_ended(self, task, line=None, error=None):
+        if task is not self.export_task:
+            return
+        self.export_task = None
+        dialog, self.export_progress = self.export_progress, None
+        if dialog is not None:
+            dialog.cancel()
+            dialog.deleteLater()
+        if line:
+            self.statusBar().showMessage(line, 10000)
+        if error:
+            self.show_error(error_line(error))
+
+    # --------------------------------------------------------- clips and stills
+
+    def save_image(self):
+        """File ▸ Save screenshot…: one PNG of the view (by default twice its size, as shown)."""
+        return self.clip_dialog(still=True)
+
+    def clip_dialog(self, still=False):
+        """File ▸ Record clip… (or, with ``still``, Save screenshot…)."""
+        if self.model is None:
+            return None
+        suffix = ".png" if still else ".mp4"
+        size = (self.view.width() * 2, self.view.height() * 2) if still else (1280, 720)
+        start = self.model.folder() / f"{self.model.default_stem()}{suffix}"
+        box = ClipDialog(str(start), size=size, still=still, t_now=self.view.t, parent=self)
+        box.accepted.connect(lambda box=box: self.record(box.target(), **box.options()))
+        box.finished.connect(box.deleteLater)
+        self.dialog = box
+        box.open()
+        return box
+
+    def record(self, path, **options):
+        """Write a clip (MP4, GIF) or a still (PNG) of the view with `recorder`.
+
+        The frames are drawn by the view's GL context, which lives on this
+        thread, so the recording runs here under a progress dialog whose Cancel
+        stops it between frames (nothing is written then).
+
+        Returns
+        -------
+        recorder.ClipInfo or None
+        """
+        if self.model is None:
+            return None
+        self.drive.play(False)
+        progress = QtWidgets.QProgressDialog(f"Recording {Path(path).name}…", "Cancel", 0, 0, self)
+        progress.setWindowTitle("foldsim")
+        progress.setWindowModality(QtCore.Qt.WindowModality.WindowModal)
+        progress.setMinimumDuration(0)
+        progress.setAutoClose(False)
+        progress.setAutoReset(False)
+
+        def step(done, total):
+            progress.setMaximum(total)
+            progress.setValue(done)
+            QtWidgets.QApplication.processEvents()
+
+        self.recording = True
+        info = None
+        try:
+            QtWidgets.QApplication.processEvents()
+            if recorder.clip_format(path) == "png":
+                info = recorder.save_screenshot(self.view, path, **options)
+            else:
+                info = recorder.record_clip(self.view, path, progress=step, cancel=progress.wasCanceled,
+                                            **options)
+        except recorder.Cancelled as exc:
+            self.statusBar().showMessage(str(exc), 5000)
+        except FoldsimError as exc:
+            self.show_error(error_line(exc))
+        finally:
+            self.recording = False
+            progress.cancel()
+            progress.deleteLater()
+        if info is not None:
+            self.statusBar().showMessage(info.summary(), 10000)
+        return info
+
+    # ----------------------------------------------------------------- report
+
+    def start_report(self):
+        """Ask for the check report (part types) in the background."""
+        model = self.model
+        task = ReportTask(model.mech)
+        task.signals.finished.connect(lambda report, task=task, model=model: self._report_done(model, report))
+        task.signals.failed.connect(lambda message: self.statusBar().showMessage(error_line(message), 10000))
+        self.report_task = task
+        self.pool.start(task)
+
+    def _report_done(self, model, report):
+        if model is not self.model:
+            return
+        model.labels = part_labels(report.get("part_types"), model.mech.n_faces)
+        self._part_types_ready(model)
+
+    # ------------------------------------------------------------------ sweep
+
+    def start_sweep(self):
+        """Start the collision sweep over [-1, 1] for the current model in the background."""
+        model = self.model
+        task = SweepTask(model.mech, model.schedule, model.pan)
+        task.signals.progress.connect(lambda done, total, found, task=task: self._sweep_progress(task, done, total, found))
+        task.signals.finished.connect(lambda found, task=task: self._sweep_done(task, found))
+        task.signals.cancelled.connect(lambda task=task: self._sweep_stopped(task))
+        task.signals.failed.connect(lambda message, task=task: self._sweep_stopped(task, message))
+        self.sweep = task
+        self.drive.show_progress((0, len(task.edges) - 1))
+        self.pool.start(task)
+
+    def cancel_sweep(self):
+        """Stop a running sweep (what it found so far stays on the strip)."""
+        if self.sweep is not None:
+            self.sweep.cancel()
+            self.drive.show_progress(None)
+            self.sweep = None
+
+    def sweeping(self):
+        return self.sweep is not None
+
+    def _sweep_progress(self, task, done, total, found):
+        if task is not self.sweep:
+            return
+        self.intervals = found
+        self.drive.strip.set_intervals(found, (task.edges[0], task.edges[done]))
+        self.drive.show_progress((done, total))
+
+    def _sweep_done(self, task, found):
+        if task is not self.sweep:
+            return
+        self.intervals = found
+        self.drive.strip.set_intervals(found, (task.edges[0], task.edges[-1]))
+        self.drive.show_progress(None)
+        self.sweep = None
+        self._update_status()
+
+    def _sweep_stopped(self, task, message=None):
+        if task is self.sweep:
+            self.sweep = None
+            self.drive.show_progress(None)
+        if message:
+            self.statusBar().showMessage(error_line(message), 10000)
