@@ -409,26 +409,25 @@ def collision_intervals(mech, schedule, t_from=0.0, t_to=1.0, clearance=0.0, tol
     cand = _swept_candidates(mech, pan, ev, grid, poses)
     pairs = cand[:, 1:]
     t0, t1 = grid[cand[:, 0]], grid[cand[:, 0] + 1]
-    need = ev.rates(pairs) * (t1 - t0)
-    sep0, hit0 = ev.evaluate(t0, pairs, need)
-    sep1, hit1 = ev.evaluate(t1, pairs, need)
+    rate = ev.rates(pairs)
+    sep0, hit0 = ev.evaluate(t0, pairs, rate * (t1 - t0))
+    sep1, hit1 = ev.evaluate(t1, pairs, rate * (t1 - t0))
     found = []
     resolution = tol.t_resolution / 2
     total = float((t1 - t0).sum()) or 1.0
     while len(pairs):
-        rate = ev.rates(pairs)
         both = hit0 & hit1
         found.append(np.column_stack([pairs[both], t0[both], t1[both]]))
         for hit, t in ((hit0 & ~hit1, t0), (hit1 & ~hit0, t1)):
             found.append(np.column_stack([pairs[hit], t[hit], t[hit]]))
         open_ = ~both & (sep0 + sep1 <= rate * (t1 - t0)) & (t1 - t0 > resolution)
-        pairs, t0, t1 = pairs[open_], t0[open_], t1[open_]
+        pairs, t0, t1, rate = pairs[open_], t0[open_], t1[open_], rate[open_]
         sep0, hit0, sep1, hit1 = sep0[open_], hit0[open_], sep1[open_], hit1[open_]
         if progress is not None:
             progress(1.0 - float((t1 - t0).sum()) / total)
         mid = 0.5 * (t0 + t1)
-        sep_m, hit_m = ev.evaluate(mid, pairs, rate[open_] * (mid - t0))
-        pairs = np.concatenate([pairs, pairs])
+        sep_m, hit_m = ev.evaluate(mid, pairs, rate * (mid - t0))
+        pairs, rate = np.concatenate([pairs, pairs]), np.concatenate([rate, rate])
         t0, t1 = np.concatenate([t0, mid]), np.concatenate([mid, t1])
         sep0, sep1 = np.concatenate([sep0, sep_m]), np.concatenate([sep_m, sep1])
         hit0, hit1 = np.concatenate([hit0, hit_m]), np.concatenate([hit_m, hit1])
