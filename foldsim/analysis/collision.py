@@ -22,7 +22,7 @@ resolution. The separation is
 
 Candidate pairs per interval come from sweep-and-prune on boxes that contain each
 panel's whole sweep over the interval (the boxes at both ends, grown by half the
-distance the panel can travel in it).
+distance the panel can travel in it, and by half the clearance).
 """
 
 from dataclasses import dataclass
@@ -356,10 +356,14 @@ def _face_boxes(pan, poses):
 
 
 def _swept_candidates(mech, pan, ev, grid, poses):
-    """Candidate (interval, a, b) rows from sweep-and-prune on swept boxes."""
+    """Candidate (interval, a, b) rows from sweep-and-prune on swept boxes.
+
+    Each box is grown by half the clearance as well, so two panels nearer than the
+    clearance are candidates even when their boxes do not overlap.
+    """
     lo, hi = _face_boxes(pan, poses)
     n = mech.n_faces
-    grow = (ev.speed[None, :] * np.diff(grid)[:, None] / 2)[..., None]
+    grow = (ev.speed[None, :] * np.diff(grid)[:, None] / 2 + ev.clearance / 2)[..., None]
     swept_lo = np.minimum(lo[:-1], lo[1:]) - grow
     swept_hi = np.maximum(hi[:-1], hi[1:]) + grow
     rows = broadphase.box_pairs_batched(swept_lo, swept_hi)
