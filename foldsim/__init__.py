@@ -25,7 +25,7 @@ __all__ = [
 
 
 def check(mech, **options):
-    """Run every check on a mechanism; see `foldsim.analysis.report.check`."""
-    from .analysis.report import check as _check
+    """Run every check on a mechanism; see `foldsim.report.check`."""
+    from .report import check as _check
 
     return _check(mech, **options)

@@ -23,7 +23,7 @@ pytest.importorskip("pyqtgraph")
 from PySide6 import QtCore, QtGui  # noqa: E402
 
 from foldsim import cli, load  # noqa: E402
-from foldsim.analysis.report import check  # noqa: E402
+from foldsim.report import check  # noqa: E402
 from foldsim.gui import app as app_module  # noqa: E402
 from foldsim.gui.app import DEMO, MainWindow  # noqa: E402
 from foldsim.stackup import stackup  # noqa: E402

@@ -25,7 +25,7 @@ from pathlib import Path
 import numpy as np
 from PySide6 import QtCore, QtGui, QtWidgets
 
-from ..commands.app import is_mesh, shape_args
+from ..design import is_mesh, shape_args
 from ..errors import FoldsimError
 from ..gearing import fold_angles
 from .files import MAX_RECENT, FileHandling

@@ -75,7 +75,7 @@ class FileHandling:
         Parameters
         ----------
         recipe : argparse.Namespace
-            `foldsim.commands.app.shape_args`.
+            `foldsim.design.shape_args`.
         keep_view : bool
         remember : Path, optional
             A mesh file to add to the recent files.

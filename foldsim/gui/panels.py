@@ -388,7 +388,7 @@ class HingeModel(_TableModel):
         self.now = np.zeros(0)
 
     def set_table(self, table, mech, schedule):
-        """Fill from `foldsim.analysis.report.hinge_table` rows and the schedule."""
+        """Fill from `foldsim.report.hinge_table` rows and the schedule."""
         drive_rate = schedule.rates[mech.drive]
         rows = []
         for row in table:

@@ -21,7 +21,7 @@ import numpy as np
 from PySide6 import QtCore
 
 from ..analysis.collision import collision_intervals
-from ..analysis.report import check
+from ..report import check
 from ..errors import FoldsimError
 from ..tolerances import DEFAULT
 
@@ -131,7 +131,7 @@ class ReportSignals(QtCore.QObject):
 
 
 class ReportTask(QtCore.QRunnable):
-    """`foldsim.analysis.report.check` over no drive range (the sweep covers collisions).
+    """`foldsim.report.check` over no drive range (the sweep covers collisions).
 
     Parameters
     ----------

@@ -10,7 +10,7 @@ from pathlib import Path
 
 from PySide6 import QtCore, QtWidgets
 
-from ..commands.app import MESH_SUFFIXES, shape_args
+from ..design import MESH_SUFFIXES, shape_args
 from ..errors import FoldsimError
 
 EXPORT_KINDS = (
@@ -284,7 +284,7 @@ class ExportDialog(_FormDialog):
 class ShapeDialog(_FormDialog):
     """File ▸ New from shape…: a built-in solid or a mesh file, the net and the gears.
 
-    `recipe` gives the options of `foldsim new` (`foldsim.commands.new.build`).
+    `recipe` gives the options of `foldsim new` (`foldsim.design.build`).
     """
 
     def __init__(self, folder="", parent=None):
