@@ -113,12 +113,12 @@ def test_the_check_sees_upward_imports_at_any_depth():
     # Common practice: a guard is tested on an input it must reject.
     source = ("from ..geometry import unit\n"
               "def f():\n"
-              "    from ..gui import palette\n"
+              "    from ..gui.view import palette\n"
               "    import foldsim.commands.check\n"
               "    from . import triangles\n")
     found = upward_imports(source, "foldsim.analysis.example")
     assert [(line, target) for line, target, _, _ in found] == [
-        (3, "foldsim.gui.palette"), (4, "foldsim.commands.check")]
+        (3, "foldsim.gui.view.palette"), (4, "foldsim.commands.check")]
     assert upward_imports("from .. import __version__\n", "foldsim.analysis.example") == []
     assert [t for _, t, _, _ in upward_imports("from .report import check\n", "foldsim.layout")] == [
         "foldsim.report"]

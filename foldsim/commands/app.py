@@ -47,7 +47,7 @@ def launch(path=None, built=None):
     ``built`` is a mesh file's (`shape_args` options, mechanism), already made.
     """
     try:
-        from ..gui.app import run as run_app
+        from ..gui.window.app import run as run_app
     except ImportError as exc:
         raise FoldsimError(f"the desktop app needs the gui extra (pip install 'foldsim[gui]'): {exc}") from None
     if built is None:

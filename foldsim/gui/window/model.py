@@ -10,15 +10,15 @@ from pathlib import Path
 
 import numpy as np
 
-from ..analysis.closure import cut_edge_gaps
-from ..analysis.collision import panels
-from ..report import hinge_table
-from ..design import is_mesh
-from ..gearing import fold_schedule
-from ..io.mechanism_json import load
-from ..kinematics import poses_at
-from ..tolerances import DEFAULT
-from . import palette
+from ...analysis.closure import cut_edge_gaps
+from ...analysis.collision import panels
+from ...design import is_mesh
+from ...gearing import fold_schedule
+from ...io.mechanism_json import load
+from ...kinematics import poses_at
+from ...report import hinge_table
+from ...tolerances import DEFAULT
+from ..view import palette
 
 GAP_GRID = 401
 """Drive values from -1 to 1 at which the gap plot is computed."""
@@ -148,7 +148,7 @@ class Model:
         mech : Mechanism, optional
             Already made from the recipe.
         """
-        from ..design import build
+        from ...design import build
 
         report = None
         if mech is None:
