@@ -2,14 +2,13 @@
 
 This is the design-side half of `foldsim new` and of opening a mesh in the desktop
 app: both the command line (`foldsim.commands`) and the GUI (`foldsim.gui`) call it,
-so it lives below both. Nothing here writes a file or prints.
+so it lives below both. Nothing here writes a file or prints. numpy and the
+engine load only when a design is built, so the command line's ``--help`` stays light.
 """
 
 import argparse
 from collections import Counter
 from pathlib import Path
-
-import numpy as np
 
 from .errors import ModelError
 
@@ -84,11 +83,15 @@ def _net(args, graph):
 
 
 def _deg(x):
+    import numpy as np
+
     return None if x is None else float(np.degrees(x))
 
 
 def _pitch_radii(pair, ratio):
     """Pitch radii of a spur pair on hinge i and hinge j, or None (an idler is needed)."""
+    import numpy as np
+
     a, r = pair.centre_distance, abs(ratio)
     if pair.mesh == "external":
         return [a * r / (1 + r), a / (1 + r)]
@@ -137,6 +140,8 @@ def build(args):
     report : dict
         JSON-ready; see docs/cli.md, `foldsim new`.
     """
+    import numpy as np
+
     from .analysis.collision import flat_overlaps
     from .gearing import fold_schedule
     from .layout import closure_gap, gear_layout, toothed_couplings

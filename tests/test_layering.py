@@ -18,7 +18,7 @@ CORE = sorted(
 
 LAYERS = (
     # bottom first; the same list, in the same order, is in docs/architecture.md.
-    ("base", ("foldsim.errors", "foldsim.tolerances", "foldsim.geometry")),
+    ("base", ("foldsim.errors", "foldsim.tolerances", "foldsim.limits", "foldsim.geometry")),
     ("model", ("foldsim.gearing", "foldsim.kinematics", "foldsim.model", "foldsim.solids",
                "foldsim.nets", "foldsim.symmetry", "foldsim.netcount")),
     ("analysis", ("foldsim.analysis", "foldsim.picking", "foldsim.stackup")),
