@@ -26,11 +26,10 @@ import networkx as nx
 import numpy as np
 
 from .errors import ModelError
+from .limits import DEFAULT_LIMIT, DEFAULT_MAX_STATES  # noqa: F401  (part of this module's interface)
 from .nets import _check_connected, face_graph, face_pairs, tree_diameter
 from .symmetry import symmetry_group
 
-DEFAULT_LIMIT = 10_000_000
-DEFAULT_MAX_STATES = 1_000_000  # partial states one symmetry's fixed-tree count may visit
 _SMALL = 4096  # partial states with at most this many completions keep them as one array
 _BATCH = 65536  # trees handed to the symmetry filter (and reported as progress) at a time
 

@@ -22,7 +22,7 @@ sys.path.insert(0, str(ROOT))
 
 from PySide6 import QtCore, QtGui, QtWidgets  # noqa: E402
 
-from foldsim.gui.app import MainWindow  # noqa: E402
+from foldsim.gui.window.app import MainWindow  # noqa: E402
 
 ASSETS = ROOT / "assets"
 OUT = ASSETS / "screenshots"

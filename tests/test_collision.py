@@ -5,7 +5,7 @@ import pytest
 
 from foldsim.analysis.collision import (colliding_pairs, collision_intervals, flat_overlaps, pair_state,
                                        panels)
-from foldsim.analysis.report import check
+from foldsim.report import check
 from foldsim.gearing import fold_schedule
 from foldsim.kinematics import poses_at
 from foldsim.model import Coupling, build_mechanism

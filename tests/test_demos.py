@@ -5,6 +5,7 @@ the model's dimensions), "elementary geometry", or "design rule" (what
 scripts/make_demos.py promises about every demo's gearing).
 """
 
+import json
 import math
 import subprocess
 import sys
@@ -13,9 +14,9 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from foldsim.analysis.report import check
 from foldsim.cli import main
 from foldsim.io.mechanism_json import load
+from foldsim.report import check
 
 ROOT = Path(__file__).resolve().parent.parent
 ASSETS = ROOT / "assets"
@@ -72,6 +73,16 @@ def test_good_demos_check_ok(stem, reports, capsys):
         assert row["end_angle_deg"] == pytest.approx(row["closed_angle_deg"], abs=1e-9)
     assert main(["check", str(demo_path(stem))]) == 0
     assert capsys.readouterr().out.rstrip().endswith("OK")
+
+
+@pytest.mark.parametrize("stem", DEMOS)
+def test_hinge_table_lists_each_hinges_couplings_from_the_file(stem, reports):
+    # the file itself (docs/format.md): coupling k names its two hinges in "hinges".
+    doc = json.loads(demo_path(stem).read_text())
+    expected = {h: [k for k, c in enumerate(doc["couplings"]) if h in c["hinges"]]
+                for h in range(len(doc["hinges"]))}
+    assert any(expected.values())
+    assert {row["hinge"]: row["couplings"] for row in reports[stem]["hinge_table"]} == expected
 
 
 def test_gift_box_angles_and_cut_edges(reports):

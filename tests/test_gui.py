@@ -22,9 +22,9 @@ from PySide6 import QtCore, QtGui, QtWidgets  # noqa: E402
 
 from foldsim import cli  # noqa: E402
 from foldsim.analysis.collision import colliding_pairs  # noqa: E402
-from foldsim.gui import palette  # noqa: E402
-from foldsim.gui.app import DEMO, MainWindow  # noqa: E402
-from foldsim.gui.panels import step_playback  # noqa: E402
+from foldsim.gui.view import palette  # noqa: E402
+from foldsim.gui.window.app import DEMO, MainWindow  # noqa: E402
+from foldsim.gui.panels.side import step_playback  # noqa: E402
 from foldsim.kinematics import poses_at  # noqa: E402
 
 from helpers import strip_document, write_doc  # noqa: E402

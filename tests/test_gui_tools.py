@@ -23,9 +23,9 @@ pytest.importorskip("pyqtgraph")
 from PySide6 import QtCore, QtGui  # noqa: E402
 
 from foldsim import cli, load  # noqa: E402
-from foldsim.analysis.report import check  # noqa: E402
-from foldsim.gui import app as app_module  # noqa: E402
-from foldsim.gui.app import DEMO, MainWindow  # noqa: E402
+from foldsim.report import check  # noqa: E402
+from foldsim.gui.window import app as app_module  # noqa: E402
+from foldsim.gui.window.app import DEMO, MainWindow  # noqa: E402
 from foldsim.stackup import stackup  # noqa: E402
 
 from helpers import strip_document, write_doc  # noqa: E402
@@ -520,7 +520,7 @@ def test_save_screenshot_writes_a_png_of_the_chosen_size(demo, qtbot, tmp_path):
     box.accept()
     image = QtGui.QImage(str(target))
     assert (image.width(), image.height()) == (300, 200)
-    from foldsim.gui.viewport import image_array
+    from foldsim.gui.view.viewport import image_array
 
     pixels = image_array(image)
     assert len(np.unique(pixels[..., :3].reshape(-1, 3), axis=0)) > 20  # a drawn model, not a blank frame

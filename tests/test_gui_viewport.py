@@ -9,8 +9,8 @@ pytest.importorskip("PySide6")
 pytest.importorskip("pyqtgraph")
 
 from foldsim.geometry import transform_points  # noqa: E402
-from foldsim.gui import palette  # noqa: E402
-from foldsim.gui.viewport import FoldView, stage_transform  # noqa: E402
+from foldsim.gui.view import palette  # noqa: E402
+from foldsim.gui.view.viewport import FoldView, stage_transform  # noqa: E402
 from foldsim.io.mechanism_json import from_document  # noqa: E402
 
 from test_gui import strip150_document  # noqa: E402
@@ -107,7 +107,7 @@ def test_offscreen_frame_matches_the_widget_at_its_own_size(view):
     view.set_view("iso")
     view.repaint()
     on_screen = view.grabFramebuffer().convertToFormat(view.grabFramebuffer().Format.Format_RGBA8888)
-    from foldsim.gui.viewport import image_array
+    from foldsim.gui.view.viewport import image_array
 
     screen = image_array(on_screen).astype(int)
     frame = view.render_image(view.width(), view.height()).astype(int)

@@ -21,9 +21,10 @@ import av  # noqa: E402 - part of the gui extra: missing, the recorder is broken
 
 from foldsim import cli, load  # noqa: E402
 from foldsim.errors import FoldsimError  # noqa: E402
-from foldsim.gui import palette, recorder  # noqa: E402
-from foldsim.gui.display import VirtualDisplay  # noqa: E402
-from foldsim.gui.viewport import FoldView  # noqa: E402
+from foldsim.gui.view import palette  # noqa: E402
+from foldsim.gui.record import recorder  # noqa: E402
+from foldsim.gui.record.display import VirtualDisplay  # noqa: E402
+from foldsim.gui.view.viewport import FoldView  # noqa: E402
 
 from helpers import strip_document, write_doc  # noqa: E402
 

@@ -85,7 +85,7 @@ def _format_check(report):
 
 
 def run(args):
-    from ..analysis.report import check
+    from ..report import check
     from ..io.mechanism_json import load
 
     for value, name in ((args.t_from, "--from"), (args.t_to, "--to")):

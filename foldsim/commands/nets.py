@@ -5,10 +5,8 @@ import sys
 from importlib.util import find_spec
 from pathlib import Path
 
-import numpy as np
-
 from ..errors import FoldsimError, ModelError
-from ..netcount import DEFAULT_LIMIT, DEFAULT_MAX_STATES
+from ..limits import DEFAULT_LIMIT, DEFAULT_MAX_STATES
 from ..tolerances import DEFAULT
 
 
@@ -99,6 +97,8 @@ def _panel_shapes(poly, hinged=()):
     loop, compared up to rotation and reversal on a grid of ``DEFAULT.planar``
     (lengths relative to the solid's size, angles in radians).
     """
+    import numpy as np
+
     from ..nets import face_graph
 
     graph = face_graph(poly.faces)

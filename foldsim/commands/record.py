@@ -3,7 +3,7 @@
 The options are checked and the model is loaded before anything graphical
 starts, so bad input fails at once with the usual one line and exit code 2.
 Only then is an X display made sure of (a virtual one when there is none, see
-`foldsim.gui.display`) and Qt imported.
+`foldsim.gui.record.display`) and Qt imported.
 """
 
 from ..errors import FoldsimError
@@ -68,7 +68,7 @@ def register(sub):
 
 def run(args):
     """Check the options, load the model, draw the frames and write the file; return 0."""
-    from ..gui.recorder import check_options, check_target, clip_format, parse_size
+    from ..gui.record.recorder import check_options, check_target, clip_format, parse_size
     from ..io.mechanism_json import load
 
     fmt = clip_format(args.output)
@@ -86,7 +86,7 @@ def run(args):
 
 
 def record(mech, output, fmt, size, view="iso", t_to=1.0, **options):
-    """Draw a mechanism in a hidden 3D view and record it (see `foldsim.gui.recorder`).
+    """Draw a mechanism in a hidden 3D view and record it (see `foldsim.gui.record.recorder`).
 
     Parameters
     ----------
@@ -95,7 +95,7 @@ def record(mech, output, fmt, size, view="iso", t_to=1.0, **options):
     fmt : str
     size : (int, int)
     view : str
-        Standard camera direction (`foldsim.gui.viewport.VIEWS`).
+        Standard camera direction (`foldsim.gui.view.viewport.VIEWS`).
     t_to : float
     **options
         The rest of `record_clip`'s options.
@@ -104,14 +104,14 @@ def record(mech, output, fmt, size, view="iso", t_to=1.0, **options):
     -------
     ClipInfo
     """
-    from ..gui.display import ensure_display
+    from ..gui.record.display import ensure_display
 
     ensure_display()
     try:
         from PySide6 import QtCore, QtWidgets
 
-        from ..gui import recorder
-        from ..gui.viewport import FoldView
+        from ..gui.record import recorder
+        from ..gui.view.viewport import FoldView
     except ImportError as exc:
         raise FoldsimError(f"recording needs the gui extra (pip install 'foldsim[gui]'): {exc}") from None
     app = QtWidgets.QApplication.instance() or QtWidgets.QApplication(["foldsim"])

@@ -3,14 +3,13 @@
 import json
 
 from ..errors import FoldsimError
+from ..limits import DEFAULT_SAMPLES, DEFAULT_TIMES
 
 PROCESS_HELP = "sintered-nylon, filament or machined-metal (common-practice presets; docs/stackup.md)"
 
 
 def register(sub):
     """Add the `stackup` subcommand to an argparse subparsers object."""
-    from ..stackup import DEFAULT_SAMPLES, DEFAULT_TIMES
-
     cmd = sub.add_parser("stackup", help="closure gaps and panel wobble from hinge play and gear backlash",
                          description="Sample the mechanism as built, with every hinge's play and every gear "
                                      "mesh's backlash, and report the closure gap of every cut edge "

@@ -1,6 +1,6 @@
 """The design review report: one self-contained HTML file.
 
-It holds the verdict of `analysis.report.check` and what it rests on: a model
+It holds the verdict of `report.check` and what it rests on: a model
 summary, pictures of the posed mechanism at a few drive values (inline SVG from
 `render`), the collision intervals, the closure gaps with a gap-versus-t plot
 (inline SVG), the hinge table, the part types when the check reports them, and
@@ -20,7 +20,7 @@ import numpy as np
 
 from .. import __version__
 from ..analysis.collision import colliding_pairs
-from ..analysis.report import check
+from ..report import check
 from ..gearing import fold_schedule
 from . import common, render, tables
 from .common import fmt
@@ -189,7 +189,7 @@ def build(mech, t_from=0.0, t_to=1.0, frames=41, views=None, clearance=0.0, gap_
     views : sequence of float, optional
         Drive values pictured; default ``t_from``, the middle, ``t_to``.
     clearance, gap_tol, sheet
-        Passed to `analysis.report.check`.
+        Passed to `report.check`.
     report : dict, optional
         A check report already computed with these options.
 

@@ -48,7 +48,7 @@ def main(argv=None):
     from OpenGL import GL
     from PySide6 import QtWidgets
 
-    from .viewport import FoldView
+    from .view.viewport import FoldView
 
     argv = sys.argv[1:] if argv is None else argv
     k = int(argv[0]) if argv else 3

@@ -12,12 +12,11 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from ..errors import ModelError
+from ..limits import DEFAULT_SAMPLES, DEFAULT_TIMES  # noqa: F401  (part of this module's interface)
 
 KINDS = ("play", "tilt_across", "tilt_normal", "axial", "shift_across", "shift_normal")
 N_KINDS = len(KINDS)
 DISTRIBUTIONS = ("uniform", "normal")
-DEFAULT_TIMES = (0.25, 0.5, 0.75, 1.0)
-DEFAULT_SAMPLES = 10_000
 
 # Millimetres per unit of the model, for converting the presets.
 MM_PER_UNIT = {"mm": 1.0, "cm": 10.0, "m": 1000.0, "um": 1e-3, "µm": 1e-3, "in": 25.4, "inch": 25.4}

@@ -10,9 +10,9 @@ import numpy as np
 from pyqtgraph import Vector
 from PySide6 import QtCore, QtGui
 
-from ..geometry import transform_points, unit
-from ..kinematics import poses_at
-from ..picking import pick_face
+from ...geometry import transform_points, unit
+from ...kinematics import poses_at
+from ...picking import pick_face
 
 VIEWS = {
     # name: (elevation, azimuth) in degrees; the camera looks at the centre from

@@ -20,10 +20,10 @@ from pathlib import Path
 import numpy as np
 from PySide6 import QtCore
 
-from ..analysis.collision import collision_intervals
-from ..analysis.report import check
-from ..errors import FoldsimError
-from ..tolerances import DEFAULT
+from ...analysis.collision import collision_intervals
+from ...errors import FoldsimError
+from ...report import check
+from ...tolerances import DEFAULT
 
 
 def join_intervals(intervals, resolution):
@@ -131,7 +131,7 @@ class ReportSignals(QtCore.QObject):
 
 
 class ReportTask(QtCore.QRunnable):
-    """`foldsim.analysis.report.check` over no drive range (the sweep covers collisions).
+    """`foldsim.report.check` over no drive range (the sweep covers collisions).
 
     Parameters
     ----------
@@ -277,7 +277,7 @@ def export_file(mech, path, options, task=None):
     str
         The line the command line prints (``wrote PATH: ...``).
     """
-    from ..export import export, format_of
+    from ...export import export, format_of
 
     path = Path(path)
     format_of(path)
@@ -332,7 +332,7 @@ def run_stackup(mech, process=None, samples=2000, seed=0, dist="uniform", envelo
         kept in ``result.mc.gaps``), ``envelope`` (`foldsim.stackup.Errors` of
         the first builds, or None), and the settings.
     """
-    from ..stackup import draw_errors, play_spec, stackup
+    from ...stackup import draw_errors, play_spec, stackup
 
     if isinstance(samples, bool) or not isinstance(samples, (int, np.integer)) or samples < 1:
         raise FoldsimError(f"--samples: must be a positive integer, not {samples}")

@@ -1,7 +1,7 @@
 """The app's dialogs: exports, a new model from a shape, clips and screenshots.
 
 Each dialog only gathers options and turns them into the arguments the core (or
-the recorder) takes; the main window (`foldsim.gui.app`) runs the work. Values
+the recorder) takes; the main window (`foldsim.gui.window.app`) runs the work. Values
 the command line would refuse are passed on as they are, so the core refuses
 them with the command line's own one-line message.
 """
@@ -10,8 +10,8 @@ from pathlib import Path
 
 from PySide6 import QtCore, QtWidgets
 
-from ..commands.app import MESH_SUFFIXES, shape_args
-from ..errors import FoldsimError
+from ...design import MESH_SUFFIXES, shape_args
+from ...errors import FoldsimError
 
 EXPORT_KINDS = (
     # suffix, what the menu says
@@ -284,7 +284,7 @@ class ExportDialog(_FormDialog):
 class ShapeDialog(_FormDialog):
     """File ▸ New from shape…: a built-in solid or a mesh file, the net and the gears.
 
-    `recipe` gives the options of `foldsim new` (`foldsim.commands.new.build`).
+    `recipe` gives the options of `foldsim new` (`foldsim.design.build`).
     """
 
     def __init__(self, folder="", parent=None):
@@ -425,7 +425,7 @@ class ClipDialog(_FormDialog):
         return Path(self.path.text().strip())
 
     def options(self):
-        """Keyword arguments of `recorder.record_clip` (or `save_screenshot` for a still)."""
+        """Keyword arguments of `record.recorder.record_clip` (or `save_screenshot` for a still)."""
         size = (self.width_box.value(), self.height_box.value())
         if self.kind.currentData() == ".png":
             return {"size": size, "t": self.t_to.value(), "overlay": self.caption.isChecked(),

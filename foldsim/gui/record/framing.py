@@ -16,7 +16,7 @@ MARGIN = 1.12
 
 def _clip_poses(viewport, t_values, chunk=64):
     """The core's poses (T, F, 4, 4) at each drive value, in chunks."""
-    from ..kinematics import poses_at
+    from ...kinematics import poses_at
 
     t_values = np.asarray(t_values, dtype=float)
     return np.concatenate([poses_at(viewport.mech, viewport.schedule, t_values[k:k + chunk])
@@ -25,7 +25,7 @@ def _clip_poses(viewport, t_values, chunk=64):
 
 def _posed_corners(viewport, t_values):
     """Every panel corner (n, 3), in the model frame, at each drive value (from the core)."""
-    from ..geometry import transform_points
+    from ...geometry import transform_points
 
     mech = viewport.mech
     flat = np.concatenate(mech.flat_faces)

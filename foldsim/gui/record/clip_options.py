@@ -9,7 +9,7 @@ from pathlib import Path
 
 import numpy as np
 
-from ..errors import FoldsimError
+from ...errors import FoldsimError
 
 FORMATS = {".mp4": "mp4", ".gif": "gif", ".png": "png"}
 """File suffix to format."""

@@ -1,6 +1,6 @@
 """Opening, reloading, watching and saving the app's model files.
 
-`FileHandling` is a part of `app.MainWindow`: the File menu's open, new-from-shape,
+`FileHandling` is a part of `window.app.MainWindow`: the File menu's open, new-from-shape,
 recent, reload and save commands, the reading or making of a model in a worker
 thread under a busy dialog, and the watch on the model's file that reloads it when
 it changes on disk. It works on the window's ``model``, ``settings``, ``watcher``,
@@ -12,11 +12,11 @@ from pathlib import Path
 
 from PySide6 import QtCore, QtWidgets
 
-from ..errors import FoldsimError
-from ..io.mechanism_json import save
+from ...errors import FoldsimError
+from ...io.mechanism_json import save
+from ..panels.dialogs import ShapeDialog, busy_dialog
 from .model import Model, error_line
 from .sweep import CallTask
-from .tools import ShapeDialog, busy_dialog
 
 MAX_RECENT = 8
 
@@ -75,7 +75,7 @@ class FileHandling:
         Parameters
         ----------
         recipe : argparse.Namespace
-            `foldsim.commands.app.shape_args`.
+            `foldsim.design.shape_args`.
         keep_view : bool
         remember : Path, optional
             A mesh file to add to the recent files.

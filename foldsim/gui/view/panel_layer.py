@@ -13,7 +13,7 @@ import pyqtgraph.opengl as gl
 from OpenGL import GL
 from PySide6 import QtGui
 
-from ..geometry import unit
+from ...geometry import unit
 from . import palette
 
 _VERTEX_SHADER = """

@@ -41,11 +41,11 @@ import pyqtgraph.opengl as gl
 from OpenGL import GL
 from PySide6 import QtCore, QtGui, QtOpenGL, QtWidgets
 
-from ..analysis.closure import cut_edge_gaps
-from ..analysis.collision import colliding_pairs, panels
-from ..gearing import fold_schedule
-from ..kinematics import poses_at
-from ..tolerances import DEFAULT
+from ...analysis.closure import cut_edge_gaps
+from ...analysis.collision import colliding_pairs, panels
+from ...gearing import fold_schedule
+from ...kinematics import poses_at
+from ...tolerances import DEFAULT
 from . import palette
 from .camera import CLICK_SLOP, VIEWS, CameraControl, _matrix, stage_transform
 from .overlays import (

@@ -6,12 +6,12 @@ rather than rename.
 
 import numpy as np
 
-from ..gearing import fold_schedule
-from ..kinematics import poses_at
-from ..parts import part_types
-from ..tolerances import DEFAULT
-from .closure import closure_summary, cut_edge_gaps
-from .collision import collision_intervals, flat_overlaps, panels
+from .analysis.closure import closure_summary, cut_edge_gaps
+from .analysis.collision import collision_intervals, flat_overlaps, panels
+from .gearing import fold_schedule
+from .kinematics import poses_at
+from .parts import part_types
+from .tolerances import DEFAULT
 
 
 def hinge_table(mech, schedule):
@@ -24,6 +24,11 @@ def hinge_table(mech, schedule):
         ``closed_angle_deg`` (needed to close), ``end_angle_deg`` (reached at
         t = 1), ``couplings`` (indices of the couplings it takes part in).
     """
+    # One pass over the couplings, not one per hinge: O(H + K) rather than O(H * K).
+    by_hinge = [[] for _ in range(mech.n_hinges)]
+    for k, c in enumerate(mech.couplings):
+        for h in dict.fromkeys(int(h) for h in c.hinges):
+            by_hinge[h].append(k)
     rows = []
     for h in range(mech.n_hinges):
         rows.append({
@@ -33,7 +38,7 @@ def hinge_table(mech, schedule):
             "child": int(mech.child[h]),
             "closed_angle_deg": float(np.degrees(mech.closed_angles[h])),
             "end_angle_deg": float(np.degrees(schedule.rates[h])),
-            "couplings": [k for k, c in enumerate(mech.couplings) if h in c.hinges],
+            "couplings": by_hinge[h],
         })
     return rows
 

@@ -13,11 +13,11 @@ import pyqtgraph.opengl as gl
 from OpenGL import GL
 from PySide6 import QtCore, QtGui, QtWidgets
 
-from ..analysis.collision import triangle_pairs
-from ..gearing import fold_angles
-from ..geometry import transform_points
-from ..picking import intersection_segments
-from ..stackup import perturbed_poses
+from ...analysis.collision import triangle_pairs
+from ...gearing import fold_angles
+from ...geometry import transform_points
+from ...picking import intersection_segments
+from ...stackup import perturbed_poses
 from . import palette
 from .camera import _matrix
 from .panel_layer import _rgba

@@ -1,6 +1,6 @@
 """The app's work beside the model on show: sweep, check report, exports and recordings.
 
-`Jobs` is a part of `app.MainWindow`. The collision sweep over the whole range and
+`Jobs` is a part of `window.app.MainWindow`. The collision sweep over the whole range and
 the check report (for part types) run in the window's ``pool``; exports run in its
 ``tool_pool`` under a busy dialog whose Cancel writes nothing; clips and stills are
 drawn by `recorder` on the GUI thread (the view's GL context lives there) under a
@@ -11,11 +11,11 @@ from pathlib import Path
 
 from PySide6 import QtCore, QtWidgets
 
-from ..errors import FoldsimError
-from . import recorder
+from ...errors import FoldsimError
+from ..panels.dialogs import ClipDialog, ExportDialog, busy_dialog
+from ..record import recorder
 from .model import error_line, part_labels
 from .sweep import CallTask, ReportTask, SweepTask, export_file
-from .tools import ClipDialog, ExportDialog, busy_dialog
 
 
 class Jobs:

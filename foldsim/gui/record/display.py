@@ -20,7 +20,7 @@ import sys
 import tempfile
 import time
 
-from ..errors import FoldsimError
+from ...errors import FoldsimError
 
 SCREEN = "1920x1080x24"
 """Size and depth of the virtual screen (width x height x bits per pixel)."""

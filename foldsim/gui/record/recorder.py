@@ -1,6 +1,6 @@
 """Record the 3D view's motion as a video clip, an animated GIF or a still image.
 
-A clip is a sequence of offscreen frames of a `viewport.FoldView`
+A clip is a sequence of offscreen frames of a `view.viewport.FoldView`
 (`FoldView.render_image`): for frame i of n the view is set to the drive value
 ``t_from + (t_to - t_from) * i / (n - 1)`` — the core poses the panels and finds
 the collisions, the view only draws — and, with an orbit, the camera turns about
@@ -31,7 +31,7 @@ from pathlib import Path
 
 import numpy as np
 
-from ..errors import FoldsimError
+from ...errors import FoldsimError
 from .caption import _Caption, _qimage, clip_captions, collision_text, draw_overlay, overlay_lines, t_text
 from .clip_options import (FORMATS, MAX_FPS, MAX_SECONDS, MAX_SIDE, MIN_SIDE, ORBIT_DEGREES, check_options,
                            clip_format, clip_plan, frame_count, orbit_degrees, parse_size)

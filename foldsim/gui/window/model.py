@@ -10,15 +10,15 @@ from pathlib import Path
 
 import numpy as np
 
-from ..analysis.closure import cut_edge_gaps
-from ..analysis.collision import panels
-from ..analysis.report import hinge_table
-from ..commands.app import is_mesh
-from ..gearing import fold_schedule
-from ..io.mechanism_json import load
-from ..kinematics import poses_at
-from ..tolerances import DEFAULT
-from . import palette
+from ...analysis.closure import cut_edge_gaps
+from ...analysis.collision import panels
+from ...design import is_mesh
+from ...gearing import fold_schedule
+from ...io.mechanism_json import load
+from ...kinematics import poses_at
+from ...report import hinge_table
+from ...tolerances import DEFAULT
+from ..view import palette
 
 GAP_GRID = 401
 """Drive values from -1 to 1 at which the gap plot is computed."""
@@ -111,7 +111,7 @@ class Model:
         `foldsim new`'s report for a model made from a shape.
     mech, schedule, pan
     table : list of dict
-        `foldsim.analysis.report.hinge_table`.
+        `foldsim.report.hinge_table`.
     t_grid : (T,) float
         Drive values from -1 to 1 (the last is exactly 1).
     gaps : (T, E) float
@@ -144,11 +144,11 @@ class Model:
         Parameters
         ----------
         recipe : argparse.Namespace
-            `foldsim.commands.app.shape_args`.
+            `foldsim.design.shape_args`.
         mech : Mechanism, optional
             Already made from the recipe.
         """
-        from ..commands.new import build
+        from ...design import build
 
         report = None
         if mech is None:

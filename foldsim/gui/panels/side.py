@@ -1,14 +1,14 @@
 """The app's side panels: the drive bar, the collision strip, the tables, the gap plot.
 
 Each widget shows values the core computed and emits what the user asked for; the
-main window (`foldsim.gui.app`) wires them to each other and to the 3D view.
+main window (`foldsim.gui.window.app`) wires them to each other and to the 3D view.
 """
 
 import numpy as np
 import pyqtgraph as pg
 from PySide6 import QtCore, QtGui, QtWidgets
 
-from . import palette
+from ..view import palette
 
 SLIDER_STEPS = 1000
 """Slider positions per unit of t: the slider runs from -1000 to 1000."""
@@ -388,7 +388,7 @@ class HingeModel(_TableModel):
         self.now = np.zeros(0)
 
     def set_table(self, table, mech, schedule):
-        """Fill from `foldsim.analysis.report.hinge_table` rows and the schedule."""
+        """Fill from `foldsim.report.hinge_table` rows and the schedule."""
         drive_rate = schedule.rates[mech.drive]
         rows = []
         for row in table:

@@ -15,7 +15,7 @@ from pathlib import Path
 
 import numpy as np
 
-from ..errors import FoldsimError
+from ...errors import FoldsimError
 
 GIF_CELL_BITS = 5
 """Bits per channel of the colour grid the GIF palette is chosen and looked up on."""

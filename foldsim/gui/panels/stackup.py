@@ -1,7 +1,7 @@
 """The "Play and backlash" panel: the play stack-up of the open model.
 
 The panel asks for a process preset (or the file's own tolerances), the number of
-sampled builds and the seed, runs `foldsim.gui.sweep.run_stackup` (the core's
+sampled builds and the seed, runs `foldsim.gui.window.sweep.run_stackup` (the core's
 stack-up at closure) in a worker thread with progress and a stop button, and
 shows what came back:
 
@@ -18,10 +18,10 @@ import numpy as np
 import pyqtgraph as pg
 from PySide6 import QtCore, QtWidgets
 
-from ..stackup import DISTRIBUTIONS, PROCESSES
-from .panels import _TableModel, make_table
-from .sweep import CallTask, run_stackup
-from .viewport import ENVELOPE
+from ...stackup import DISTRIBUTIONS, PROCESSES
+from ..view.viewport import ENVELOPE
+from ..window.sweep import CallTask, run_stackup
+from .side import _TableModel, make_table
 
 CAUTION = ("Caution: the presets are rough common-practice figures, not measurements. Real play and "
            "backlash vary by process, machine, material, part size and wear; measure your own parts or "

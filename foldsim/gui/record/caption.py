@@ -9,7 +9,7 @@ functions that draw.
 
 import numpy as np
 
-from ..errors import FoldsimError
+from ...errors import FoldsimError
 from .framing import _clip_poses
 
 
@@ -150,7 +150,7 @@ def draw_overlay(rgba, lines, colliding, box_width=None):
     """
     from PySide6 import QtCore, QtGui
 
-    from . import palette
+    from ..view import palette
 
     out = np.ascontiguousarray(rgba, dtype=np.uint8).copy()
     h, w = out.shape[:2]
@@ -194,7 +194,7 @@ def clip_captions(viewport, t_values, title=None):
     lines : list of list of str
     colliding : list of bool
     """
-    from ..analysis.collision import colliding_pairs
+    from ...analysis.collision import colliding_pairs
 
     mech = viewport.mech
     name = title if title is not None else (getattr(mech, "name", None) or "mechanism")

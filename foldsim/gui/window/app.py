@@ -1,8 +1,8 @@
 """The foldsim desktop app: the main window and its entry point.
 
-The window holds the 3D view (`viewport.FoldView`), the drive bar under it and,
+The window holds the 3D view (`view.viewport.FoldView`), the drive bar under it and,
 beside it, the hinge table, the cut-edge table and the gap plot; the "Play and
-backlash" panel (`stackup_view.StackupPanel`) docks below. Opening a file loads
+backlash" panel (`panels.stackup.StackupPanel`) docks below. Opening a file loads
 it through the core (`foldsim.load`); a mesh file or a built-in solid is unfolded
 and geared by the same code as `foldsim new`. A file the core refuses shows the
 same one-line message as the command line and leaves the previous model in
@@ -25,20 +25,20 @@ from pathlib import Path
 import numpy as np
 from PySide6 import QtCore, QtGui, QtWidgets
 
-from ..commands.app import is_mesh, shape_args
-from ..errors import FoldsimError
-from ..gearing import fold_angles
+from ...design import is_mesh, shape_args
+from ...errors import FoldsimError
+from ...gearing import fold_angles
+from ..panels.side import DriveBar, GapModel, GapPlot, HingeModel, make_table
+from ..panels.stackup import StackupPanel
+from ..view.viewport import FoldView, default_face_colors
 from .files import MAX_RECENT, FileHandling
 from .jobs import Jobs
 from .model import GAP_GRID, Model, error_line, file_stem, label_colors, part_labels
-from .panels import DriveBar, GapModel, GapPlot, HingeModel, make_table
-from .stackup_view import StackupPanel
-from .viewport import FoldView, default_face_colors
 
 __all__ = ["BACKGROUND_BYTES", "DEMO", "GAP_GRID", "MAX_RECENT", "MainWindow", "Model", "error_line",
            "file_stem", "label_colors", "part_labels", "run"]
 
-DEMO = Path(__file__).resolve().parents[2] / "assets" / "gift-box.mech.json"
+DEMO = Path(__file__).resolve().parents[3] / "assets" / "gift-box.mech.json"
 """The model the app opens when started without a file."""
 
 SIDE_PANEL_MS = 100

@@ -1,0 +1,1 @@
+"""The side panels beside the view (drive, tables, gap plot, stack-up) and the dialogs."""

@@ -1,0 +1,1 @@
+"""Recording a view: clips (MP4, GIF) and screenshots, their options, framing and caption."""
