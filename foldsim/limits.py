@@ -41,6 +41,16 @@ MAX_FOLD_TURNS = 16
 """Most full turns any hinge makes between t = 0 and t = 1 under the gearing."""
 MIN_RATE_FACTOR = 1e-9
 """Smallest fold rate of a geared hinge, as a share of its component's start hinge's."""
+MAX_FRAMES = 10_000
+"""Most drive values an export samples (``--frames``)."""
+MAX_FRAME_PANELS = 5_000_000
+"""Most panel poses (frames x panels) an export computes: 640 MB of 4 x 4 transforms."""
+MAX_SIDES = 200
+"""Most sides of a built-in prism's or antiprism's base: from 836 sides neighbouring side
+faces lie within the planarity tolerance of one plane and merge, and `foldsim new`
+takes seconds per hundred sides."""
+MAX_SOLID_SIZE = 1e40
+"""Largest ``--size`` of a built-in solid (its coordinates must stay within `MAX_COORDINATE`)."""
 QUOTE_CHARS = 40
 """Longest value quoted in an error message."""
 
