@@ -7,7 +7,9 @@ with one line naming the file, the field and the index.
 import json
 import math
 import os
+import re
 import tempfile
+import time
 from pathlib import Path
 
 import numpy as np
@@ -280,9 +282,42 @@ def dumps(mech):
     return "\n".join(lines) + "\n"
 
 
+STALE_SECONDS = 3600
+"""A temporary ``.NAME.XXXXXXXX.tmp`` file older than this is left from a killed save."""
+_TEMP_NAME = re.compile(r"\..+\.[A-Za-z0-9_]{8}\.tmp")
+
+
+def remove_stale_temporaries(folder, now=None):
+    """Delete temporary files that killed saves left in ``folder``; return their names.
+
+    Only files named like our temporaries (``.NAME.XXXXXXXX.tmp``) and last
+    modified more than `STALE_SECONDS` ago are removed, so a save running at the
+    same time keeps its file. Files that vanish or cannot be removed are skipped.
+    """
+    now = time.time() if now is None else now
+    removed = []
+    try:
+        entries = list(os.scandir(folder))
+    except OSError:
+        return removed
+    for entry in entries:
+        try:
+            if (_TEMP_NAME.fullmatch(entry.name) and entry.is_file(follow_symlinks=False)
+                    and now - entry.stat(follow_symlinks=False).st_mtime > STALE_SECONDS):
+                os.unlink(entry.path)
+                removed.append(entry.name)
+        except OSError:
+            continue
+    return removed
+
+
 def write_atomic(path, text):
-    """Replace a file's contents atomically: the old file stays whole on failure."""
+    """Replace a file's contents atomically: the old file stays whole on failure.
+
+    Stale temporaries of earlier killed saves in the same folder are removed first.
+    """
     path = Path(path)
+    remove_stale_temporaries(path.parent)
     fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=path.parent or ".")
     try:
         with os.fdopen(fd, "w", encoding="utf-8") as out:
