@@ -27,14 +27,15 @@ def check_bytes(path, kind, data):
     data : bytes
         The whole file.
     """
+    where = f"{path}: cannot read as {kind.upper()}"
     if not data.strip():
-        raise ModelError(f"{path}: file is empty")
+        raise ModelError(f"{where}: the file is empty")
     if kind == "stl":
-        _check_stl(path, data)
+        _check_stl(where, data)
     elif kind == "ply":
-        _check_ply(path, data)
+        _check_ply(where, data)
     elif kind == "obj":
-        _check_obj(path, _decode(data))
+        _check_obj(where, _decode(data))
 
 
 def text_bytes(kind, data):
