@@ -27,7 +27,7 @@ import numpy as np
 
 from .errors import ModelError
 from .nets import _check_connected, face_graph, face_pairs, tree_diameter
-from .symmetry import symmetry_group
+from .symmetry import symmetry_group, symmetry_tolerances
 
 DEFAULT_LIMIT = 10_000_000
 DEFAULT_MAX_STATES = 1_000_000  # partial states one symmetry's fixed-tree count may visit
@@ -611,7 +611,8 @@ def _less(a, b):
     return less
 
 
-def nets_up_to_symmetry(poly, limit=DEFAULT_LIMIT, progress=None, max_states=DEFAULT_MAX_STATES):
+def nets_up_to_symmetry(poly, limit=DEFAULT_LIMIT, progress=None, max_states=DEFAULT_MAX_STATES,
+                        symmetry_tol=None):
     """Count a polyhedron's nets and, if the trees are few enough, list one per net.
 
     Parameters
@@ -623,6 +624,9 @@ def nets_up_to_symmetry(poly, limit=DEFAULT_LIMIT, progress=None, max_states=DEF
         Called as ``progress(done, total)`` after each batch of trees is sorted out.
     max_states : int or None, optional
         Work limit per symmetry for Burnside's counts, see `fixed_spanning_trees`.
+    symmetry_tol : float, optional
+        Vertex-matching tolerance of the symmetry search, relative to the size;
+        see `foldsim.symmetry.symmetry_tolerances`.
 
     Returns
     -------
@@ -639,7 +643,7 @@ def nets_up_to_symmetry(poly, limit=DEFAULT_LIMIT, progress=None, max_states=DEF
     """
     graph = face_graph(poly.faces)
     _check_connected(graph)
-    group = symmetry_group(poly)
+    group = symmetry_group(poly, symmetry_tolerances(symmetry_tol))
     pairs = face_pairs(graph)
     fixed = fixed_spanning_trees(graph, group.edges, max_states)
     total = fixed[0]

@@ -228,3 +228,19 @@ def test_13_limits_are_named(tmp_path, capsys):
     _one_line_exit_2(capsys, ["check", str(path)], f"limit of {limits.MAX_DEPTH} levels")
     path.write_text(GIFT.read_text().replace("120.0", "1" * 5000, 1))
     _one_line_exit_2(capsys, ["check", str(path)], f"limit of {limits.MAX_NUMBER_CHARS}")
+
+
+def test_15_12_symmetry_tolerance_is_an_option_and_reported(tmp_path, capsys):
+    trimesh = pytest.importorskip("trimesh")
+    path = tmp_path / "box.stl"
+    trimesh.creation.box([1.0, 1.0, 1.00001]).export(str(path))
+    assert main(["nets", str(path), "--json"]) == 0
+    loose = json.loads(capsys.readouterr().out)
+    assert main(["nets", str(path), "--json", "--symmetry-tol", "1e-8"]) == 0
+    exact = json.loads(capsys.readouterr().out)
+    # The cube has 11 nets (OEIS A103606 counts them for the Platonic solids); a
+    # square prism that is not a cube has the group D4h of order 16 and 29 nets
+    # (from memory; the cube face graph has 384 spanning trees by the matrix-tree theorem).
+    assert (loose["nets"], loose["symmetry_order"], loose["symmetry_tolerance"]) == (11, 48, 1e-5)
+    assert (exact["nets"], exact["symmetry_order"], exact["symmetry_tolerance"]) == (29, 16, 1e-8)
+    _one_line_exit_2(capsys, ["nets", "cube", "--symmetry-tol", "inf"], "--symmetry-tol")
