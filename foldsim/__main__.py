@@ -1,5 +1,10 @@
 import sys
 
-from .cli import main
+try:
+    from .cli import main
 
-sys.exit(main())
+    code = main()
+except KeyboardInterrupt:  # Ctrl-C while the modules were still loading
+    print("foldsim: interrupted", file=sys.stderr)
+    code = 130
+sys.exit(code)

@@ -2,7 +2,8 @@
 
 Each subcommand lives in its own module under `foldsim.commands` and registers its
 parser there. Exit codes: 0 everything holds, 1 a check found a problem, 2 bad
-input (one line on stderr naming the file, the field and the index).
+input (one line on stderr naming the file, the field and the index), 130
+interrupted (Ctrl-C).
 """
 
 import argparse
@@ -40,6 +41,9 @@ def main(argv=None):
     except FoldsimError as exc:
         print(f"foldsim: {exc}", file=sys.stderr)
         return 2
+    except KeyboardInterrupt:
+        print("foldsim: interrupted", file=sys.stderr)
+        return 130
     except BrokenPipeError:
         # The reader (say, `| head`) stopped early: not an error of ours.
         sys.stdout = open(os.devnull, "w")

@@ -12,6 +12,8 @@ from dataclasses import dataclass
 import networkx as nx
 import numpy as np
 
+from . import limits
+from .errors import ModelError
 from .tolerances import DEFAULT
 
 
@@ -52,10 +54,10 @@ def coupling_graph(mech):
     """
     graph = nx.Graph()
     graph.add_nodes_from(range(mech.n_hinges))
-    for c in mech.couplings:
+    for k, c in enumerate(mech.couplings):
         i, j = c.hinges
         if not graph.has_edge(i, j):
-            graph.add_edge(i, j, source=i, ratio=c.ratio)
+            graph.add_edge(i, j, source=i, ratio=c.ratio, coupling=k)
     return graph
 
 
@@ -111,6 +113,60 @@ def fold_schedule(mech, tol=DEFAULT):
         locked.extend(cycles)
         dof += 0 if cycles else 1
     return Schedule(factor, "geared", dof, tuple(sorted(int(h) for h in free)), tuple(sorted(locked)))
+
+
+def check_rates(mech):
+    """Refuse gearing whose ratios leave the range float arithmetic and the sweep can handle.
+
+    Every ``|ratio|`` must lie in [1 / `limits.MAX_RATIO`, `limits.MAX_RATIO`]; along
+    the gear chains from the drive (or from a free component's first hinge) no
+    hinge may turn more than `limits.MAX_FOLD_TURNS` full turns by t = 1, nor less
+    than `limits.MIN_RATE_FACTOR` of the start hinge's rate. The collision sweep's
+    work grows with the fastest hinge's rate, so this also bounds its time.
+
+    Parameters
+    ----------
+    mech : Mechanism
+
+    Raises
+    ------
+    ModelError
+        Naming the coupling (docs/format.md, Limits).
+
+    Examples
+    --------
+    >>> from types import SimpleNamespace
+    >>> from foldsim.model import Coupling
+    >>> m = SimpleNamespace(n_hinges=2, drive=0, closed_angles=np.array([1.5, 1.5]),
+    ...                     couplings=(Coupling((0, 1), 1e3),))
+    >>> check_rates(m)
+    Traceback (most recent call last):
+    ...
+    foldsim.errors.ModelError: couplings[0]: the gear chain from hinge 0 turns hinge 1 ...
+    """
+    for k, c in enumerate(mech.couplings):
+        if not 1.0 / limits.MAX_RATIO <= abs(c.ratio) <= limits.MAX_RATIO:
+            raise ModelError(f"couplings[{k}].ratio: {c.ratio:.3g} is outside the limit of "
+                             f"{1.0 / limits.MAX_RATIO:g}..{limits.MAX_RATIO:g} in size (docs/format.md, Limits)")
+    if not mech.couplings:
+        return
+    closed = np.asarray(mech.closed_angles, dtype=float)
+    graph = coupling_graph(mech)
+    most = 2.0 * np.pi * limits.MAX_FOLD_TURNS
+    for comp in nx.connected_components(graph):
+        start = mech.drive if mech.drive in comp else min(comp)
+        factor = {start: 1.0}
+        for a, b in nx.bfs_edges(graph, start):
+            edge = graph.edges[a, b]
+            factor[b] = factor[a] * _factor(edge, a)
+            rate = abs(factor[b] * closed[start])
+            where = f"couplings[{edge['coupling']}]: the gear chain from hinge {start} turns hinge {b}"
+            if rate > most:
+                raise ModelError(f"{where} {np.degrees(rate):.3g}° by t = 1, more than the limit of "
+                                 f"{limits.MAX_FOLD_TURNS} turns (docs/format.md, Limits)")
+            if abs(factor[b]) < limits.MIN_RATE_FACTOR:
+                raise ModelError(f"{where} only {abs(factor[b]):.3g} times as fast, below the limit of "
+                                 f"{limits.MIN_RATE_FACTOR:g} (docs/format.md, Limits)")
 
 
 def fold_angles(schedule, t):

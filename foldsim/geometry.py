@@ -132,3 +132,88 @@ def signed_angle(u, v, axis):
     """
     axis = unit(axis)
     return np.arctan2(np.einsum("...i,...i", axis, np.cross(u, v)), np.einsum("...i,...i", u, v))
+
+
+def _segment_distances(p, q, r, s):
+    """Distances (...,) between 2D segments p-q and r-s (all (..., 2) float)."""
+    def cross(a, b):
+        return a[..., 0] * b[..., 1] - a[..., 1] * b[..., 0]
+
+    def to_segment(x, a, b):
+        ab = b - a
+        length2 = np.einsum("...i,...i->...", ab, ab)
+        u = np.clip(np.einsum("...i,...i->...", x - a, ab) / np.where(length2 > 0, length2, 1.0), 0.0, 1.0)
+        return np.linalg.norm(x - (a + u[..., None] * ab), axis=-1)
+
+    d1, d2 = cross(q - p, r - p), cross(q - p, s - p)
+    d3, d4 = cross(s - r, p - r), cross(s - r, q - r)
+    crossing = (np.sign(d1) * np.sign(d2) < 0) & (np.sign(d3) * np.sign(d4) < 0)
+    ends = np.minimum(np.minimum(to_segment(p, r, s), to_segment(q, r, s)),
+                      np.minimum(to_segment(r, p, q), to_segment(s, p, q)))
+    return np.where(crossing, 0.0, ends)
+
+
+def polygon_defects(polygons, normals, eps, chunk=500_000):
+    """The first flaw that keeps each planar polygon from being simple.
+
+    A polygon is simple when no edge is shorter than ``eps``, no two edges that do
+    not share a corner come nearer than ``eps``, and no corner folds an edge back
+    onto its neighbour (the next corner lies within ``eps`` of the edge before).
+
+    Parameters
+    ----------
+    polygons : sequence of (k, 3) float
+        Corners in order, each polygon roughly in one plane.
+    normals : (n, 3) float
+        Unit normal of each polygon.
+    eps : float
+        Distance at which two parts of the boundary meet.
+    chunk : int
+        Most edge pairs examined in one numpy step.
+
+    Returns
+    -------
+    list of (int, str, int, int)
+        ``(polygon, kind, a, b)`` for each polygon with a flaw, in order: kind
+        ``"short"`` (edge a from corner a to corner b), ``"cross"`` (edges a and b
+        meet) or ``"fold"`` (the boundary turns back at corner a).
+
+    Examples
+    --------
+    >>> bow = np.array([[0, 0, 0], [1, 1, 0], [1, 0, 0], [0, 1, 0]], float)
+    >>> polygon_defects([bow], np.array([[0.0, 0.0, 1.0]]), 1e-9)
+    [(0, 'cross', 0, 2)]
+    """
+    normals = np.asarray(normals, dtype=float)
+    sizes = np.array([len(p) for p in polygons])
+    found = []
+    for k in np.unique(sizes):
+        which = np.flatnonzero(sizes == k)
+        pts = np.array([polygons[i] for i in which], dtype=float)
+        n = normals[which]
+        helper = np.where(np.abs(n[:, :1]) < 0.9, [[1.0, 0.0, 0.0]], [[0.0, 1.0, 0.0]])
+        u = unit(np.cross(n, helper))
+        v = np.cross(n, u)
+        centred = pts - pts.mean(axis=1, keepdims=True)
+        flat = np.stack([np.einsum("pkd,pd->pk", centred, u), np.einsum("pkd,pd->pk", centred, v)], axis=-1)
+        ahead = np.roll(flat, -1, axis=1)
+        flaws = {}
+        lengths = np.linalg.norm(ahead - flat, axis=-1)
+        for p, e in zip(*np.nonzero(lengths <= eps)):
+            flaws.setdefault(p, ("short", int(e), int((e + 1) % k)))
+        after = np.roll(flat, -2, axis=1)
+        fold = ((_segment_distances(after, after, flat, ahead) <= eps)
+                | (_segment_distances(flat, flat, ahead, after) <= eps))
+        for p, c in zip(*np.nonzero(fold)):
+            flaws.setdefault(p, ("fold", int((c + 1) % k), int((c + 1) % k)))
+        i, j = np.triu_indices(k, 2)
+        keep = ~((i == 0) & (j == k - 1))
+        i, j = i[keep], j[keep]
+        step = max(1, chunk // len(which))
+        for start in range(0, len(i), step):
+            a, b = i[start:start + step], j[start:start + step]
+            close = _segment_distances(flat[:, a], ahead[:, a], flat[:, b], ahead[:, b]) <= eps
+            for p, m in zip(*np.nonzero(close)):
+                flaws.setdefault(p, ("cross", int(a[m]), int(b[m])))
+        found.extend((int(which[p]), *flaw) for p, flaw in flaws.items())
+    return sorted(found)

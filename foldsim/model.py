@@ -18,8 +18,9 @@ import numpy as np
 
 from scipy.spatial import cKDTree
 
-from . import geometry
+from . import geometry, limits
 from .errors import ModelError
+from .gearing import check_rates
 from .kinematics import face_poses
 from .tolerances import DEFAULT
 
@@ -116,7 +117,7 @@ def _check_faces(vertices, faces, tol):
         if len(set(face.tolist())) != len(face):
             raise ModelError(f"faces[{i}]: repeats a vertex")
         polygons.append(vertices[face])
-    size = float(np.linalg.norm(np.ptp(vertices, axis=0))) or 1.0
+    size = _check_magnitude(vertices)
     normals = geometry.newell_normals(polygons)
     areas = np.linalg.norm(normals, axis=1)
     for i, (poly, normal, area) in enumerate(zip(polygons, normals, areas)):
@@ -125,7 +126,44 @@ def _check_faces(vertices, faces, tol):
         off = np.abs((poly - poly.mean(axis=0)) @ (normal / area))
         if off.max() > tol.planar * size:
             raise ModelError(f"faces[{i}]: not planar (a vertex is {off.max():.3g} off the face's plane)")
-    return normals / areas[:, None], size
+    units = normals / areas[:, None]
+    defects = geometry.polygon_defects(polygons, units, tol.coincident * size)
+    if defects:
+        f, kind, a, b = defects[0]
+        face = faces[f]
+        if kind == "short":
+            raise ModelError(f"faces[{f}]: vertices {face[a]} and {face[b]} are at one point (an edge of zero "
+                             "length)")
+        if kind == "fold":
+            raise ModelError(f"faces[{f}]: not a simple polygon: its boundary turns back on itself at "
+                             f"vertex {face[a]}")
+        raise ModelError(f"faces[{f}]: not a simple polygon: its edges {face[a]}-{face[(a + 1) % len(face)]} "
+                         f"and {face[b]}-{face[(b + 1) % len(face)]} cross or touch")
+    return units, size
+
+
+def _check_magnitude(vertices):
+    """The model's size (bounding-box diagonal); coordinates must keep float64 arithmetic sound.
+
+    Raises `ModelError` naming the limit (docs/format.md, Limits) for a coordinate
+    beyond `limits.MAX_COORDINATE`, a model smaller than `limits.MIN_SIZE`, or one
+    lying more than `limits.MAX_OFFSET` times its own size from the origin.
+    """
+    magnitude = np.abs(vertices).max(axis=1)
+    far = int(np.argmax(magnitude))
+    if magnitude[far] > limits.MAX_COORDINATE:
+        raise ModelError(f"vertices[{far}]: coordinate {magnitude[far]:.3g} is beyond the limit of "
+                         f"{limits.MAX_COORDINATE:g} in size (docs/format.md, Limits)")
+    extent = np.ptp(vertices, axis=0)
+    if 0 < extent.max() < limits.MIN_SIZE:
+        raise ModelError(f"vertices: the model's size {extent.max():.3g} is below the limit of "
+                         f"{limits.MIN_SIZE:g} (docs/format.md, Limits)")
+    size = float(np.linalg.norm(extent))
+    if magnitude[far] > limits.MAX_OFFSET * size:
+        raise ModelError(f"vertices[{far}]: coordinate {magnitude[far]:.3g} is more than {limits.MAX_OFFSET:g} "
+                         f"times the model's size ({size:.3g}) from the origin, beyond float64 precision "
+                         "(docs/format.md, Limits)")
+    return size or 1.0
 
 
 def _edge_table(faces):
@@ -224,9 +262,18 @@ def build_mechanism(vertices, faces, hinges, root=0, drive=0, couplings=(), stat
     ModelError
         With the offending field and index in the message.
     """
-    vertices = np.asarray(vertices, dtype=float)
-    faces = tuple(np.asarray(f, dtype=np.int64) for f in faces)
-    hinge_faces = np.asarray(hinges, dtype=np.int64).reshape(-1, 2)
+    try:
+        vertices = np.asarray(vertices, dtype=float)
+        vertices = vertices.reshape(0, 3) if vertices.size == 0 else vertices
+        if vertices.ndim != 2 or vertices.shape[1] != 3:
+            raise ValueError(f"vertices have shape {vertices.shape}, not (V, 3)")
+        faces = tuple(np.asarray(f, dtype=np.int64).reshape(-1) for f in faces)
+        hinge_faces = np.asarray(hinges, dtype=np.int64).reshape(-1, 2)
+    except (OverflowError, ValueError, TypeError) as exc:
+        raise ModelError(f"vertices, faces or hinges: not arrays of numbers of the right shape ({exc})") from None
+    limits.check_count(len(vertices), limits.MAX_VERTICES, "vertices", "vertices")
+    limits.check_count(len(faces), limits.MAX_FACES, "faces", "faces")
+    limits.check_count(len(hinge_faces), limits.MAX_HINGES, "hinges", "hinges")
     n_faces, n_hinges = len(faces), len(hinge_faces)
     if n_faces == 0:
         raise ModelError("faces: no faces")
@@ -301,6 +348,7 @@ def build_mechanism(vertices, faces, hinges, root=0, drive=0, couplings=(), stat
         arr.setflags(write=False)
     object.__setattr__(mech, "cut_faces", cut_faces)
     object.__setattr__(mech, "cut_points", cut_points)
+    check_rates(mech)
     return mech
 
 

@@ -28,7 +28,7 @@ import numpy as np
 from .errors import ModelError
 from .limits import DEFAULT_LIMIT, DEFAULT_MAX_STATES  # noqa: F401  (part of this module's interface)
 from .nets import _check_connected, face_graph, face_pairs, tree_diameter
-from .symmetry import symmetry_group
+from .symmetry import symmetry_group, symmetry_tolerances
 
 _SMALL = 4096  # partial states with at most this many completions keep them as one array
 _BATCH = 65536  # trees handed to the symmetry filter (and reported as progress) at a time
@@ -610,7 +610,8 @@ def _less(a, b):
     return less
 
 
-def nets_up_to_symmetry(poly, limit=DEFAULT_LIMIT, progress=None, max_states=DEFAULT_MAX_STATES):
+def nets_up_to_symmetry(poly, limit=DEFAULT_LIMIT, progress=None, max_states=DEFAULT_MAX_STATES,
+                        symmetry_tol=None):
     """Count a polyhedron's nets and, if the trees are few enough, list one per net.
 
     Parameters
@@ -622,6 +623,9 @@ def nets_up_to_symmetry(poly, limit=DEFAULT_LIMIT, progress=None, max_states=DEF
         Called as ``progress(done, total)`` after each batch of trees is sorted out.
     max_states : int or None, optional
         Work limit per symmetry for Burnside's counts, see `fixed_spanning_trees`.
+    symmetry_tol : float, optional
+        Vertex-matching tolerance of the symmetry search, relative to the size;
+        see `foldsim.symmetry.symmetry_tolerances`.
 
     Returns
     -------
@@ -638,7 +642,7 @@ def nets_up_to_symmetry(poly, limit=DEFAULT_LIMIT, progress=None, max_states=DEF
     """
     graph = face_graph(poly.faces)
     _check_connected(graph)
-    group = symmetry_group(poly)
+    group = symmetry_group(poly, symmetry_tolerances(symmetry_tol))
     pairs = face_pairs(graph)
     fixed = fixed_spanning_trees(graph, group.edges, max_states)
     total = fixed[0]

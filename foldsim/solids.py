@@ -15,6 +15,7 @@ from scipy.sparse.csgraph import connected_components
 from scipy.spatial import ConvexHull, QhullError
 
 from foldsim.errors import ModelError
+from foldsim.limits import MAX_SIDES, MAX_SOLID_SIZE
 from foldsim.tolerances import DEFAULT
 
 PHI = (1.0 + np.sqrt(5.0)) / 2.0  # the golden ratio
@@ -307,8 +308,8 @@ _NAMED = {
     "icosahedron": icosahedron, "truncated-tetrahedron": truncated_tetrahedron, "cuboctahedron": cuboctahedron,
 }
 _FAMILIES = {  # kind: (constructor, smallest number, largest number, how it reads)
-    "prism": (prism, 3, np.inf, "prism:N (N >= 3)"),
-    "antiprism": (antiprism, 3, np.inf, "antiprism:N (N >= 3)"),
+    "prism": (prism, 3, MAX_SIDES, f"prism:N (N in 3..{MAX_SIDES})"),
+    "antiprism": (antiprism, 3, MAX_SIDES, f"antiprism:N (N in 3..{MAX_SIDES})"),
     "geodesic": (geodesic, 0, 5, "geodesic:K (K in 0..5)"),
 }
 _EXPECTED = ", ".join(list(_NAMED) + [family[3] for family in _FAMILIES.values()])
@@ -322,9 +323,11 @@ def builtin(spec, size=None):
     spec : str
         One of ``tetrahedron``, ``cube``, ``octahedron``, ``dodecahedron``,
         ``icosahedron``, ``truncated-tetrahedron``, ``cuboctahedron``, ``prism:N``,
-        ``antiprism:N`` (N >= 3) or ``geodesic:K`` (K in 0..5); case-insensitive.
+        ``antiprism:N`` (N in 3..`foldsim.limits.MAX_SIDES`) or ``geodesic:K`` (K in
+        0..5); case-insensitive.
     size : float, optional
-        Edge length, or the circumradius for ``geodesic:K``; default 1.
+        Edge length, or the circumradius for ``geodesic:K``; default 1, at most
+        `foldsim.limits.MAX_SOLID_SIZE`.
 
     Returns
     -------
@@ -347,6 +350,9 @@ def builtin(spec, size=None):
         kwargs = {} if size is None else {"radius" if kind == "geodesic" else "edge": _positive(size, "size")}
     except (TypeError, ValueError):
         raise ModelError(f"built-in solid {spec!r}: size must be a positive number, got {size!r}") from None
+    if any(not 1.0 / MAX_SOLID_SIZE <= value <= MAX_SOLID_SIZE for value in kwargs.values()):
+        raise ModelError(f"--size: {size:g} is outside the limit of {1.0 / MAX_SOLID_SIZE:g}..{MAX_SOLID_SIZE:g} "
+                         "for a built-in solid (docs/format.md, Limits)")
     try:
         return _NAMED[text](**kwargs) if family is None else family[0](int(number), **kwargs)
     except ValueError as exc:

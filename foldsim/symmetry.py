@@ -13,14 +13,52 @@ of the faces around it) and, when possible, the second and third references are
 neighbours of the first, so their images must be neighbours of its image.
 """
 
-from dataclasses import dataclass
+import math
+from dataclasses import dataclass, replace
 
 import numpy as np
 from scipy.spatial import cKDTree
 
-from .errors import ModelError
+from .errors import FoldsimError, ModelError
 from .nets import face_graph, face_pairs
 from .tolerances import DEFAULT
+
+
+DEFAULT_SYMMETRY_TOL = DEFAULT.planar
+"""Default relative distance within which a vertex's image must land on a vertex."""
+MAX_SYMMETRY_TOL = 1e-2
+
+
+def symmetry_tolerances(rel=None, tol=DEFAULT):
+    """The tolerances `symmetry_group` uses, with the vertex-matching tolerance ``rel``.
+
+    Parameters
+    ----------
+    rel : float, optional
+        Relative to the bounding-box diagonal; default `DEFAULT_SYMMETRY_TOL`
+        (``tol.planar``). A box 1 x 1 x (1 + d) counts as a cube when d is below
+        about ``rel`` times its diagonal, so exact counts of nearly symmetric solids
+        need a smaller value.
+
+    Returns
+    -------
+    Tolerances
+
+    Raises
+    ------
+    FoldsimError
+        Unless ``0 < rel <= MAX_SYMMETRY_TOL``.
+
+    Examples
+    --------
+    >>> symmetry_tolerances(1e-9).planar
+    1e-09
+    """
+    if rel is None:
+        return replace(tol, planar=DEFAULT_SYMMETRY_TOL)
+    if not (math.isfinite(rel) and 0 < rel <= MAX_SYMMETRY_TOL):
+        raise FoldsimError(f"--symmetry-tol: must lie in (0, {MAX_SYMMETRY_TOL:g}], not {rel}")
+    return replace(tol, planar=float(rel))
 
 
 @dataclass(frozen=True, eq=False)

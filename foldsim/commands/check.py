@@ -1,6 +1,7 @@
 """`foldsim check`: fold a mechanism over its motion and report what holds."""
 
 import json
+import math
 
 from ..errors import FoldsimError
 
@@ -91,8 +92,8 @@ def run(args):
     for value, name in ((args.t_from, "--from"), (args.t_to, "--to")):
         _range(value, name, -1.0, 1.0)
     for value, name in ((args.gap_tol, "--gap-tol"), (args.clearance, "--clearance")):
-        if value is not None and not value >= 0:
-            raise FoldsimError(f"{name}: must be a non-negative length, not {value}")
+        if value is not None and not 0 <= value < math.inf:
+            raise FoldsimError(f"{name}: must be a finite non-negative length, not {value}")
     _check_play_options(args)
     mech = load(args.model)
     report = check(mech, t_from=args.t_from, t_to=args.t_to, gap_tol=args.gap_tol,
@@ -111,7 +112,7 @@ def _check_play_options(args):
             if value is not None:
                 raise FoldsimError(f"{name}: only used by the play check; give --play-p95-limit too")
         return
-    if not args.play_p95_limit >= 0:
+    if not 0 <= args.play_p95_limit < math.inf:
         raise FoldsimError(f"--play-p95-limit: must be a non-negative length, not {args.play_p95_limit}")
     check_options(10_000 if args.samples is None else args.samples, args.process)
 

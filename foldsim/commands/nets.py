@@ -28,6 +28,9 @@ def register(sub):
     nets.add_argument("--limit", type=int, default=DEFAULT_LIMIT, metavar="N",
                       help="list the distinct nets only if the solid has at most N spanning trees "
                            f"(default {DEFAULT_LIMIT:,}; the counts are exact either way)")
+    nets.add_argument("--symmetry-tol", type=float, default=None, metavar="REL",
+                      help="a symmetry must carry every vertex within REL times the solid's size of a vertex "
+                           "(default 1e-5); smaller values count nearly symmetric solids exactly")
     nets.add_argument("--progress", action="store_true",
                       help="show the listing's progress on stderr even when it is not a terminal")
     nets.set_defaults(run=run)
@@ -246,17 +249,20 @@ def run(args):
     if args.best is not None and args.best < 1:
         raise FoldsimError(f"--best: must be at least 1, not {args.best}")
     best = args.best if args.best is not None else (1 if args.out is not None else None)
+    from ..symmetry import symmetry_tolerances
+
+    symmetry_tol = symmetry_tolerances(args.symmetry_tol).planar
     poly = _load_shape(args.shape)
     graph = face_graph(poly.faces)
     progress = _Progress(args.progress or sys.stderr.isatty(), sys.stderr)
     try:
-        census = nets_up_to_symmetry(poly, limit=args.limit, progress=progress)
+        census = nets_up_to_symmetry(poly, limit=args.limit, progress=progress, symmetry_tol=symmetry_tol)
         progress.finish()
         choice = min_diameter_net(graph)
         report = {
             "shape": poly.name, "faces": census.faces, "face_pairs": len(census.pairs),
             "spanning_trees": census.spanning_trees, "symmetry_order": census.symmetry_order,
-            "rotations": census.rotations,
+            "rotations": census.rotations, "symmetry_tolerance": symmetry_tol,
             "nets": census.nets, "nets_up_to_rotation": census.nets_up_to_rotation,
             "enumerated": census.enumerated,
             "min_diameter_hinges": int(census.diameters[0]) if census.enumerated else choice.diameter,

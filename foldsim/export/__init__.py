@@ -16,8 +16,10 @@ Every file is written atomically: to a temporary file in the same folder, then
 renamed over the target, so a failed export leaves any old file whole.
 """
 
+import math
 from pathlib import Path
 
+from .. import limits
 from ..errors import FoldsimError
 from .common import check_t, drive_samples
 
@@ -25,6 +27,18 @@ FORMATS = {
     ".glb": "glb", ".gltf": "gltf", ".svg": "svg", ".csv": "csv", ".json": "json",
     ".html": "html", ".htm": "html", ".stl": "stl", ".obj": "obj",
 }
+
+
+def check_frames(frames, n_faces):
+    """Refuse more frames than `limits.MAX_FRAMES`, or frames x panels over `limits.MAX_FRAME_PANELS`."""
+    if frames is None:
+        return
+    if frames > limits.MAX_FRAMES:
+        raise FoldsimError(f"--frames: {frames:,} is more than the limit of {limits.MAX_FRAMES:,} frames")
+    if frames * n_faces > limits.MAX_FRAME_PANELS:
+        raise FoldsimError(f"--frames: {frames:,} frames of {n_faces:,} panels is more than the limit of "
+                           f"{limits.MAX_FRAME_PANELS:,} panel poses; ask for at most "
+                           f"{limits.MAX_FRAME_PANELS // n_faces:,} frames")
 
 
 def format_of(path):
@@ -88,9 +102,11 @@ def export(mech, path, t_from=0.0, t_to=1.0, frames=None, seconds=4.0, t=None, s
         views = [check_t(v, "--views") for v in views]
     if frames is not None and frames < 2:
         raise FoldsimError(f"--frames: need at least 2, not {frames}")
-    for value, name in ((clearance, "--clearance"), (gap_tol, "--gap-tol")):
-        if value is not None and not value >= 0:
-            raise FoldsimError(f"{name}: must be a non-negative length, not {value}")
+    check_frames(frames, mech.n_faces)
+    for value, name in ((clearance, "--clearance"), (gap_tol, "--gap-tol"), (seam_gap, "--seam-gap"),
+                        (tabs, "--tabs")):
+        if value is not None and not 0 <= value < math.inf:
+            raise FoldsimError(f"{name}: must be a finite non-negative length, not {value}")
     if kind in ("glb", "gltf"):
         from . import gltf
 

@@ -153,7 +153,10 @@ def write_atomic_bytes(path, data):
     FoldsimError
         When the file cannot be written; the old file, if any, stays whole.
     """
+    from ..io.mechanism_json import remove_stale_temporaries
+
     path = Path(path)
+    remove_stale_temporaries(path.parent)
     try:
         fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=path.parent)
     except OSError as exc:

@@ -7,12 +7,16 @@ with one line naming the file, the field and the index.
 import json
 import math
 import os
+import re
 import tempfile
+import time
 from pathlib import Path
 
 import numpy as np
 
+from .. import limits
 from ..errors import ModelError
+from ..limits import as_float, check_count, check_text, quote
 from ..model import Coupling, build_mechanism
 from ..tolerances import DEFAULT
 
@@ -38,6 +42,9 @@ def load(path, tol=DEFAULT):
     """
     path = Path(path)
     try:
+        if path.is_file() and path.stat().st_size > limits.MAX_FILE_BYTES:
+            raise ModelError(f"{path}: the file is {_mib(path.stat().st_size)}, larger than the limit of "
+                             f"{_mib(limits.MAX_FILE_BYTES)} (docs/format.md, Limits)")
         text = path.read_text(encoding="utf-8")
     except (OSError, UnicodeDecodeError) as exc:
         reason = exc.strerror if isinstance(exc, OSError) and exc.strerror else "not readable as UTF-8 text"
@@ -45,31 +52,90 @@ def load(path, tol=DEFAULT):
     return loads(text, source=str(path), tol=tol)
 
 
+def _mib(n):
+    return f"{n / 2**20:,.1f} MiB" if n < 2**30 else f"{n / 2**30:,.1f} GiB"
+
+
+class _LongNumber(Exception):
+    """A number literal longer than `limits.MAX_NUMBER_CHARS` (raised by the parser hooks)."""
+
+
+def _parse_number(kind):
+    def parse(literal):
+        if len(literal) > limits.MAX_NUMBER_CHARS:
+            raise _LongNumber(literal)
+        return kind(literal)
+    return parse
+
+
+_PARSE = {"parse_int": _parse_number(int), "parse_float": _parse_number(float)}
+
+
 def loads(text, source="<string>", tol=DEFAULT):
     """Parse a mechanism document from JSON text; see `load`."""
     if not text.strip():
         raise ModelError(f"{source}: file is empty")
+    if len(text) > limits.MAX_FILE_BYTES:
+        raise ModelError(f"{source}: the text has {len(text):,} characters, more than the limit of "
+                         f"{limits.MAX_FILE_BYTES:,} (docs/format.md, Limits)")
     try:
-        doc = json.loads(text)
+        doc = json.loads(text, **_PARSE)
     except json.JSONDecodeError as exc:
         raise ModelError(f"{source}: invalid JSON at line {exc.lineno} column {exc.colno}: {exc.msg}") from None
+    except _LongNumber as exc:
+        literal = str(exc)
+        line = text.count("\n", 0, max(text.find(literal), 0)) + 1
+        raise ModelError(f"{source}: line {line}: a number of {len(literal):,} characters "
+                         f"({quote(literal[:20] + '...')}), longer than the limit of "
+                         f"{limits.MAX_NUMBER_CHARS} (docs/format.md, Limits)") from None
+    except RecursionError:
+        raise ModelError(f"{source}: arrays or objects nested deeper than the limit of "
+                         f"{limits.MAX_DEPTH} levels (docs/format.md, Limits)") from None
     try:
         return from_document(doc, tol=tol)
     except ModelError as exc:
         raise ModelError(f"{source}: {exc}") from None
 
 
-def _int(value, field, minimum=None):
+def _check_structure(doc):
+    """Nesting depth and string lengths of every top-level value, without recursion."""
+    for key, value in doc.items():
+        field = quote(key) if len(key) > limits.QUOTE_CHARS else key
+        check_text(key, "keys")
+        stack = [(value, 1)]
+        while stack:
+            item, depth = stack.pop()
+            if isinstance(item, str):
+                if len(item) > limits.MAX_STRING_CHARS:
+                    raise ModelError(f"{field}: a string of {len(item):,} characters, longer than the "
+                                     f"limit of {limits.MAX_STRING_CHARS:,} (docs/format.md, Limits)")
+            elif isinstance(item, (list, dict)):
+                if depth >= limits.MAX_DEPTH:
+                    raise ModelError(f"{field}: arrays or objects nested deeper than the limit of "
+                                     f"{limits.MAX_DEPTH} levels (docs/format.md, Limits)")
+                if isinstance(item, dict):
+                    for k in item:
+                        if len(k) > limits.MAX_STRING_CHARS:
+                            raise ModelError(f"{field}: a key of {len(k):,} characters, longer than the "
+                                             f"limit of {limits.MAX_STRING_CHARS:,} (docs/format.md, Limits)")
+                    item = item.values()
+                stack.extend((x, depth + 1) for x in item)
+
+
+def _int(value, field, minimum=None, count=None, what=None):
+    """An integer; with ``count``, an index in 0..count-1 of a ``what``."""
     if isinstance(value, bool) or not isinstance(value, int):
-        raise ModelError(f"{field}: must be an integer, not {json.dumps(value)}")
+        raise ModelError(f"{field}: must be an integer, not {quote(value)}")
     if minimum is not None and value < minimum:
-        raise ModelError(f"{field}: must be at least {minimum}, not {value}")
+        raise ModelError(f"{field}: must be at least {minimum}, not {quote(value)}")
+    if count is not None and not 0 <= value < count:
+        raise ModelError(f"{field}: {what} {quote(value)} out of range (0..{count - 1})")
     return value
 
 
 def _number(value, field):
-    if isinstance(value, bool) or not isinstance(value, (int, float)) or not math.isfinite(value):
-        raise ModelError(f"{field}: must be a finite number, not {json.dumps(value)}")
+    if isinstance(value, bool) or not isinstance(value, (int, float)) or not math.isfinite(as_float(value)):
+        raise ModelError(f"{field}: must be a finite number, not {quote(value)}")
     return float(value)
 
 
@@ -79,7 +145,12 @@ def _list(doc, key, required=True):
         raise ModelError(f"{key}: missing")
     if not isinstance(value, list):
         raise ModelError(f"{key}: must be a list")
+    check_count(len(value), _LIMITS[key], key, "entries")
     return value
+
+
+_LIMITS = {"vertices": limits.MAX_VERTICES, "faces": limits.MAX_FACES, "hinges": limits.MAX_HINGES,
+           "couplings": limits.MAX_COUPLINGS}
 
 
 def from_document(doc, tol=DEFAULT):
@@ -91,39 +162,41 @@ def from_document(doc, tol=DEFAULT):
     """
     if not isinstance(doc, dict):
         raise ModelError("the document must be a JSON object")
+    _check_structure(doc)
     schema = doc.get("schema")
     if schema != SCHEMA:
-        raise ModelError(f"schema: expected {SCHEMA!r}, found {schema!r}")
+        shown = repr(schema) if isinstance(schema, str) and len(schema) <= limits.QUOTE_CHARS else quote(schema)
+        raise ModelError(f"schema: expected {SCHEMA!r}, found {shown}")
     state = doc.get("state", "closed")
     if state not in ("closed", "flat"):
-        raise ModelError(f"state: must be 'closed' or 'flat', not {json.dumps(state)}")
+        raise ModelError(f"state: must be 'closed' or 'flat', not {quote(state)}")
     vertices = []
     for i, v in enumerate(_list(doc, "vertices")):
         if not isinstance(v, list) or len(v) != 3:
             raise ModelError(f"vertices[{i}]: must be [x, y, z]")
         vertices.append([_number(x, f"vertices[{i}]") for x in v])
     faces = []
+    n_vertices = len(vertices)
     for i, f in enumerate(_list(doc, "faces")):
         if not isinstance(f, list):
             raise ModelError(f"faces[{i}]: must be a list of vertex indices")
-        faces.append([_int(v, f"faces[{i}]") for v in f])
+        check_count(len(f), limits.MAX_FACE_VERTICES, f"faces[{i}]", "vertices")
+        faces.append([_int(v, f"faces[{i}]", count=n_vertices, what="vertex index") for v in f])
+    n_faces = len(faces)
     hinges, angles = [], []
     for i, h in enumerate(_list(doc, "hinges")):
         if not isinstance(h, dict) or not isinstance(h.get("faces"), list) or len(h["faces"]) != 2:
             raise ModelError(f"hinges[{i}]: must be an object with \"faces\": [a, b]")
-        hinges.append([_int(f, f"hinges[{i}].faces") for f in h["faces"]])
+        hinges.append([_int(f, f"hinges[{i}]", count=n_faces, what="face") for f in h["faces"]])
         if state == "flat":
             if "closed_angle_deg" not in h:
                 raise ModelError(f"hinges[{i}]: closed_angle_deg is required when state is flat")
             angles.append(math.radians(_number(h["closed_angle_deg"], f"hinges[{i}].closed_angle_deg")))
-    couplings = [_coupling(c, i) for i, c in enumerate(_list(doc, "couplings", required=False))]
-    root = _int(doc.get("root", 0), "root")
-    drive = _int(doc.get("drive", 0), "drive")
-    name = doc.get("name", "")
-    units = doc.get("units", "mm")
-    for key, value in (("name", name), ("units", units)):
-        if not isinstance(value, str):
-            raise ModelError(f"{key}: must be a string")
+    couplings = [_coupling(c, i, len(hinges)) for i, c in enumerate(_list(doc, "couplings", required=False))]
+    root = _int(doc.get("root", 0), "root", count=max(n_faces, 1), what="face")
+    drive = _int(doc.get("drive", 0), "drive", count=max(len(hinges), 1), what="hinge")
+    name = check_text(doc.get("name", ""), "name")
+    units = check_text(doc.get("units", "mm"), "units")
     known = {"schema", "name", "units", "state", "vertices", "faces", "root", "hinges", "couplings", "drive"}
     extras = {k: v for k, v in doc.items() if k not in known}
     if "tolerances" in extras:  # optional hinge play and gear backlash, docs/stackup.md
@@ -137,22 +210,26 @@ def from_document(doc, tol=DEFAULT):
         name=name, units=units, extras=extras, tol=tol)
 
 
-def _coupling(c, i):
+def _coupling(c, i, n_hinges):
     field = f"couplings[{i}]"
     if not isinstance(c, dict) or not isinstance(c.get("hinges"), list) or len(c["hinges"]) != 2:
         raise ModelError(f"{field}: must be an object with \"hinges\": [i, j]")
-    pair = tuple(_int(h, f"{field}.hinges") for h in c["hinges"])
+    pair = tuple(_int(h, field, count=n_hinges, what="hinge") for h in c["hinges"])
     if ("ratio" in c) == ("teeth" in c):
         raise ModelError(f"{field}: give exactly one of \"ratio\" or \"teeth\"")
     if "teeth" in c:
         teeth = c["teeth"]
         if (not isinstance(teeth, list) or len(teeth) != 2
                 or any(isinstance(z, bool) or not isinstance(z, int) or z <= 0 for z in teeth)):
-            raise ModelError(f"{field}.teeth: must be two positive integers, not {json.dumps(teeth)}")
+            raise ModelError(f"{field}.teeth: must be two positive integers, not {quote(teeth)}")
+        if max(teeth) > limits.MAX_TEETH:
+            raise ModelError(f"{field}.teeth: {quote(max(teeth))} teeth, more than the limit of "
+                             f"{limits.MAX_TEETH:,} (docs/format.md, Limits)")
         return Coupling(pair, teeth[0] / teeth[1], tuple(teeth))
     ratio = c["ratio"]
-    if isinstance(ratio, bool) or not isinstance(ratio, (int, float)) or not math.isfinite(ratio) or ratio == 0:
-        raise ModelError(f"{field}.ratio: must be a finite non-zero number, not {json.dumps(ratio)}")
+    if (isinstance(ratio, bool) or not isinstance(ratio, (int, float)) or not math.isfinite(as_float(ratio))
+            or ratio == 0):
+        raise ModelError(f"{field}.ratio: must be a finite non-zero number, not {quote(ratio)}")
     return Coupling(pair, float(ratio))
 
 
@@ -205,9 +282,42 @@ def dumps(mech):
     return "\n".join(lines) + "\n"
 
 
+STALE_SECONDS = 3600
+"""A temporary ``.NAME.XXXXXXXX.tmp`` file older than this is left from a killed save."""
+_TEMP_NAME = re.compile(r"\..+\.[A-Za-z0-9_]{8}\.tmp")
+
+
+def remove_stale_temporaries(folder, now=None):
+    """Delete temporary files that killed saves left in ``folder``; return their names.
+
+    Only files named like our temporaries (``.NAME.XXXXXXXX.tmp``) and last
+    modified more than `STALE_SECONDS` ago are removed, so a save running at the
+    same time keeps its file. Files that vanish or cannot be removed are skipped.
+    """
+    now = time.time() if now is None else now
+    removed = []
+    try:
+        entries = list(os.scandir(folder))
+    except OSError:
+        return removed
+    for entry in entries:
+        try:
+            if (_TEMP_NAME.fullmatch(entry.name) and entry.is_file(follow_symlinks=False)
+                    and now - entry.stat(follow_symlinks=False).st_mtime > STALE_SECONDS):
+                os.unlink(entry.path)
+                removed.append(entry.name)
+        except OSError:
+            continue
+    return removed
+
+
 def write_atomic(path, text):
-    """Replace a file's contents atomically: the old file stays whole on failure."""
+    """Replace a file's contents atomically: the old file stays whole on failure.
+
+    Stale temporaries of earlier killed saves in the same folder are removed first.
+    """
     path = Path(path)
+    remove_stale_temporaries(path.parent)
     fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=path.parent or ".")
     try:
         with os.fdopen(fd, "w", encoding="utf-8") as out:

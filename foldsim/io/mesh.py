@@ -13,6 +13,8 @@ triangles are then checked and turned into planar polygon faces:
 Every problem raises `ModelError` with one line naming the file.
 """
 
+import io
+import logging
 import struct
 from pathlib import Path
 
@@ -22,8 +24,11 @@ from scipy.sparse.csgraph import connected_components
 
 from ..analysis.broadphase import overlapping_boxes
 from ..analysis.triangles import triangles_collide
+from ..model import _check_magnitude
+from .. import limits
 from ..errors import ModelError
 from ..solids import Polyhedron
+from .mesh_checks import check_bytes, text_bytes
 from ..tolerances import DEFAULT
 
 FORMATS = ("obj", "off", "stl", "ply")
@@ -37,22 +42,45 @@ def _point(p):
     return "(" + ", ".join(f"{x:.6g}" for x in p) + ")"
 
 
+def _quiet_trimesh():
+    """Keep trimesh's log records (it logs tracebacks of what it recovers from) off stderr."""
+    logger = logging.getLogger("trimesh")
+    if not any(isinstance(h, logging.NullHandler) for h in logger.handlers):
+        logger.addHandler(logging.NullHandler())
+    logger.propagate = False
+
+
 def _read(path, kind):
     """Vertices (V, 3) float and triangles (T, 3) int of a file, duplicate vertices merged."""
     try:
         import trimesh
     except ImportError:
         raise ModelError(f"{path}: reading mesh files needs the 'trimesh' package") from None
+    _quiet_trimesh()
     try:
-        mesh = trimesh.load(str(path), file_type=kind, process=False, force="mesh")
+        size = path.stat().st_size
+        if size > limits.MAX_MESH_BYTES:
+            raise ModelError(f"{path}: the file is {size / 2**20:,.1f} MiB, larger than the limit of "
+                             f"{limits.MAX_MESH_BYTES // 2**20} MiB (docs/format.md, Limits)")
+        data = path.read_bytes()
+    except OSError as exc:
+        raise ModelError(f"{path}: cannot read file: {exc.strerror or exc}") from None
+    check_bytes(path, kind, data)
+    data = text_bytes(kind, data)
+    try:
+        mesh = trimesh.load(io.BytesIO(data), file_type=kind, process=False, force="mesh")
         if isinstance(mesh, trimesh.Trimesh) and len(mesh.faces) and np.isfinite(mesh.vertices).all():
             mesh.merge_vertices(merge_tex=True, merge_norm=True)
     except _READ_ERRORS as exc:
-        raise ModelError(f"{path}: cannot read as {kind.upper()}: {exc}") from None
+        reason = " ".join(str(exc).split()) or type(exc).__name__
+        raise ModelError(f"{path}: cannot read as {kind.upper()}: {reason if len(reason) <= 80 else reason[:77] + '...'}") from None
     if not isinstance(mesh, trimesh.Trimesh):
         raise ModelError(f"{path}: no triangle mesh found in the file")
     vertices = np.asarray(mesh.vertices, dtype=np.float64)
     triangles = np.asarray(mesh.faces, dtype=np.int64).reshape(-1, 3)
+    limits.check_count(len(triangles), limits.MAX_TRIANGLES, str(path), "triangles")
+    if len(triangles) and (triangles.min() < 0 or triangles.max() >= len(vertices)):
+        raise ModelError(f"{path}: a face refers to a vertex the file does not have")
     if len(triangles) == 0:
         raise ModelError(f"{path}: no triangles found (is it a {kind.upper()} mesh?)")
     if not np.isfinite(vertices).all():
@@ -248,11 +276,16 @@ def load_mesh(path, tol=DEFAULT):
     if kind not in FORMATS:
         raise ModelError(f"{path}: unsupported mesh format {path.suffix!r}; use one of "
                          + ", ".join(f".{k}" for k in FORMATS))
+    if path.is_dir():
+        raise ModelError(f"{path}: cannot read file: it is a directory")
     if not path.is_file():
         raise ModelError(f"{path}: cannot read file: no such file")
     vertices, triangles = _read(path, kind)
     used = np.unique(triangles)
-    size = float(np.linalg.norm(np.ptp(vertices[used], axis=0))) or 1.0
+    try:
+        size = _check_magnitude(vertices[used])
+    except ModelError as exc:
+        raise ModelError(f"{path}: {exc}") from None
     _check_triangles(path, vertices, triangles, size, tol)
     pairs = _check_surface(path, vertices, triangles)
     _check_no_crossing(path, vertices, triangles, size, tol)

@@ -13,6 +13,13 @@ import numpy as np
 
 from ..errors import ModelError
 from ..limits import DEFAULT_SAMPLES, DEFAULT_TIMES  # noqa: F401  (part of this module's interface)
+from ..limits import QUOTE_CHARS, as_float, quote
+
+
+def _show(value, width=QUOTE_CHARS):
+    """A value for a message: ``repr`` of a short string, else `foldsim.limits.quote`."""
+    return repr(value) if isinstance(value, str) and len(value) <= width else quote(value, width)
+
 
 KINDS = ("play", "tilt_across", "tilt_normal", "axial", "shift_across", "shift_normal")
 N_KINDS = len(KINDS)
@@ -94,8 +101,8 @@ def process_totals(process, hinge_lengths):
 
 
 def _check_process(name, field):
-    if name not in PROCESSES:
-        raise ModelError(f"{field}: unknown process {name!r} (known: {', '.join(PROCESSES)})")
+    if not isinstance(name, str) or name not in PROCESSES:
+        raise ModelError(f"{field}: unknown process {_show(name)} (known: {', '.join(PROCESSES)})")
 
 
 def _mm_per_unit(units, why):
@@ -103,7 +110,7 @@ def _mm_per_unit(units, why):
         return MM_PER_UNIT[units]
     except KeyError:
         known = ", ".join(sorted(MM_PER_UNIT))
-        raise ModelError(f"units: cannot convert {why} (in mm) to {units!r} (known: {known}); "
+        raise ModelError(f"units: cannot convert {why} (in mm) to {_show(units)} (known: {known}); "
                          "give the tolerances in the file instead") from None
 
 
@@ -146,10 +153,10 @@ _TOP_KEYS = {"process", "hinge", "hinges", "coupling", "couplings", *_PROCESS_KE
 
 
 def _length(value, field, positive=False):
-    if isinstance(value, bool) or not isinstance(value, (int, float)) or not math.isfinite(value):
-        raise ModelError(f"{field}: must be a finite number, not {value!r}")
+    if isinstance(value, bool) or not isinstance(value, (int, float)) or not math.isfinite(as_float(value)):
+        raise ModelError(f"{field}: must be a finite number, not {_show(value)}")
     if value < 0 or (positive and value == 0):
-        raise ModelError(f"{field}: must be {'positive' if positive else 'non-negative'}, not {value!r}")
+        raise ModelError(f"{field}: must be {'positive' if positive else 'non-negative'}, not {_show(value)}")
     return float(value)
 
 
@@ -157,7 +164,7 @@ def _pair(value, field):
     """A number applied to both axes, or [across, normal]."""
     if isinstance(value, list):
         if len(value) != 2:
-            raise ModelError(f"{field}: must be a number or [across, normal], not {value!r}")
+            raise ModelError(f"{field}: must be a number or [across, normal], not {_show(value)}")
         return tuple(_length(v, f"{field}[{i}]") for i, v in enumerate(value))
     v = _length(value, field)
     return v, v
@@ -168,7 +175,7 @@ def _object(value, field, allowed):
         raise ModelError(f"{field}: must be an object")
     unknown = sorted(set(value) - allowed)
     if unknown:
-        raise ModelError(f"{field}.{unknown[0]}: unknown key (known: {', '.join(sorted(allowed))})")
+        raise ModelError(f"{field}.{quote(unknown[0], 30)[1:-1]}: unknown key (known: {', '.join(sorted(allowed))})")
     return value
 
 
@@ -212,7 +219,7 @@ def _indexed(items, field, key, count, parse):
             raise ModelError(f"{here}.{key}: missing (which {key} this entry is for)")
         index = item[key]
         if isinstance(index, bool) or not isinstance(index, int) or not 0 <= index < count:
-            raise ModelError(f"{here}.{key}: must be an index in 0..{count - 1}, not {index!r}")
+            raise ModelError(f"{here}.{key}: must be an index in 0..{count - 1}, not {_show(index)}")
         if index in out:
             raise ModelError(f"{here}.{key}: {key} {index} is listed twice")
         out[index] = parse(item, here)
@@ -326,7 +333,7 @@ class PlaySpec:
 
 def _check_dist(dist):
     if dist not in DISTRIBUTIONS:
-        raise ModelError(f"dist: must be one of {', '.join(DISTRIBUTIONS)}, not {dist!r}")
+        raise ModelError(f"dist: must be one of {', '.join(DISTRIBUTIONS)}, not {_show(dist)}")
 
 
 def hinge_lengths(mech):
