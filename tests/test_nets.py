@@ -361,3 +361,56 @@ def test_cli_progress_lines(capsys):
     assert code == 0
     assert "listing trees: 1,805 / 1,805 (100%)" in err  # 1,805 = matrix-tree count (networkx below)
     assert round(nx.number_of_spanning_trees(face_adjacency(builtin("prism:5")))) == 1805
+
+
+def test_cheap_part_counts_agree_with_built_mechanisms():
+    # The cheap ranking must give the part types of foldsim.parts on every listed net;
+    # the reference side builds each net's mechanism (common practice: two routes agree).
+    from foldsim.netcount.ranking import NetScorer
+    from foldsim.parts import part_types
+
+    for spec in ("cube", "octahedron", "prism:5"):
+        poly = builtin(spec)
+        census = nets_up_to_symmetry(poly)
+        scorer = NetScorer(poly)
+        for tree in census.representatives:
+            hinges = tree_pairs(tree, census.pairs)
+            root = central_face(census.faces, hinges)
+            mech = build_mechanism(poly.vertices, poly.faces, hinges_from(root, hinges), root=root)
+            assert scorer.part_count(hinges) == len(part_types(mech))
+
+
+def test_cli_best_builds_only_the_printed_nets(capsys, monkeypatch):
+    built = []
+    real = nets_command._part_counter
+
+    def counting(poly, mechanism):
+        cheap, full, what = real(poly, lambda h: built.append(h) or mechanism(h))
+        return cheap, full, what
+
+    monkeypatch.setattr(nets_command, "_part_counter", counting)
+    code, out, err = run_cli(capsys, "prism:5", "--best", "3", "--json")
+    assert code == 0, err
+    report = json.loads(out)
+    assert len(report["best"]) == 3
+    assert len(built) == 3  # 99 nets (OEIS A103535), only the 3 shown are built
+    for net in report["best"]:
+        hinges = [tuple(sorted(h)) for h in net["hinges"]]
+        assert net["part_types"] == len(part_types_of(builtin("prism:5"), hinges))
+
+
+def part_types_of(poly, hinges):
+    from foldsim.parts import part_types
+
+    root = central_face(len(poly.faces), hinges)
+    return part_types(build_mechanism(poly.vertices, poly.faces, hinges_from(root, hinges), root=root))
+
+
+@pytest.mark.parametrize("argv, faces", [(["geodesic:4"], "5,120"), (["prism:100000"], "100,002"),
+                                         (["geodesic:2", "--max-faces", "100"], "320")])
+def test_cli_refuses_too_many_faces_at_once(capsys, argv, faces):
+    # Face counts: prism n + 2, geodesic:K 20 * 4**K (Euler's formula; common practice).
+    code, out, err = run_cli(capsys, *argv)
+    assert code == 2
+    assert err.startswith("foldsim: --max-faces: ") and f"{faces} faces" in err
+    assert len(err.strip().splitlines()) == 1 and out == ""
