@@ -22,7 +22,7 @@ LAYERS = (
     ("model", ("foldsim.gearing", "foldsim.kinematics", "foldsim.model", "foldsim.solids",
                "foldsim.nets", "foldsim.symmetry", "foldsim.netcount")),
     ("analysis", ("foldsim.analysis", "foldsim.picking", "foldsim.stackup")),
-    ("design", ("foldsim.layout", "foldsim.parts", "foldsim.io", "foldsim.design")),
+    ("design", ("foldsim.layout", "foldsim.parts", "foldsim.io", "foldsim.design", "foldsim.netcount.ranking")),
     ("output", ("foldsim.report", "foldsim.export")),
     ("gui", ("foldsim.gui",)),
     ("front", ("foldsim.commands", "foldsim.cli", "foldsim.__main__")),

@@ -1,4 +1,6 @@
-"""Tests of net counting, listing and symmetry detection, and of the `nets` command.
+"""Tests of symmetry detection, shortest hinge chains, and of the `nets` command.
+
+Counting and listing themselves are tested in test_netcount.py.
 
 Reference values come from the literature listed in ../shared/REFERENCES.md (cited
 beside each check). Where a test computes the reference side itself it does so
@@ -8,7 +10,6 @@ distances with networkx. The face adjacency used on the reference side comes fro
 `helpers.face_adjacency` (built from the face lists alone).
 """
 
-import itertools
 import json
 from collections import Counter
 
@@ -21,93 +22,22 @@ from hypothesis import strategies as st
 from foldsim.analysis.collision import flat_overlaps
 from foldsim.cli import main
 from foldsim.commands import nets as nets_command
-from foldsim.errors import ModelError
 from foldsim.io.mechanism_json import load
 from foldsim.model import build_mechanism
-from foldsim.netcount import (
-    enumerate_spanning_trees, fixed_spanning_trees, nets_up_to_symmetry, number_of_nets,
-    number_of_spanning_trees, tree_pairs,
-)
+from foldsim.netcount import enumerate_spanning_trees, nets_up_to_symmetry, number_of_nets, tree_pairs
 from foldsim.nets import central_face, distances, face_graph, face_pairs, hinges_from, min_diameter_net, tree_diameter
-from foldsim.solids import builtin, polyhedron_from_points
+from foldsim.solids import builtin
 from foldsim.symmetry import symmetry_group
 
 from helpers import face_adjacency, moved
+from net_reference import area_preserving_automorphisms, box, brute_force_trees, square_prism
 
 # Listing all 5,184,000 trees of the two large solids takes seconds; it runs in
 # the normal suite, marked so it can be deselected with -m "not slow".
 SLOW = pytest.mark.slow
 
 
-def square_prism(height):
-    """Right prism on a unit square with the given height (a cube only for height 1)."""
-    base = [(x, y) for x in (0.0, 1.0) for y in (0.0, 1.0)]
-    return polyhedron_from_points([(x, y, z) for x, y in base for z in (0.0, height)], f"box 1x1x{height}")
-
-
-def box(a, b, c):
-    """Axis-aligned box with edges a, b, c."""
-    return polyhedron_from_points(list(itertools.product((0.0, a), (0.0, b), (0.0, c))), f"box {a}x{b}x{c}")
-
-
 # ---------------------------------------------------------------- independent reference side
-
-def _root(link, v):
-    while link[v] != v:
-        v = link[v]
-    return v
-
-
-def brute_force_trees(graph):
-    """Every spanning tree of a graph as a frozenset of sorted node pairs.
-
-    Tries every subset of n - 1 edges and keeps the acyclic ones (a union-find).
-    """
-    nodes = list(graph.nodes)
-    edges = sorted(tuple(sorted(e)) for e in graph.edges())
-    trees = []
-    for subset in itertools.combinations(edges, len(nodes) - 1):
-        link = {v: v for v in nodes}
-        for a, b in subset:
-            ra, rb = _root(link, a), _root(link, b)
-            if ra == rb:
-                break
-            link[ra] = rb
-        else:
-            trees.append(frozenset(subset))
-    return trees
-
-
-def area_preserving_automorphisms(poly):
-    """Face permutations that keep adjacency and every face's area (networkx matcher).
-
-    For the solids tested here (Platonic solids and right prisms) these are exactly
-    the geometric symmetries (elementary; common practice).
-    """
-    graph = face_adjacency(poly)
-    areas = []
-    for face in poly.faces:
-        p = np.asarray(poly.vertices)[face]
-        area = 0.5 * np.linalg.norm(np.cross(p - p[0], np.roll(p, -1, axis=0) - p[0]).sum(axis=0))
-        areas.append(round(float(area), 9))
-    nx.set_node_attributes(graph, dict(enumerate(areas)), "area")
-    matcher = nx.algorithms.isomorphism.GraphMatcher(
-        graph, graph, node_match=lambda x, y: x["area"] == y["area"])
-    return [tuple(m[f] for f in range(len(poly.faces))) for m in matcher.isomorphisms_iter()]
-
-
-def orbit_diameters(poly):
-    """Longest hinge chain of one tree per orbit, via brute force and networkx only."""
-    graph = face_adjacency(poly)
-    autos = area_preserving_automorphisms(poly)
-    seen, diameters = set(), []
-    for tree in brute_force_trees(graph):
-        key = min(tuple(sorted(tuple(sorted((p[a], p[b]))) for a, b in tree)) for p in autos)
-        if key not in seen:
-            seen.add(key)
-            diameters.append(nx.diameter(nx.Graph(list(tree))))
-    return diameters
-
 
 def absolute_center_bound(graph):
     """Twice the absolute radius of an unweighted graph: every node and edge midpoint tried.
@@ -119,81 +49,6 @@ def absolute_center_bound(graph):
     for a, b in graph.edges():
         best = min(best, 2 * max(min(d[a][v], d[b][v]) for v in graph) + 1)
     return best
-
-
-# ---------------------------------------------------------------- spanning trees
-
-TREES = [("tetrahedron", 16), ("cube", 384), ("octahedron", 384),
-         ("dodecahedron", 5_184_000), ("icosahedron", 5_184_000)]
-
-
-@pytest.mark.parametrize("spec, expected", TREES)
-def test_spanning_trees_of_platonic_solids(spec, expected):
-    poly = builtin(spec)
-    # Matrix-tree counts as listed in REFERENCES.md ("Counting nets"); networkx cross-check.
-    assert number_of_spanning_trees(face_graph(poly.faces)) == expected
-    assert round(nx.number_of_spanning_trees(face_adjacency(poly))) == expected
-
-
-@pytest.mark.parametrize("n", [1, 2, 3, 5, 8, 12])
-def test_spanning_trees_of_complete_graphs(n):
-    # Cayley's formula n**(n - 2) (common practice); exact beyond float precision for n = 12.
-    assert number_of_spanning_trees(nx.complete_graph(n)) == n ** (n - 2)
-
-
-def test_spanning_trees_of_disconnected_and_multigraphs():
-    assert number_of_spanning_trees(nx.Graph([(0, 1), (2, 3)])) == 0
-    isolated = nx.Graph()
-    isolated.add_nodes_from([0, 1, 2, 3])  # node 1 alone: the first pivot of the minor is 0
-    isolated.add_edges_from([(0, 2), (2, 3)])
-    assert number_of_spanning_trees(isolated) == 0
-    # Two nodes joined by three parallel edges: three trees (one edge each).
-    assert number_of_spanning_trees(nx.MultiGraph([(0, 1), (0, 1), (0, 1)])) == 3
-    with pytest.raises(ModelError, match="graph"):
-        number_of_spanning_trees(nx.Graph())
-
-
-random_graphs = st.builds(
-    lambda n, p, seed: nx.gnp_random_graph(n, p, seed=seed),
-    st.integers(2, 7), st.floats(0.3, 1.0), st.integers(0, 10_000))
-
-
-@settings(derandomize=True, max_examples=50, deadline=None)
-@given(random_graphs)
-def test_count_and_listing_agree_with_brute_force(graph):
-    reference = brute_force_trees(graph)
-    assert number_of_spanning_trees(graph) == len(reference)
-    if nx.is_connected(graph):
-        assert number_of_spanning_trees(graph) == round(nx.number_of_spanning_trees(graph))
-    pairs = face_pairs(graph)
-    listed = [frozenset(tree_pairs(t, pairs)) for t in enumerate_spanning_trees(graph)]
-    assert len(listed) == len(set(listed))
-    assert set(listed) == set(reference)
-
-
-@pytest.mark.parametrize("spec", ["tetrahedron", "cube", "octahedron", "prism:3", "prism:5", "prism:6"])
-def test_listing_matches_brute_force_on_solids(spec):
-    poly = builtin(spec)
-    pairs = face_pairs(face_graph(poly.faces))
-    listed = [frozenset(tree_pairs(t, pairs)) for t in enumerate_spanning_trees(face_graph(poly.faces))]
-    reference = brute_force_trees(face_adjacency(poly))
-    assert len(listed) == len(set(listed)) == len(reference)
-    assert set(listed) == set(reference)
-
-
-def test_listing_refuses_more_trees_than_the_limit():
-    graph = face_graph(builtin("cube").faces)
-    with pytest.raises(ModelError, match=r"^limit: .*384"):
-        next(enumerate_spanning_trees(graph, limit=383))
-    assert sum(1 for _ in enumerate_spanning_trees(graph, limit=384)) == 384
-
-
-def test_listing_beyond_64_edges():
-    # A 70-cycle: 70 trees, each leaving out one edge (bitmasks wider than one word).
-    graph = nx.cycle_graph(70)
-    trees = list(enumerate_spanning_trees(graph))
-    full = (1 << 70) - 1
-    assert sorted(trees) == sorted(full ^ (1 << e) for e in range(70))
 
 
 # ---------------------------------------------------------------- symmetry groups
@@ -257,87 +112,6 @@ def test_symmetry_survives_rounded_coordinates():
     shifted = moved(builtin("cube", size=10.0), 5, shift=(1.0, 2.0, 3.0))
     shifted.vertices = np.round(shifted.vertices, 6)
     assert symmetry_group(shifted).order == 48
-
-
-# ---------------------------------------------------------------- nets up to symmetry
-
-NETS = [("tetrahedron", 2), ("cube", 11), ("octahedron", 11), ("dodecahedron", 43_380), ("icosahedron", 43_380)]
-PRISM_NETS = [(3, 9), (5, 99), (6, 354)]
-
-
-@pytest.mark.parametrize("spec, expected", NETS)
-def test_nets_of_platonic_solids(spec, expected):
-    # Buekenhout & Parker, Discrete Math. 186 (1998) 69-94.
-    assert number_of_nets(builtin(spec)) == expected
-
-
-@pytest.mark.parametrize("n, expected", PRISM_NETS)
-def test_nets_of_prisms(n, expected):
-    # OEIS A103535, nets of the right n-gonal prism.
-    assert number_of_nets(builtin(f"prism:{n}")) == expected
-
-
-def test_nets_of_a_square_prism_that_is_not_a_cube():
-    # OEIS A103535, n = 4 (a square prism with height != side): 29.
-    assert number_of_nets(square_prism(2.0)) == 29
-
-
-def test_icosahedron_fixed_trees():
-    poly = builtin("icosahedron")
-    fixed = fixed_spanning_trees(face_graph(poly.faces), symmetry_group(poly).edges)
-    # REFERENCES.md: the non-identity symmetries together fix 21,600 trees; the identity all 5,184,000.
-    assert fixed[0] == 5_184_000
-    assert sum(fixed[1:]) == 21_600
-
-
-SMALL = ["tetrahedron", "cube", "octahedron", "prism:3", "prism:5", "prism:6"]
-
-
-@pytest.mark.parametrize("poly", [builtin(s) for s in SMALL] + [square_prism(2.0)], ids=lambda p: p.name)
-def test_listing_matches_orbits_found_by_brute_force(poly):
-    census = nets_up_to_symmetry(poly)
-    reference = orbit_diameters(poly)
-    assert census.enumerated
-    assert len(census.representatives) == census.nets == len(reference)
-    assert census.histogram == dict(sorted(Counter(reference).items()))
-
-
-@pytest.mark.parametrize("poly, expected", [(builtin("tetrahedron"), 2), (builtin("cube"), 11),
-                                            (builtin("octahedron"), 11), (builtin("prism:3"), 9),
-                                            (builtin("prism:5"), 99), (builtin("prism:6"), 354),
-                                            (square_prism(2.0), 29)], ids=lambda p: getattr(p, "name", p))
-def test_listing_agrees_with_published_counts(poly, expected):
-    # Buekenhout & Parker 1998 (Platonic); OEIS A103535 (prisms).
-    census = nets_up_to_symmetry(poly)
-    assert census.nets == len(census.representatives) == expected
-
-
-def test_census_above_the_limit_keeps_the_counts():
-    census = nets_up_to_symmetry(builtin("dodecahedron"), limit=1000)
-    assert not census.enumerated
-    assert census.representatives is None and census.histogram is None
-    assert (census.spanning_trees, census.nets) == (5_184_000, 43_380)  # matrix-tree; Buekenhout & Parker
-
-
-def test_counts_give_up_beyond_the_work_limit():
-    icosahedron = builtin("icosahedron")
-    with pytest.raises(ModelError, match="^max_states: .*icosahedron"):
-        number_of_nets(icosahedron, max_states=10)
-    census = nets_up_to_symmetry(icosahedron, limit=1000, max_states=10)
-    assert census.nets is None and census.nets_up_to_rotation is None
-    assert census.spanning_trees == 5_184_000  # matrix-tree, REFERENCES.md
-    # Listed trees still give the count of distinct nets (Buekenhout & Parker: 11).
-    census = nets_up_to_symmetry(builtin("cube"), max_states=1)
-    assert census.nets == len(census.representatives) == 11
-    assert census.nets_up_to_rotation is None
-
-
-def test_progress_reports_every_tree():
-    calls = []
-    census = nets_up_to_symmetry(builtin("prism:6"), progress=lambda done, total: calls.append((done, total)))
-    assert calls[-1] == (8100, 8100)  # matrix-tree count of the hexagonal prism's face graph (networkx below)
-    assert round(nx.number_of_spanning_trees(face_adjacency(builtin("prism:6")))) == 8100
-    assert census.nets == 354
 
 
 # ---------------------------------------------------------------- shortest hinge chains
@@ -587,3 +361,56 @@ def test_cli_progress_lines(capsys):
     assert code == 0
     assert "listing trees: 1,805 / 1,805 (100%)" in err  # 1,805 = matrix-tree count (networkx below)
     assert round(nx.number_of_spanning_trees(face_adjacency(builtin("prism:5")))) == 1805
+
+
+def test_cheap_part_counts_agree_with_built_mechanisms():
+    # The cheap ranking must give the part types of foldsim.parts on every listed net;
+    # the reference side builds each net's mechanism (common practice: two routes agree).
+    from foldsim.netcount.ranking import NetScorer
+    from foldsim.parts import part_types
+
+    for spec in ("cube", "octahedron", "prism:5"):
+        poly = builtin(spec)
+        census = nets_up_to_symmetry(poly)
+        scorer = NetScorer(poly)
+        for tree in census.representatives:
+            hinges = tree_pairs(tree, census.pairs)
+            root = central_face(census.faces, hinges)
+            mech = build_mechanism(poly.vertices, poly.faces, hinges_from(root, hinges), root=root)
+            assert scorer.part_count(hinges) == len(part_types(mech))
+
+
+def test_cli_best_builds_only_the_printed_nets(capsys, monkeypatch):
+    built = []
+    real = nets_command._part_counter
+
+    def counting(poly, mechanism):
+        cheap, full, what = real(poly, lambda h: built.append(h) or mechanism(h))
+        return cheap, full, what
+
+    monkeypatch.setattr(nets_command, "_part_counter", counting)
+    code, out, err = run_cli(capsys, "prism:5", "--best", "3", "--json")
+    assert code == 0, err
+    report = json.loads(out)
+    assert len(report["best"]) == 3
+    assert len(built) == 3  # 99 nets (OEIS A103535), only the 3 shown are built
+    for net in report["best"]:
+        hinges = [tuple(sorted(h)) for h in net["hinges"]]
+        assert net["part_types"] == len(part_types_of(builtin("prism:5"), hinges))
+
+
+def part_types_of(poly, hinges):
+    from foldsim.parts import part_types
+
+    root = central_face(len(poly.faces), hinges)
+    return part_types(build_mechanism(poly.vertices, poly.faces, hinges_from(root, hinges), root=root))
+
+
+@pytest.mark.parametrize("argv, faces", [(["geodesic:4"], "5,120"), (["prism:100000"], "100,002"),
+                                         (["geodesic:2", "--max-faces", "100"], "320")])
+def test_cli_refuses_too_many_faces_at_once(capsys, argv, faces):
+    # Face counts: prism n + 2, geodesic:K 20 * 4**K (Euler's formula; common practice).
+    code, out, err = run_cli(capsys, *argv)
+    assert code == 2
+    assert err.startswith("foldsim: --max-faces: ") and f"{faces} faces" in err
+    assert len(err.strip().splitlines()) == 1 and out == ""

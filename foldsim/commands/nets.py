@@ -2,12 +2,15 @@
 
 import json
 import sys
+from dataclasses import replace
 from importlib.util import find_spec
 from pathlib import Path
 
 from ..errors import FoldsimError, ModelError
 from ..limits import DEFAULT_LIMIT, DEFAULT_MAX_STATES
 from ..tolerances import DEFAULT
+
+MAX_FACES = 500  # exact counts beyond this take minutes on a small machine (docs/cli.md)
 
 
 def register(sub):
@@ -31,6 +34,9 @@ def register(sub):
     nets.add_argument("--symmetry-tol", type=float, default=None, metavar="REL",
                       help="a symmetry must carry every vertex within REL times the solid's size of a vertex "
                            "(default 1e-5); smaller values count nearly symmetric solids exactly")
+    nets.add_argument("--max-faces", type=int, default=MAX_FACES, metavar="N",
+                      help="refuse solids with more than N faces (default %(default)s): exact counting "
+                           "grows as the cube of the face count, about half a minute at 400 faces")
     nets.add_argument("--progress", action="store_true",
                       help="show the listing's progress on stderr even when it is not a terminal")
     nets.set_defaults(run=run)
@@ -57,6 +63,12 @@ class _Progress:
         if self.visible and done % max(1, total // 20) == 0:
             self.show(f"counting part types of tied nets: {done:,} / {total:,}")
 
+    def stage(self, text):
+        """Name the next long step (on its own line, so listing reports stay on theirs)."""
+        if self.visible:
+            self.finish()
+            print(text, file=self.stream, flush=True)
+
     def show(self, text):
         if self.stream.isatty():
             print(f"\r{text}\033[K", end="", file=self.stream, flush=True)
@@ -68,6 +80,19 @@ class _Progress:
         if self.open_line:
             print(file=self.stream, flush=True)
             self.open_line = False
+
+
+_FACE_COUNTS = {"prism": lambda n: n + 2, "antiprism": lambda n: 2 * n + 2, "geodesic": lambda k: 20 * 4 ** k}
+
+
+def _check_size(spec, max_faces):
+    """Refuse a built-in family member with more than ``max_faces`` faces before building it."""
+    kind, _, number = spec.strip().lower().partition(":")
+    count = _FACE_COUNTS.get(kind)
+    if count is not None and number.isdigit() and len(number) < 12 and count(int(number)) > max_faces:
+        raise FoldsimError(f"--max-faces: {spec} has {count(int(number)):,} faces, more than the limit of "
+                           f"{max_faces:,}; exact counting grows as the cube of the face count (minutes "
+                           "at a thousand faces); raise --max-faces to run it anyway")
 
 
 def _load_shape(spec):
@@ -126,17 +151,50 @@ def _panel_shapes(poly, hinged=()):
 
 
 def _part_counter(poly, mechanism):
-    """(count(hinges) -> int, description of what is counted).
+    """(cheap(hinges) -> int or None, full(hinges) -> int, description of what is counted).
 
-    ``mechanism(hinges)`` builds the net's mechanism, which `foldsim.parts` needs.
+    ``mechanism(hinges)`` builds the net's mechanism, which `foldsim.parts` needs for
+    the full count; the cheap one (`foldsim.netcount.ranking.NetScorer`) reads the
+    same part types from the solid without building anything.
     """
     if find_spec("foldsim.parts") is not None:
+        from ..netcount.ranking import NetScorer
         from ..parts import part_types
 
-        return (lambda hinges: len(part_types(mechanism(hinges)))), "part types"
-    return (lambda hinges: _panel_shapes(poly, hinges)), (
+        scorer = NetScorer(poly)
+        return scorer.part_count, (lambda hinges: len(part_types(mechanism(hinges)))), "part types"
+    shapes = (lambda hinges: _panel_shapes(poly, hinges))
+    return shapes, shapes, (
         "distinct panel shapes counting which edges are hinged (foldsim.parts is not available; "
         f"the faces alone give {_panel_shapes(poly)} shape(s) for every net)")
+
+
+def _rank(candidates, k, cheap, full, progress):
+    """The ``k`` best of (diameter, hinges) candidates by (diameter, part count, position).
+
+    Every candidate gets the cheap count; the full count replaces it for the leaders,
+    re-ranking until the first ``k`` are all fully counted, so mechanisms are built
+    for about ``k`` nets however many tie.
+
+    Returns
+    -------
+    list of (diameter, parts, hinges)
+    """
+    keys = []
+    for i, (d, h) in enumerate(candidates):
+        progress.scoring(i, len(candidates))
+        keys.append([d, cheap(h), i])
+    progress.finish()
+    exact = set()
+    while True:
+        keys.sort()
+        top = keys[:k]
+        todo = [key for key in top if key[2] not in exact]
+        if not todo:
+            return [(d, parts, candidates[i][1]) for d, parts, i in top]
+        for key in todo:
+            key[1] = full(candidates[key[2]][1])
+            exact.add(key[2])
 
 
 def _best_nets(poly, census, choice, k, out_dir, progress):
@@ -147,12 +205,17 @@ def _best_nets(poly, census, choice, k, out_dir, progress):
     from ..netcount import tree_pairs
     from ..nets import central_face, hinges_from
 
-    def mechanism(hinges, rank=0):
-        root = central_face(census.faces, hinges)
-        return build_mechanism(poly.vertices, poly.faces, hinges_from(root, hinges), root=root,
-                               name=f"{poly.name} net {rank}")
+    built = {}
 
-    count_parts, what = _part_counter(poly, mechanism)
+    def mechanism(hinges):
+        key = tuple(map(tuple, hinges))
+        if key not in built:
+            root = central_face(census.faces, hinges)
+            built[key] = build_mechanism(poly.vertices, poly.faces, hinges_from(root, hinges), root=root,
+                                         name=f"{poly.name} net")
+        return built[key]
+
+    cheap, full, what = _part_counter(poly, mechanism)
     if census.enumerated:
         boundary = census.diameters[min(k, census.nets) - 1]
         candidates = [(int(d), tree_pairs(t, census.pairs))
@@ -163,15 +226,11 @@ def _best_nets(poly, census, choice, k, out_dir, progress):
         note = ("the nets were not listed (more than --limit spanning trees): this is the one net grown "
                 "from the face graph's centre" + (", and its longest chain meets the lower bound"
                                                   if choice.diameter == choice.lower_bound else ""))
-    scored = []
-    for i, (d, h) in enumerate(candidates):
-        progress.scoring(i, len(candidates))
-        scored.append((d, count_parts(h), h))
-    progress.finish()
-    scored = sorted(scored, key=lambda item: item[:2])[:k]
+    scored = _rank(candidates, k, cheap, full, progress)
     entries = []
     for rank, (diameter, parts, hinges) in enumerate(scored, start=1):
-        mech = mechanism(hinges, rank)
+        mech = mechanism(hinges)
+        mech = replace(mech, name=f"{poly.name} net {rank}")
         overlaps = flat_overlaps(mech).tolist()
         path = None if out_dir is None else out_dir / f"net-{rank}.mech.json"
         if path is not None:
@@ -252,10 +311,18 @@ def run(args):
     from ..symmetry import symmetry_tolerances
 
     symmetry_tol = symmetry_tolerances(args.symmetry_tol).planar
+    if args.max_faces < 1:
+        raise FoldsimError(f"--max-faces: must be at least 1, not {args.max_faces}")
+    _check_size(args.shape, args.max_faces)
     poly = _load_shape(args.shape)
+    if len(poly.faces) > args.max_faces:
+        raise FoldsimError(f"--max-faces: {poly.name} has {len(poly.faces):,} faces, more than the limit of "
+                           f"{args.max_faces:,}; exact counting grows as the cube of the face count (minutes "
+                           "at a thousand faces); raise --max-faces to run it anyway")
     graph = face_graph(poly.faces)
     progress = _Progress(args.progress or sys.stderr.isatty(), sys.stderr)
     try:
+        progress.stage(f"counting the spanning trees and symmetries of {len(poly.faces):,} faces")
         census = nets_up_to_symmetry(poly, limit=args.limit, progress=progress, symmetry_tol=symmetry_tol)
         progress.finish()
         choice = min_diameter_net(graph)
