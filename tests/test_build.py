@@ -123,3 +123,28 @@ def test_outer_surface_points():
     closed = face_poses(front, front.closed_angles[None])
     gaps = cut_edge_gaps(replace(front, cut_points=pts), closed)[0]
     np.testing.assert_allclose(gaps, np.sqrt(2.0), atol=1e-9)
+
+
+def test_flap_swept_past_its_stop(tmp_path, capsys):
+    # Hand case: a two-panel flap closing at 90 degrees with its stop at 80,
+    # swept flat to closed, passes the stop by 10 degrees from t = 80/90.
+    from foldsim.cli import main
+
+    doc = {"schema": "foldsim.mechanism/1", "state": "flat",
+           "vertices": [[0, 0, 0], [40, 0, 0], [40, 40, 0], [0, 40, 0], [80, 0, 0], [80, 40, 0]],
+           "faces": [[0, 1, 2, 3], [1, 4, 5, 2]], "hinges": [{"faces": [0, 1], "closed_angle_deg": 90}],
+           "build": {"thickness": 2, "stops": [{"hinge": 0, "stop_deg": 80}]}}
+    path = tmp_path / "flap.mech.json"
+    path.write_text(json.dumps(doc))
+    assert main(["check", str(path), "--json"]) == 1
+    report = json.loads(capsys.readouterr().out)
+    row = report["stops"][0]
+    np.testing.assert_allclose([row["stop_deg"], row["overrun_deg"], row["at_t"]], [80.0, 10.0, 80.0 / 90.0],
+                               atol=1e-9)
+    assert any("pass their stop" in p for p in report["problems"])
+    doc["build"]["stops"] = []  # default: closing plus 2 degrees, never reached
+    path.write_text(json.dumps(doc))
+    assert main(["check", str(path), "--json"]) == 0
+    report = json.loads(capsys.readouterr().out)
+    assert report["stops"][0]["overrun_deg"] == 0.0 and report["stops"][0]["at_t"] is None
+    assert report["build"]["thickness"] == [2.0, 2.0]
