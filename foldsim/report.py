@@ -84,6 +84,7 @@ def check(mech, t_from=0.0, t_to=1.0, gap_tol=None, clearance=0.0, sheet=False, 
         problems.append(f"{len(collisions)} collision(s) between panels")
     if sheet and len(overlap):
         problems.append(f"the flat layout overlaps itself ({len(overlap)} pair(s))")
+    built = _build_part(mech, schedule, t_from, t_to, problems, tol)
     return {
         "model": mech.name,
         "units": mech.units,
@@ -105,6 +106,24 @@ def check(mech, t_from=0.0, t_to=1.0, gap_tol=None, clearance=0.0, sheet=False, 
         "flat_overlap_pairs": overlap.tolist(),
         "part_types": (types := part_types(mech, tol=tol)),
         "part_type_count": len(types),
+        **built,
         "problems": problems,
         "ok": not problems,
     }
+
+
+def _build_part(mech, schedule, t_from, t_to, problems, tol):
+    """The ``build`` and ``stops`` keys, for a file with a ``build`` object (docs/build.md)."""
+    from ..build.spec import build_spec
+    from ..build.stops import stop_overruns
+
+    spec = build_spec(mech, tol=tol)
+    if spec is None:
+        return {}
+    stops = stop_overruns(spec, schedule, t_from, t_to)
+    passed = [row for row in stops if row["overrun_deg"] > 0]
+    if passed:
+        worst = max(passed, key=lambda row: row["overrun_deg"])
+        problems.append(f"{len(passed)} hinge(s) pass their stop (hinge {worst['hinge']} by "
+                        f"{worst['overrun_deg']:.4g}° from t = {worst['at_t']:.4g})")
+    return {"build": spec.report(), "stops": stops}

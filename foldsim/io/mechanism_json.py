@@ -203,11 +203,16 @@ def from_document(doc, tol=DEFAULT):
         from ..stackup import parse_tolerances
 
         parse_tolerances(extras["tolerances"], len(hinges), len(couplings))
-    return build_mechanism(
+    mech = build_mechanism(
         np.array(vertices, dtype=float).reshape(-1, 3), faces, np.array(hinges, np.int64).reshape(-1, 2),
         root=root, drive=drive, couplings=couplings, state=state,
         closed_angles=np.array(angles) if state == "flat" else None,
         name=name, units=units, extras=extras, tol=tol)
+    if "build" in extras:  # optional thick panels, gears and stops, docs/build.md
+        from ..build.spec import build_spec
+
+        build_spec(mech, tol=tol)
+    return mech
 
 
 def _coupling(c, i, n_hinges):

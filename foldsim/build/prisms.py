@@ -1,0 +1,233 @@
+"""Thick panels as prisms, bevelled at their edges by the tapered-panel method.
+
+Each panel is the file's polygon given a thickness toward one side. With the hinge
+line on the panel's surface and the material on the side the hinge folds toward,
+neighbours would run into each other; the tapered-panel method (Tachi,
+"Rigid-foldable thick origami", Origami 5, 2011; Lang, Tolman, Crampton, Magleby &
+Howell, "A review of thickness-accommodation techniques in origami-inspired
+engineering", Appl. Mech. Rev. 70(1) 010805, 2018) cuts every side face on the
+plane through the edge line that bisects the dihedral angle the edge closes to.
+At a depth z below the hinge line the side moves inward by ``z * tan(rho / 2)``,
+``rho`` the fold angle the edge closes at, so at closure the two neighbours' side
+faces lie in the same bisector plane and meet flush; before closure the joint
+opens as a V. Material on the side the edge folds away from needs no cut. With the
+axis at the mid-plane, the half on the folding side is cut the same way and the
+other half is square.
+
+Cut edges (adjacent at closure but not hinged) are bevelled by their closing
+dihedral too, so the closed shell meets flush all round; open boundary edges
+stay square.
+"""
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from .. import geometry
+from ..analysis.triangles import triangulate
+from ..errors import ModelError
+from ..kinematics import face_poses
+from ..layout import hinge_edge
+from ..tolerances import DEFAULT
+
+
+@dataclass(frozen=True, eq=False)
+class Solid:
+    """A rigid closed triangle mesh carried by one face, in the flat frame.
+
+    Attributes
+    ----------
+    face : int
+        The face whose pose carries it.
+    label : str
+        ``"panel 3"``, ``"coupling 0 gear on hinge 2"``, ...
+    kind : str
+        ``panel``, ``gear`` or ``rod``.
+    triangles : (n, 3, 3) float
+        Outward-facing (counter-clockwise seen from outside).
+    coupling : int
+        The gear's coupling (-1 for panels).
+    hinge : int
+        The gear's hinge (-1 for panels).
+    """
+
+    face: int
+    label: str
+    kind: str
+    triangles: np.ndarray
+    coupling: int = -1
+    hinge: int = -1
+
+    @property
+    def vertices(self):
+        """(n, 3) float: the mesh's distinct corner points."""
+        return np.unique(self.triangles.reshape(-1, 3), axis=0)
+
+
+def edge_closing_angles(mech):
+    """The fold angle every face edge closes at.
+
+    Parameters
+    ----------
+    mech : Mechanism
+
+    Returns
+    -------
+    list of (k,) float
+        ``out[f][k]``: the signed angle, right-handed about the edge as it runs in
+        face f (``face[k] -> face[k+1]``), from f's outward normal to its
+        neighbour's at the closing angles; 0 for an open boundary edge. For a
+        hinge it equals the hinge's closing angle, seen from either face.
+    """
+    closed = face_poses(mech, np.asarray(mech.closed_angles, float)[None])[0]
+    flat_normal = geometry.newell_normals([mech.flat_faces[mech.root]])[0]
+    flat_normal = flat_normal / np.linalg.norm(flat_normal)
+    normals = closed[:, :3, :3] @ flat_normal
+    out = [np.zeros(len(f)) for f in mech.faces]
+    for h in range(mech.n_hinges):
+        for f in (int(mech.parent[h]), int(mech.child[h])):
+            out[f][hinge_edge(mech, h, f)] = mech.closed_angles[h]
+    for (fa, fb), pts in zip(mech.cut_faces.tolist(), mech.cut_points):
+        for f, g, side in ((fa, fb, pts[0]), (fb, fa, pts[1])):
+            poly = mech.flat_faces[f]
+            n = len(poly)
+            for k in range(n):
+                ends = poly[[k, (k + 1) % n]]
+                if np.allclose(ends, side, atol=1e-9 * mech.size) or np.allclose(ends, side[::-1],
+                                                                                  atol=1e-9 * mech.size):
+                    direction = closed[f, :3, :3] @ (ends[1] - ends[0])
+                    out[f][k] = geometry.signed_angle(normals[f], normals[g], direction)
+    return out
+
+
+def _levels(spec, f):
+    """Heights along the outward normal of the solid's cross-sections, bottom first."""
+    t = spec.thickness[f]
+    if spec.axis == "mid":
+        return np.array([-t / 2, 0.0, t / 2])
+    return np.array([-t, 0.0]) if spec.material == "back" else np.array([0.0, t])
+
+
+def _inset_polygon(poly, normal, shift):
+    """Move every edge of a convex-or-not planar polygon inward by ``shift[k]``.
+
+    Parameters
+    ----------
+    poly : (k, 3) float
+        Counter-clockwise about ``normal``.
+    normal : (3,) float
+        Unit.
+    shift : (k,) float
+
+    Returns
+    -------
+    (k, 3) float
+        Vertex k where the moved edges k-1 and k cross.
+    """
+    d = np.roll(poly, -1, axis=0) - poly
+    d = d / np.linalg.norm(d, axis=1)[:, None]
+    inward = np.cross(normal, d)
+    prev_d, prev_in, prev_s = np.roll(d, 1, axis=0), np.roll(inward, 1, axis=0), np.roll(shift, 1)
+    # p = poly[k] + x d[k-1] + y d[k] with (p - poly[k]) . inward[k-1] = s[k-1] and
+    # (p - poly[k]) . inward[k] = s[k]; d[j] . inward[j] = 0.
+    across_prev = np.einsum("ij,ij->i", d, prev_in)
+    across = np.einsum("ij,ij->i", prev_d, inward)
+    parallel = (np.abs(across_prev) < 1e-12) | (np.abs(across) < 1e-12)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        x = np.where(parallel, 0.0, shift / across)
+        y = np.where(parallel, 0.0, prev_s / across_prev)
+    out = poly + x[:, None] * prev_d + y[:, None] * d
+    return np.where(parallel[:, None], poly + shift[:, None] * inward, out)
+
+
+def panel_solid(mech, spec, f, closing, erode=0.0, tol=DEFAULT):
+    """The prism of one panel.
+
+    Parameters
+    ----------
+    mech : Mechanism
+    spec : BuildSpec
+    f : int
+    closing : list of (k,) float
+        From `edge_closing_angles`.
+    erode : float
+        Shrink every face of the solid inward by this length (a contact
+        tolerance: solids that only touch are then apart).
+
+    Returns
+    -------
+    Solid
+
+    Raises
+    ------
+    ModelError
+        When the bevels leave no panel (``build.thickness`` too large for it).
+    """
+    poly = mech.flat_faces[f]
+    normal = geometry.newell_normals([poly])[0]
+    normal = normal / np.linalg.norm(normal)
+    half = np.tan(np.asarray(closing[f]) / 2.0)
+    levels = _levels(spec, f)
+    levels = levels + np.where(levels == levels.min(), erode, 0.0) - np.where(levels == levels.max(), erode, 0.0)
+    rings = []
+    d = np.roll(poly, -1, axis=0) - poly
+    for z in levels:
+        shift = np.maximum(0.0, -z * half) + erode
+        ring = _inset_polygon(poly, normal, shift) + z * normal
+        moved = np.roll(ring, -1, axis=0) - ring
+        if (np.einsum("ij,ij->i", moved, d) <= tol.coincident * mech.size * np.linalg.norm(d, axis=1)).any():
+            field = "build.thickness" if f not in spec.doc.faces else "build.faces"
+            raise ModelError(f"{field}: panel {f} is too thick for the bevels its edges need "
+                             f"(thickness {spec.thickness[f]:.6g} {mech.units})")
+        rings.append(ring)
+    caps = triangulate(poly)
+    n = len(poly)
+    tris = [rings[0][caps[:, ::-1]], rings[-1][caps]]
+    for lo, hi in zip(rings[:-1], rings[1:]):
+        for k in range(n):
+            k1 = (k + 1) % n
+            tris.append(np.array([[lo[k], lo[k1], hi[k1]], [lo[k], hi[k1], hi[k]]]))
+    return Solid(int(f), f"panel {f}", "panel", np.concatenate(tris, axis=0))
+
+
+def panel_solids(mech, spec, erode=0.0, tol=DEFAULT):
+    """The prism of every panel (list of `Solid`, in face order)."""
+    closing = edge_closing_angles(mech)
+    return [panel_solid(mech, spec, f, closing, erode, tol) for f in range(mech.n_faces)]
+
+
+def outer_surface_points(mech, spec):
+    """Where each cut edge's two copies sit on the outer surface of the shell.
+
+    With the material toward the back and the axis on the surface, the file's
+    polygons are the outer surface; with the axis at the mid-plane the outer
+    surface lies half a thickness toward the front; with the material toward the
+    front it lies a whole thickness out. A side face that is not cut (the edge
+    folds away from that side) reaches the outer surface straight above the edge.
+
+    Parameters
+    ----------
+    mech : Mechanism
+    spec : BuildSpec
+
+    Returns
+    -------
+    (E, 2, 2, 3) float
+        Like ``mech.cut_points``, on the outer surface, flat frame.
+    """
+    flat_normal = geometry.newell_normals([mech.flat_faces[mech.root]])[0]
+    flat_normal = flat_normal / np.linalg.norm(flat_normal)
+    closing = edge_closing_angles(mech)
+    out = np.array(mech.cut_points, dtype=float, copy=True)
+    for e, (fa, fb) in enumerate(mech.cut_faces.tolist()):
+        for s, f in enumerate((fa, fb)):
+            z = _levels(spec, f).max()
+            if z == 0.0:
+                continue
+            poly = mech.flat_faces[f]
+            shift = np.maximum(0.0, -z * np.tan(closing[f] / 2.0))
+            ring = _inset_polygon(poly, flat_normal, shift) + z * flat_normal
+            for k in range(2):
+                nearest = np.argmin(np.linalg.norm(poly - out[e, s, k], axis=1))
+                out[e, s, k] = ring[nearest]
+    return out

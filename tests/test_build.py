@@ -1,0 +1,150 @@
+"""The ``build`` object and thick panels (foldsim.build)."""
+
+import json
+
+import numpy as np
+import pytest
+
+from foldsim.build.prisms import edge_closing_angles, panel_solids
+from foldsim.build.spec import build_spec
+from foldsim.errors import ModelError
+from foldsim.io.mechanism_json import loads
+
+from helpers import cube_document
+
+
+def _cube(build, side=10.0):
+    doc = cube_document()
+    doc["vertices"] = [[side * x for x in v] for v in doc["vertices"]]
+    doc["build"] = build
+    return doc
+
+
+def test_file_without_build_reads_as_before():
+    mech = loads(json.dumps(cube_document()))
+    assert build_spec(mech) is None
+
+
+@pytest.mark.parametrize("build, message", [
+    ({}, "build: missing \"thickness\""),
+    ({"thickness": -1}, "build.thickness: must be a positive length"),
+    ({"thickness": 1, "faces": [{"face": 9, "thickness": 2}]}, "build.faces[0].face: face 9 out of range"),
+    ({"thickness": 1, "axis": "middle"}, "build.axis: must be one of surface, mid"),
+    ({"thickness": 1, "stops": [{"hinge": 1, "stop_deg": 95}, {"hinge": 1, "stop_deg": 92}]},
+     "build.stops[1].hinge: hinge 1 is given twice"),
+    ({"thickness": 1, "gears": [{"coupling": 0}]}, "build.gears[0].coupling: coupling 0 out of range"),
+    ({"thickness": 1, "colour": "red"}, "build: unknown key 'colour'"),
+    ({"thickness": 6}, "build.thickness: panel 0 is too thick"),
+])
+def test_bad_build_names_the_field(build, message):
+    with pytest.raises(ModelError) as err:
+        loads(json.dumps(_cube(build)), source="box.mech.json")
+    text = str(err.value)
+    assert text.startswith("box.mech.json: ") and message in text and "\n" not in text
+
+
+def test_stops_default_to_closing_plus_margin():
+    mech = loads(json.dumps(_cube({"thickness": 1, "stop_margin_deg": 3,
+                                   "stops": [{"hinge": 4, "stop_deg": 80}]})))
+    spec = build_spec(mech)
+    # cube: every hinge closes at 90 degrees (Coxeter, Regular Polytopes, Table I: dihedral 90)
+    np.testing.assert_allclose(np.degrees(spec.stops), [93, 93, 93, 93, 80], atol=1e-9)
+
+
+def test_cube_edges_close_at_right_angles():
+    mech = loads(json.dumps(_cube({"thickness": 1})))
+    for angles in edge_closing_angles(mech):
+        # every edge of a cube, hinged or cut, closes at 90 degrees (elementary geometry)
+        np.testing.assert_allclose(np.degrees(angles), 90.0, atol=1e-9)
+
+
+def _closed_solids(mech, spec):
+    from foldsim.geometry import transform_points
+    from foldsim.kinematics import face_poses
+
+    poses = face_poses(mech, mech.closed_angles[None])[0]
+    return [transform_points(poses[s.face], s.triangles) for s in panel_solids(mech, spec)]
+
+
+def test_tapered_cube_panel_is_a_mitred_frustum():
+    # Tapered panels (Tachi 2011; Lang et al. 2018): the side face bisects the
+    # 90-degree dihedral, so a 10 mm square panel 1 mm thick has an 8 mm square
+    # inner face (a 45-degree mitre, common practice).
+    mech = loads(json.dumps(_cube({"thickness": 1})))
+    solid = panel_solids(mech, build_spec(mech))[0]
+    pts = solid.vertices
+    # The bottom face lies in z = 0 and faces -z, so its material lies toward +z.
+    assert np.isclose(pts[:, 2].max(), 1.0) and np.isclose(pts[:, 2].min(), 0.0)
+    inner = pts[np.isclose(pts[:, 2], 1.0)]
+    np.testing.assert_allclose(np.ptp(inner[:, :2], axis=0), [8.0, 8.0], atol=1e-9)
+
+
+@pytest.mark.parametrize("thickness", [0.5, 1.5])
+def test_closed_thick_cube_volume_matches_trimesh(thickness):
+    trimesh = pytest.importorskip("trimesh")
+    from scipy.spatial import ConvexHull, HalfspaceIntersection
+
+    mech = loads(json.dumps(_cube({"thickness": thickness})))
+    spec = build_spec(mech)
+    volumes = []
+    for tris in _closed_solids(mech, spec):
+        mesh = trimesh.Trimesh(vertices=tris.reshape(-1, 3), faces=np.arange(len(tris) * 3).reshape(-1, 3))
+        mesh.merge_vertices()
+        assert mesh.is_watertight
+        volumes.append(mesh.volume)
+    # Reference: outer cube minus the inner polyhedron whose faces sit `thickness`
+    # inside every face plane, from scipy's half-space intersection.
+    planes = []
+    for f, face in enumerate(mech.faces):
+        p = mech.vertices[face]
+        n = np.cross(p[1] - p[0], p[2] - p[0])
+        n /= np.linalg.norm(n)
+        planes.append(np.append(n, -(n @ p[0]) + thickness))
+    inner = HalfspaceIntersection(np.array(planes), mech.vertices.mean(axis=0)).intersections
+    expected = 10.0 ** 3 - ConvexHull(inner).volume
+    np.testing.assert_allclose(sum(volumes), expected, rtol=1e-9)
+    assert all(v > 0 for v in volumes)
+
+
+def test_outer_surface_points():
+    from foldsim.analysis.closure import cut_edge_gaps
+    from foldsim.build.prisms import outer_surface_points
+    from foldsim.kinematics import face_poses
+    from dataclasses import replace
+
+    back = loads(json.dumps(_cube({"thickness": 1})))
+    np.testing.assert_allclose(outer_surface_points(back, build_spec(back)), back.cut_points, atol=1e-12)
+    front = loads(json.dumps(_cube({"thickness": 1, "material": "front"})))
+    pts = outer_surface_points(front, build_spec(front))
+    # Bottom face (root) faces -z in the flat frame: its outer surface is 1 mm further out.
+    np.testing.assert_allclose(np.abs(pts - front.cut_points).max(), 1.0, atol=1e-12)
+    # Material outside a closed cube: the square outer edges of two panels at a
+    # right angle stand apart by T * sqrt(2) (elementary geometry).
+    closed = face_poses(front, front.closed_angles[None])
+    gaps = cut_edge_gaps(replace(front, cut_points=pts), closed)[0]
+    np.testing.assert_allclose(gaps, np.sqrt(2.0), atol=1e-9)
+
+
+def test_flap_swept_past_its_stop(tmp_path, capsys):
+    # Hand case: a two-panel flap closing at 90 degrees with its stop at 80,
+    # swept flat to closed, passes the stop by 10 degrees from t = 80/90.
+    from foldsim.cli import main
+
+    doc = {"schema": "foldsim.mechanism/1", "state": "flat",
+           "vertices": [[0, 0, 0], [40, 0, 0], [40, 40, 0], [0, 40, 0], [80, 0, 0], [80, 40, 0]],
+           "faces": [[0, 1, 2, 3], [1, 4, 5, 2]], "hinges": [{"faces": [0, 1], "closed_angle_deg": 90}],
+           "build": {"thickness": 2, "stops": [{"hinge": 0, "stop_deg": 80}]}}
+    path = tmp_path / "flap.mech.json"
+    path.write_text(json.dumps(doc))
+    assert main(["check", str(path), "--json"]) == 1
+    report = json.loads(capsys.readouterr().out)
+    row = report["stops"][0]
+    np.testing.assert_allclose([row["stop_deg"], row["overrun_deg"], row["at_t"]], [80.0, 10.0, 80.0 / 90.0],
+                               atol=1e-9)
+    assert any("pass their stop" in p for p in report["problems"])
+    doc["build"]["stops"] = []  # default: closing plus 2 degrees, never reached
+    path.write_text(json.dumps(doc))
+    assert main(["check", str(path), "--json"]) == 0
+    report = json.loads(capsys.readouterr().out)
+    assert report["stops"][0]["overrun_deg"] == 0.0 and report["stops"][0]["at_t"] is None
+    assert report["build"]["thickness"] == [2.0, 2.0]
