@@ -114,8 +114,8 @@ def check(mech, t_from=0.0, t_to=1.0, gap_tol=None, clearance=0.0, sheet=False, 
 
 def _build_part(mech, schedule, t_from, t_to, problems, tol):
     """The ``build`` and ``stops`` keys, for a file with a ``build`` object (docs/build.md)."""
-    from ..build.spec import build_spec
-    from ..build.stops import stop_overruns
+    from .build.spec import build_spec
+    from .build.stops import stop_overruns
 
     spec = build_spec(mech, tol=tol)
     if spec is None:
