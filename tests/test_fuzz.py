@@ -21,7 +21,7 @@ import numpy as np
 import pytest
 
 from foldsim.analysis.closure import cut_edge_gaps
-from foldsim.analysis.report import check, hinge_table
+from foldsim.report import check, hinge_table
 from foldsim.errors import FoldsimError
 from foldsim.gearing import fold_schedule
 from foldsim.io.mechanism_json import loads
