@@ -86,10 +86,20 @@ _FACE_COUNTS = {"prism": lambda n: n + 2, "antiprism": lambda n: 2 * n + 2, "geo
 
 
 def _check_size(spec, max_faces):
-    """Refuse a built-in family member with more than ``max_faces`` faces before building it."""
+    """Refuse a built-in family member with more than ``max_faces`` faces before building it.
+
+    A member the solids themselves refuse (`foldsim.limits.MAX_SIDES`) is left to them,
+    so that the message names the limit that cannot be raised.
+    """
+    from ..limits import MAX_SIDES
+
     kind, _, number = spec.strip().lower().partition(":")
     count = _FACE_COUNTS.get(kind)
-    if count is not None and number.isdigit() and len(number) < 12 and count(int(number)) > max_faces:
+    if not (count is not None and number.isdigit() and len(number) < 12):
+        return
+    if kind in ("prism", "antiprism") and int(number) > MAX_SIDES:
+        return
+    if count(int(number)) > max_faces:
         raise FoldsimError(f"--max-faces: {spec} has {count(int(number)):,} faces, more than the limit of "
                            f"{max_faces:,}; exact counting grows as the cube of the face count (minutes "
                            "at a thousand faces); raise --max-faces to run it anyway")
