@@ -11,10 +11,10 @@ import os
 import sys
 
 from . import __version__
-from .commands import app, check, export, nets, new, record, stackup
+from .commands import app, check, export, nets, new, record, stackup, study
 from .errors import FoldsimError
 
-COMMANDS = (check, new, nets, stackup, export, record, app)
+COMMANDS = (check, new, nets, stackup, study, export, record, app)
 
 
 def _parser():
