@@ -23,7 +23,7 @@ LAYERS = (
                "foldsim.nets", "foldsim.symmetry", "foldsim.netcount")),
     ("analysis", ("foldsim.analysis", "foldsim.picking", "foldsim.stackup")),
     ("design", ("foldsim.layout", "foldsim.parts", "foldsim.io", "foldsim.design", "foldsim.netcount.ranking",
-                "foldsim.build")),
+                "foldsim.build", "foldsim.study")),
     ("output", ("foldsim.report", "foldsim.export")),
     ("gui", ("foldsim.gui",)),
     ("front", ("foldsim.commands", "foldsim.cli", "foldsim.__main__")),

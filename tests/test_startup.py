@@ -16,7 +16,9 @@ GIFT_BOX = ROOT / "assets" / "gift-box.mech.json"
 
 # Common practice: the desktop app's toolkit, the mesh, glTF and video libraries and
 # image libraries load only when a command draws, reads a mesh or writes a file.
-NEVER = {"PySide6", "shiboken6", "pyqtgraph", "OpenGL", "trimesh", "pygltflib", "av", "PIL", "matplotlib"}
+NEVER = {"PySide6", "shiboken6", "pyqtgraph", "OpenGL", "trimesh", "pygltflib", "av", "PIL", "matplotlib",
+         # the cluster and its tables load only when a study runs or is read.
+         "dask", "distributed", "pyarrow"}
 # Help text needs no arrays, graphs or geometry.
 HELP_ALSO = {"numpy", "scipy", "networkx"}
 
@@ -39,7 +41,8 @@ def loaded_after(*argv):
     return result["code"], set(result["modules"])
 
 
-@pytest.mark.parametrize("argv", [["--help"], ["check", "--help"], ["nets", "--help"], ["stackup", "--help"]])
+@pytest.mark.parametrize("argv", [["--help"], ["check", "--help"], ["nets", "--help"], ["stackup", "--help"],
+                                  ["study", "--help"]])
 def test_help_loads_no_heavy_package(argv):
     code, modules = loaded_after(*argv)
     assert code == 0
