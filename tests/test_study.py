@@ -357,3 +357,25 @@ def test_criteria_names_are_columns():
 
     assert set(CRITERIA) <= names
     assert parse_criteria("ok,diameter") == ["ok", "diameter"]
+
+
+def test_the_review_report_embeds_a_study(capsys, tmp_path, serial):
+    html5lib = pytest.importorskip("html5lib")
+    path, rows = serial["cube"]
+    model = tmp_path / "best.mech.json"
+    assert run(capsys, "study", str(path), "--pick", "0", "-o", str(model))[0] == 0
+    out = tmp_path / "report.html"
+    code, _, _ = run(capsys, "export", str(model), "-o", str(out), "--study", str(path))
+    assert code == 0
+    # parsed by an HTML5 parser (html5lib) as the outside reference
+    doc = html5lib.parse(out.read_text(), namespaceHTMLElements=False)
+    section = doc.find(".//section[@id='study']")
+    assert section is not None
+    assert section.find(".//{http://www.w3.org/2000/svg}svg[@id='study-front']") is not None \
+        or section.find(".//svg[@id='study-front']") is not None
+    listed = [int(tr.get("data-net")) for tr in section.iter("tr") if tr.get("class") == "study-net"]
+    drawn = [int(f.get("data-net")) for f in section.iter("figure") if f.get("class") == "study-pattern"]
+    best = [r["net"] for r in ranked(rows, ["collision_free", "worst_case_gap", "part_types", "diameter"])[:3]]
+    assert listed == drawn == best
+    code, _, err = run(capsys, "export", str(model), "-o", str(tmp_path / "x.svg"), "--study", str(path))
+    assert code == 2 and "--study" in err

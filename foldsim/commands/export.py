@@ -51,6 +51,8 @@ def register(sub):
                      help="largest closure gap that counts as meeting (default 1e-4 of the model's size)")
     rep.add_argument("--sheet", action="store_true",
                      help="the pattern is cut from one sheet: a self-overlapping flat layout is a problem")
+    rep.add_argument("--study", default=None, metavar="STUDY",
+                     help="add a net study (foldsim study): its Pareto front and its top nets' flat patterns")
     ex.set_defaults(run=run)
 
 
@@ -63,6 +65,6 @@ def run(args):
     what = export(mech, args.output, t_from=args.t_from, t_to=args.t_to, frames=args.frames,
                   seconds=args.seconds, t=args.t, seam_gap=args.seam_gap, tabs=args.tabs,
                   labels=args.labels, views=args.views, clearance=args.clearance, gap_tol=args.gap_tol,
-                  sheet=args.sheet)
+                  sheet=args.sheet, study=args.study)
     print(f"wrote {args.output}: {what}")
     return 0

@@ -58,7 +58,7 @@ def format_of(path):
 
 
 def export(mech, path, t_from=0.0, t_to=1.0, frames=None, seconds=4.0, t=None, seam_gap=0.0, tabs=0.0,
-           labels=True, views=None, clearance=0.0, gap_tol=None, sheet=False):
+           labels=True, views=None, clearance=0.0, gap_tol=None, sheet=False, study=None):
     """Write a mechanism to ``path`` in the format its suffix names.
 
     Parameters
@@ -81,6 +81,8 @@ def export(mech, path, t_from=0.0, t_to=1.0, frames=None, seconds=4.0, t=None, s
         Flat pattern options (`svg.build`).
     views, clearance, gap_tol, sheet
         Report options (`report_html.build`).
+    study : path, optional
+        A net study to add to the HTML report (its front and top nets).
 
     Returns
     -------
@@ -95,6 +97,12 @@ def export(mech, path, t_from=0.0, t_to=1.0, frames=None, seconds=4.0, t=None, s
         unknown).
     """
     kind = format_of(path)
+    if study is not None and kind != "html":
+        raise FoldsimError("--study: only the .html review report shows a study")
+    if study is not None:
+        from ..study.table import read_plan
+
+        read_plan(study)  # a bad study fails before any work
     t_from, t_to = check_t(t_from, "--from"), check_t(t_to, "--to-t")
     if t is not None:
         t = check_t(t, "--t")
@@ -124,7 +132,7 @@ def export(mech, path, t_from=0.0, t_to=1.0, frames=None, seconds=4.0, t=None, s
         from . import report_html
 
         return report_html.write(mech, path, t_from=t_from, t_to=t_to, frames=frames or 41, views=views,
-                                 clearance=clearance, gap_tol=gap_tol, sheet=sheet)
+                                 clearance=clearance, gap_tol=gap_tol, sheet=sheet, study=study)
     from . import mesh
 
     return mesh.write(mech, path, 1.0 if t is None else t, kind == "obj")

@@ -176,7 +176,7 @@ def _part_types(value):
 
 
 def build(mech, t_from=0.0, t_to=1.0, frames=41, views=None, clearance=0.0, gap_tol=None, sheet=False,
-          report=None):
+          report=None, study=None):
     """The review report as HTML text.
 
     Parameters
@@ -192,6 +192,9 @@ def build(mech, t_from=0.0, t_to=1.0, frames=41, views=None, clearance=0.0, gap_
         Passed to `report.check`.
     report : dict, optional
         A check report already computed with these options.
+    study : path, optional
+        A net study (`foldsim study`) whose front and top nets' flat patterns are
+        added (`study_html.section`).
 
     Returns
     -------
@@ -291,6 +294,11 @@ def build(mech, t_from=0.0, t_to=1.0, frames=41, views=None, clearance=0.0, gap_
     if report.get("part_types") is not None:
         body.append("<h2>Part types</h2>")
         body.append(_part_types(report["part_types"]))
+
+    if study is not None:
+        from .study_html import section
+
+        body.append(section(study))
 
     body.append('<h2>Cautions</h2>\n<div id="cautions"><ul>'
                 + "".join(f"<li>{_e(c)}</li>" for c in CAUTIONS) + "</ul></div>")

@@ -1,6 +1,6 @@
 """A picture of a study: two criteria against each other, with their Pareto front marked.
 
-Drawn with matplotlib on its Agg backend (no window, no display needed); the file
+Drawn with matplotlib's Figure on its Agg renderer, without pyplot (no window, no display needed); the file
 type follows the suffix (PNG, SVG, PDF). Nets that collide are drawn hollow, so a
 front that runs through them shows at a glance.
 """
@@ -25,17 +25,17 @@ def parse_axes(text):
     return names
 
 
-def plot_front(rows, x, y, path, title=None):
-    """Write a scatter of criteria ``x`` and ``y`` of every evaluated net, front marked.
+def front_figure(rows, x, y, title=None, size=(6.4, 4.8)):
+    """A matplotlib Figure: criteria ``x`` and ``y`` of every evaluated net, front marked.
 
     Returns
     -------
-    list of dict
+    fig : matplotlib.figure.Figure
+    front : list of dict
         The rows on the front of (x, y), best first.
     """
-    import matplotlib
-
-    matplotlib.use("Agg", force=True)
+    # A bare Figure draws through Agg (or the SVG/PDF writers) without pyplot, so
+    # no window and no global backend switch, even inside the desktop app.
     from matplotlib.figure import Figure
 
     good = [r for r in rows if r["error"] is None and r[x] is not None and r[y] is not None]
@@ -45,7 +45,7 @@ def plot_front(rows, x, y, path, title=None):
     xs = np.array([float(r[x]) for r in good])
     ys = np.array([float(r[y]) for r in good])
     clear = np.array([bool(r["collision_free"]) for r in good])
-    fig = Figure(figsize=(6.4, 4.8), dpi=100)
+    fig = Figure(figsize=size, dpi=100)
     ax = fig.add_subplot()
     ax.scatter(xs[clear], ys[clear], s=14, color="#4a7ab5", alpha=0.6, label="folds without collision")
     if (~clear).any():
@@ -63,6 +63,29 @@ def plot_front(rows, x, y, path, title=None):
     ax.grid(True, alpha=0.3)
     ax.legend(fontsize=8)
     fig.tight_layout()
+    return fig, front
+
+
+def front_svg(rows, x, y, title=None):
+    """The same picture as SVG text (for the HTML report), and the front."""
+    import io
+
+    fig, front = front_figure(rows, x, y, title)
+    out = io.StringIO()
+    fig.savefig(out, format="svg")
+    text = out.getvalue()
+    return text[text.index("<svg"):], front
+
+
+def plot_front(rows, x, y, path, title=None):
+    """Write the picture of `front_figure` to ``path`` (format from the suffix), atomically.
+
+    Returns
+    -------
+    list of dict
+        The rows on the front of (x, y), best first.
+    """
+    fig, front = front_figure(rows, x, y, title)
     path = Path(path)
     kind = path.suffix.lower().lstrip(".") or "png"
     try:
