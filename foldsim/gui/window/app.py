@@ -30,6 +30,7 @@ from ...errors import FoldsimError
 from ...gearing import fold_angles
 from ..panels.side import DriveBar, GapModel, GapPlot, HingeModel, make_table
 from ..panels.stackup import StackupPanel
+from ..panels.study import open_study
 from ..view.viewport import FoldView, default_face_colors
 from .files import MAX_RECENT, FileHandling
 from .jobs import Jobs
@@ -167,6 +168,8 @@ class MainWindow(FileHandling, Jobs, QtWidgets.QMainWindow):
         self._action(files, "&New from Shape…", self.shape_dialog, QtGui.QKeySequence.StandardKey.New,
                      "Unfold and gear a built-in solid or a mesh file")
         self.recent_menu = files.addMenu("Open &Recent")
+        self._action(files, "Open S&tudy…", lambda: open_study(self), None,
+                     "List the nets of a net study (foldsim study) and show one")
         self._action(files, "Re&load", lambda: self.reload(), "Ctrl+R", "Read the model's file again")
         files.addSeparator()
         self._action(files, "&Save", self.save, QtGui.QKeySequence.StandardKey.Save)
