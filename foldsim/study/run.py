@@ -102,6 +102,7 @@ def chunks(plan):
 def _client(scheduler, workers):
     """A distributed Client, and the LocalCluster it owns (None for a given address)."""
     import logging
+    import warnings
 
     from distributed import Client, LocalCluster
 
@@ -113,8 +114,12 @@ def _client(scheduler, workers):
         except (OSError, TimeoutError, ValueError) as exc:
             raise ModelError(f"--scheduler: cannot reach a Dask scheduler at {scheduler!r}: {exc}") from None
     n = workers or os.cpu_count() or 1
-    cluster = LocalCluster(n_workers=n, threads_per_worker=1, processes=True, dashboard_address=None,
-                           silence_logs=logging.ERROR)
+    with warnings.catch_warnings():
+        # Without a dashboard the scheduler still serves its health page, on another
+        # port when another cluster holds the usual one: nothing to warn about.
+        warnings.filterwarnings("ignore", message="Port .* is already in use")
+        cluster = LocalCluster(n_workers=n, threads_per_worker=1, processes=True, dashboard_address=None,
+                               silence_logs=logging.ERROR)
     return Client(cluster), cluster
 
 
