@@ -379,3 +379,31 @@ def test_the_review_report_embeds_a_study(capsys, tmp_path, serial):
     assert listed == drawn == best
     code, _, err = run(capsys, "export", str(model), "-o", str(tmp_path / "x.svg"), "--study", str(path))
     assert code == 2 and "--study" in err
+
+
+def test_monte_carlo_play_only_when_asked_and_as_foldsim_stackup_gives_it(capsys, tmp_path, serial):
+    # without --mc the column is empty
+    assert all(r["p95_gap"] is None for r in serial["cube"][1])
+    path = tmp_path / "s"
+    code, out, _ = run(capsys, "study", "tetrahedron", "-o", str(path), "--mc", "300", "--process", "filament",
+                       "--size", "30", "--scheduler", "none", "--csv", "--json")
+    assert code == 0
+    report = json.loads(out)
+    assert report["criteria"][1] == "p95_gap"          # the default ranking uses it with --mc
+    rows = table.read_table(path)
+    assert all(r["p95_gap"] is not None and r["p95_gap"] > 0 for r in rows)
+    # the same figure as `foldsim stackup` on the picked net (same samples, seed 0, t = 1)
+    model = tmp_path / "net0.mech.json"
+    assert run(capsys, "study", str(path), "--pick", "0", "-o", str(model))[0] == 0
+    code, out, _ = run(capsys, "stackup", str(model), "--samples", "300", "--process", "filament", "--t", "1",
+                       "--json")
+    assert code == 0
+    np.testing.assert_allclose(rows[0]["p95_gap"], json.loads(out)["p95_gap"], rtol=1e-12)
+    np.testing.assert_allclose(rows[0]["worst_case_gap"], json.loads(out)["worst_case_gap"], rtol=1e-12)
+    # --csv: the same rows, read back by Python's csv module
+    import csv
+
+    with open(path / "nets.csv", newline="") as f:
+        listed = list(csv.DictReader(f))
+    assert [int(r["net"]) for r in listed] == [r["net"] for r in rows]
+    assert [r["cuts"] for r in listed] == [r["cuts"] for r in rows]
