@@ -407,3 +407,14 @@ def test_monte_carlo_play_only_when_asked_and_as_foldsim_stackup_gives_it(capsys
         listed = list(csv.DictReader(f))
     assert [int(r["net"]) for r in listed] == [r["net"] for r in rows]
     assert [r["cuts"] for r in listed] == [r["cuts"] for r in rows]
+
+
+def test_the_command_line_runs_on_an_existing_cluster(capsys, tmp_path, serial, cluster):
+    address = cluster.scheduler_address
+    code, out, _ = run(capsys, "study", "tetrahedron", "-o", str(tmp_path / "s"), "--scheduler", address, "--json")
+    assert code == 0 and json.loads(out)["evaluated"] == 2
+    assert table.read_table(tmp_path / "s") == serial["tetrahedron"][1]
+    code, _, err = run(capsys, "study", "tetrahedron", "-o", str(tmp_path / "t"), "--scheduler", address,
+                       "--workers", "2")
+    assert code == 2 and "--workers" in err
+    assert not (tmp_path / "t").exists()

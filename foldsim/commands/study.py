@@ -144,6 +144,8 @@ def _start(args):
         raise FoldsimError(f"--workers: must be at least 1, not {args.workers}")
     if args.chunk is not None and args.chunk < 1:
         raise FoldsimError(f"--chunk: must be at least 1 net, not {args.chunk}")
+    if args.workers is not None and args.scheduler.lower() not in ("local", "none"):
+        raise FoldsimError("--workers: sets the size of the local cluster; an existing cluster keeps its own")
     spec = _spec(args)
     out = Path(args.output)
     if table.is_study(out):
@@ -178,12 +180,17 @@ def _format_rows(rows, names, top):
         if r["error"] is not None:
             lines.append(f" {r['net']:>6}  -    failed: {r['error']}")
             continue
-        cells = []
-        for n in names:
-            v = r[n]
-            cells.append(f"{'-' if v is None else (('yes' if v else 'no') if isinstance(v, bool) else format(v, '.4g')):>14}")
+        cells = [f"{_cell(r[n]):>14}" for n in names]
         lines.append(f" {r['net']:>6}  {'yes' if r['ok'] else 'no':<3}  " + "  ".join(cells) + f"  {r['cuts']}")
     return lines
+
+
+def _cell(value):
+    if value is None:
+        return "-"
+    if isinstance(value, bool):
+        return "yes" if value else "no"
+    return format(value, ".4g")
 
 
 def _pick(study, rows, args):
