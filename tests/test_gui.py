@@ -167,6 +167,38 @@ def test_collision_strip_shows_the_sweep_and_a_click_jumps_into_it(window, strip
     assert window.view.colliding.tolist() == [[0, 2]]
 
 
+def test_scrubbing_a_swept_model_reads_collisions_from_the_sweep(window, strip150, qtbot, monkeypatch):
+    # Once the background sweep is done, a frame takes its colliding pairs from
+    # the intervals instead of querying the pose. They must agree with the pose
+    # query (and with the hand check: the outer squares cross for |t| > 0.8)
+    # everywhere away from the interval ends, within the sweep's resolution.
+    from foldsim.gui.view import viewport
+
+    window.open_path(strip150)
+    finish_sweep(qtbot, window)
+    view = window.view
+    assert view.known is not None and (view.known.lo, view.known.hi) == (-1.0, 1.0)
+    calls = []
+    direct = viewport.colliding_pairs
+    monkeypatch.setattr(viewport, "colliding_pairs", lambda *a, **k: calls.append(1) or direct(*a, **k))
+    for t in np.linspace(-1.0, 1.0, 81):
+        if abs(abs(t) - 0.8) < 2e-3:
+            continue
+        window.set_t(t)
+        expected = [[0, 2]] if abs(t) > 0.8 else []
+        assert view.colliding.tolist() == expected, t
+        assert direct(view.mech, view.poses, pan=view.pan).tolist() == expected, t
+    # t = 0 is tested directly (flat-layout overlaps are not in the intervals).
+    assert len(calls) == 1
+    # A stretch not yet swept is tested frame by frame.
+    view.set_known_collisions(window.intervals, (-1.0, 0.0))
+    window.set_t(0.9)
+    assert len(calls) == 2 and view.colliding.tolist() == [[0, 2]]
+    view.set_known_collisions(None)
+    window.set_t(0.5)
+    assert len(calls) == 3 and view.colliding.tolist() == []
+
+
 def test_cancelling_the_sweep_stops_it(window, strip150, qtbot):
     window.open_path(strip150)
     task = window.sweep
