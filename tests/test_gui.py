@@ -477,3 +477,44 @@ def test_open_refuses_a_bad_file_like_check_without_starting_the_app(tmp_path, c
     done = run_app(["open", str(bad)], tmp_path)
     assert done.returncode == 2
     assert done.stderr.strip() == expected
+
+
+# ------------------------------------------------------ the build's solids
+
+
+def test_thick_panels_are_drawn_from_the_build_and_toggle_off(window, tmp_path):
+    # The gift box given a build object, 4 units thick toward the back. Seen edge-on
+    # (front view) while flat, a zero-thickness sheet is a thin line; its prisms are a
+    # band about as tall as the thickness, so many more pixels are drawn. The toggle
+    # brings the flat panels back, pixel for pixel. A file without a build keeps the
+    # toggle disabled. (Hand check of what a prism looks like edge-on.)
+    doc = json.loads(DEMO.read_text())
+    doc["build"] = {"thickness": 4.0}
+    path = write_doc(tmp_path, doc, "thick.mech.json")
+    assert window.open_path(path)
+    assert window.show_solids.isEnabled() and window.show_solids.isChecked()
+    assert window.view.solids and len(window.view.solids) == window.model.mech.n_faces
+    window.set_t(0.0)
+    window._select_edges([])  # no gap labels: only panels are drawn
+    window.view.set_view("front")
+    # Edge-on: level with the sheet, looking at its centre.
+    from foldsim.gui.view.camera import stage_transform
+
+    mech = window.model.mech
+    centre = stage_transform(mech) @ np.append(np.concatenate(mech.flat_faces).mean(axis=0), 1.0)
+    window.view.opts["center"] = QtGui.QVector3D(*centre[:3])
+    window.view.opts["elevation"] = 0.0
+
+    def drawn():
+        img = frame(window)
+        return int((np.abs(img[..., :3].astype(int) - palette.BACKGROUND).max(axis=-1) > 20).sum())
+
+    thick = drawn()
+    window.show_solids.trigger()
+    assert not window.show_solids.isChecked() and window.view.solids is None
+    thin = drawn()
+    assert thick > 2.5 * thin > 0
+    window.show_solids.trigger()
+    assert drawn() == thick
+    assert window.open_path(DEMO)
+    assert not window.show_solids.isEnabled() and window.view.solids is None

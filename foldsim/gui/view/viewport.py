@@ -60,6 +60,7 @@ from .overlays import (
     label_text,
 )
 from .panel_layer import PanelLayer, _PanelProgram, _rgba, uniform_slots
+from .solid_layer import SolidLayer
 
 __all__ = ["CLICK_SLOP", "ENVELOPE", "ENVELOPE_ALPHA", "MAX_AUTO_LABELS", "NEAR_GAP", "VIEWS", "FoldView",
            "PanelLayer", "default_face_colors", "image_array", "label_text", "stage_transform", "uniform_slots"]
@@ -129,6 +130,7 @@ class FoldView(CameraControl, Overlays, gl.GLViewWidget):
         self.poses = None
         self.colliding = np.zeros((0, 2), np.int64)
         self.known = None
+        self.solids = None
         self.gaps = np.zeros(0)
         self.gap_tolerance = 0.0
         self.selected_face = -1
@@ -178,6 +180,7 @@ class FoldView(CameraControl, Overlays, gl.GLViewWidget):
         self.label_edges = None
         self.colliding = np.zeros((0, 2), np.int64)
         self.known = None
+        self.solids = None
         self._stage = gl.GLGraphicsItem.GLGraphicsItem()
         self._stage.setTransform(_matrix(stage_transform(mech)))
         tris = [self._local_triangles(poly, self.pan.tri_points[s:s + c])
@@ -206,6 +209,37 @@ class FoldView(CameraControl, Overlays, gl.GLViewWidget):
         self.envelope_poses = None
         self.set_t(self.t)
         self.fit_motion()
+
+    def set_solids(self, solids):
+        """Draw the panels as solids (a build's prisms and gear bodies), or flat again.
+
+        The camera, t, colours and marks stay; only the panel layer is replaced.
+
+        Parameters
+        ----------
+        solids : sequence of Solid or None
+            `foldsim.build.prisms.Solid` (each carried by one face, flat frame);
+            None draws the file's flat panels.
+        """
+        if self.mech is None:
+            return
+        mech = self.mech
+        if self.isValid():
+            self.makeCurrent()
+            self._layer.release()
+            self.doneCurrent()
+        self._layer.setParentItem(None)
+        if solids is None:
+            tris = [self._local_triangles(poly, self.pan.tri_points[s:s + c])
+                    for poly, s, c in zip(mech.flat_faces, self.pan.start, self.pan.count)]
+            self._layer = PanelLayer(mech.flat_faces, tris, mech.axes, mech.parent, mech.root,
+                                     parentItem=self._stage)
+        else:
+            self._layer = SolidLayer(solids, mech.n_faces, mech.axes, mech.parent, parentItem=self._stage)
+        self.solids = None if solids is None else list(solids)
+        self._layer.set_poses(self.poses)
+        self._refresh_colors()
+        self.update()
 
     @staticmethod
     def _local_triangles(poly, tris):
