@@ -9,6 +9,7 @@ panels) on a breadth-first net and prints updates per second for
   collision query per frame, then with collisions read from the sweep's
   intervals as the app does once its background sweep has passed,
 - drawing alone, with the panels standing still,
+- a whole frame with the panels drawn as prisms (a build's thick panels),
 
 and the same whole frame for a two-panel flap, with the ratio of the sphere's frame
 to the flap's (the app's goal: at most 1.5).
@@ -41,6 +42,18 @@ def flap_mechanism():
     v = np.array([[0, 0, 0], [1, 0, 0], [1, 1, 0], [0, 1, 0], [-1, 0, 0], [-1, 1, 0]], float)
     return build_mechanism(v, [[0, 1, 2, 3], [4, 0, 3, 5]], [(0, 1)], root=0, state="flat",
                            closed_angles=np.radians([90.0]), name="flap")
+
+
+def thick_solids(mech, share=0.05):
+    """The mechanism's panels as prisms a ``share`` of its shortest edge thick."""
+    from dataclasses import replace
+
+    from ..build.prisms import panel_solids
+    from ..build.spec import build_spec
+
+    edges = np.concatenate([np.linalg.norm(np.roll(p, -1, axis=0) - p, axis=1) for p in mech.flat_faces])
+    built = replace(mech, extras={**mech.extras, "build": {"thickness": share * float(edges.min())}})
+    return panel_solids(built, build_spec(built))
 
 
 def _rate(step, values, budget=4.0):
@@ -101,6 +114,12 @@ def main(argv=None):
     swept = _rate(frame, values)
     print(f"whole frame, swept        {swept:8.1f} updates/s")
     print(f"drawing only              {_rate(lambda t: draw(), values):8.1f} frames/s")
+    solids = thick_solids(mech)
+    view.set_solids(solids)
+    thick = _rate(frame, values)
+    print(f"thick panels, swept       {thick:8.1f} updates/s  ({sum(len(s.triangles) for s in solids)} "
+          f"triangles; {swept / thick:.2f} times the thin frame)")
+    view.set_solids(None)
     flap = flap_mechanism()
     view.set_mechanism(flap)
     view.set_view("iso")
