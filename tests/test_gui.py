@@ -167,6 +167,38 @@ def test_collision_strip_shows_the_sweep_and_a_click_jumps_into_it(window, strip
     assert window.view.colliding.tolist() == [[0, 2]]
 
 
+def test_scrubbing_a_swept_model_reads_collisions_from_the_sweep(window, strip150, qtbot, monkeypatch):
+    # Once the background sweep is done, a frame takes its colliding pairs from
+    # the intervals instead of querying the pose. They must agree with the pose
+    # query (and with the hand check: the outer squares cross for |t| > 0.8)
+    # everywhere away from the interval ends, within the sweep's resolution.
+    from foldsim.gui.view import viewport
+
+    window.open_path(strip150)
+    finish_sweep(qtbot, window)
+    view = window.view
+    assert view.known is not None and (view.known.lo, view.known.hi) == (-1.0, 1.0)
+    calls = []
+    direct = viewport.colliding_pairs
+    monkeypatch.setattr(viewport, "colliding_pairs", lambda *a, **k: calls.append(1) or direct(*a, **k))
+    for t in np.linspace(-1.0, 1.0, 81):
+        if abs(abs(t) - 0.8) < 2e-3:
+            continue
+        window.set_t(t)
+        expected = [[0, 2]] if abs(t) > 0.8 else []
+        assert view.colliding.tolist() == expected, t
+        assert direct(view.mech, view.poses, pan=view.pan).tolist() == expected, t
+    # t = 0 is tested directly (flat-layout overlaps are not in the intervals).
+    assert len(calls) == 1
+    # A stretch not yet swept is tested frame by frame.
+    view.set_known_collisions(window.intervals, (-1.0, 0.0))
+    window.set_t(0.9)
+    assert len(calls) == 2 and view.colliding.tolist() == [[0, 2]]
+    view.set_known_collisions(None)
+    window.set_t(0.5)
+    assert len(calls) == 3 and view.colliding.tolist() == []
+
+
 def test_cancelling_the_sweep_stops_it(window, strip150, qtbot):
     window.open_path(strip150)
     task = window.sweep
@@ -445,3 +477,44 @@ def test_open_refuses_a_bad_file_like_check_without_starting_the_app(tmp_path, c
     done = run_app(["open", str(bad)], tmp_path)
     assert done.returncode == 2
     assert done.stderr.strip() == expected
+
+
+# ------------------------------------------------------ the build's solids
+
+
+def test_thick_panels_are_drawn_from_the_build_and_toggle_off(window, tmp_path):
+    # The gift box given a build object, 4 units thick toward the back. Seen edge-on
+    # (front view) while flat, a zero-thickness sheet is a thin line; its prisms are a
+    # band about as tall as the thickness, so many more pixels are drawn. The toggle
+    # brings the flat panels back, pixel for pixel. A file without a build keeps the
+    # toggle disabled. (Hand check of what a prism looks like edge-on.)
+    doc = json.loads(DEMO.read_text())
+    doc["build"] = {"thickness": 4.0}
+    path = write_doc(tmp_path, doc, "thick.mech.json")
+    assert window.open_path(path)
+    assert window.show_solids.isEnabled() and window.show_solids.isChecked()
+    assert window.view.solids and len(window.view.solids) == window.model.mech.n_faces
+    window.set_t(0.0)
+    window._select_edges([])  # no gap labels: only panels are drawn
+    window.view.set_view("front")
+    # Edge-on: level with the sheet, looking at its centre.
+    from foldsim.gui.view.camera import stage_transform
+
+    mech = window.model.mech
+    centre = stage_transform(mech) @ np.append(np.concatenate(mech.flat_faces).mean(axis=0), 1.0)
+    window.view.opts["center"] = QtGui.QVector3D(*centre[:3])
+    window.view.opts["elevation"] = 0.0
+
+    def drawn():
+        img = frame(window)
+        return int((np.abs(img[..., :3].astype(int) - palette.BACKGROUND).max(axis=-1) > 20).sum())
+
+    thick = drawn()
+    window.show_solids.trigger()
+    assert not window.show_solids.isChecked() and window.view.solids is None
+    thin = drawn()
+    assert thick > 2.5 * thin > 0
+    window.show_solids.trigger()
+    assert drawn() == thick
+    assert window.open_path(DEMO)
+    assert not window.show_solids.isEnabled() and window.view.solids is None

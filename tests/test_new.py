@@ -245,6 +245,8 @@ def test_text_output(capsys, tmp_path):
     (["cube", "--root", "6"], "--root: "),
     (["cube", "--size", "-2"], "size must be a positive number"),
     (["missing.obj"], "cannot read file"),
+    (["cube", "--clearance", "-1"], "--clearance: "),
+    (["cube", "--clearance", "nan"], "--clearance: "),
 ])
 def test_bad_input_exits_2_with_one_line(capsys, tmp_path, argv, field):
     out_path = tmp_path / "x.mech.json"
@@ -260,3 +262,90 @@ def test_size_is_refused_for_a_mesh_file(capsys, tmp_path):
     trimesh.creation.box().export(str(stl))
     code, _, err = run(capsys, "new", str(stl), "--size", "2", "-o", str(tmp_path / "x.mech.json"))
     assert code == 2 and "--size: " in err
+
+
+def star_prism(path, points=4, inner=0.5, height=0.3):
+    """An OBJ of a star-shaped tray: a 2*points-gon star extruded by height.
+
+    Its caps are concave, so side panels hinged to neighbouring edges of a notch lie
+    over each other in the flat layout: a net that must collide on the way.
+    """
+    angles = np.pi * np.arange(2 * points) / points
+    radii = np.where(np.arange(2 * points) % 2 == 0, 1.0, inner)
+    ring = np.column_stack([radii * np.cos(angles), radii * np.sin(angles)])
+    m = len(ring)
+    lines = [f"v {x:.12g} {y:.12g} {z:.12g}" for z in (0.0, height) for x, y in ring]
+    lines += ["v 0 0 0", f"v 0 0 {height}"]
+    bottom, top = 2 * m + 1, 2 * m + 2
+    for i in range(m):
+        j = (i + 1) % m
+        lines += [f"f {bottom} {j + 1} {i + 1}", f"f {top} {m + i + 1} {m + j + 1}",
+                  f"f {i + 1} {j + 1} {m + j + 1}", f"f {i + 1} {m + j + 1} {m + i + 1}"]
+    path.write_text("\n".join(lines) + "\n")
+    return path
+
+
+def crossing_pairs_fcl(mech, pose, shrink=1e-3):
+    """Pairs of panels that cross at one pose, by python-fcl.
+
+    Each panel is scaled about its centroid by (1 - shrink) first, so panels that
+    only touch (along a hinge or at a shared corner) are apart and only real
+    crossings remain.
+    """
+    fcl = pytest.importorskip("fcl")
+    from foldsim.analysis.collision import panels
+
+    pan = panels(mech)
+    objects = []
+    for f in range(mech.n_faces):
+        tri = pan.tri_points[pan.tri_face == f]
+        centre = mech.flat_faces[f].mean(axis=0)
+        tri = centre + (1 - shrink) * (tri - centre)
+        tri = tri @ pose[f, :3, :3].T + pose[f, :3, 3]
+        model = fcl.BVHModel()
+        model.beginModel(3 * len(tri), len(tri))
+        model.addSubModel(tri.reshape(-1, 3), np.arange(3 * len(tri)).reshape(-1, 3))
+        model.endModel()
+        objects.append(fcl.CollisionObject(model, fcl.Transform()))
+    return {(a, b) for a in range(mech.n_faces) for b in range(a + 1, mech.n_faces)
+            if fcl.collide(objects[a], objects[b], fcl.CollisionRequest(), fcl.CollisionResult())}
+
+
+def test_new_sweeps_what_it_wrote_and_fails_on_a_collision(capsys, tmp_path):
+    # The star tray's minimum-diameter net folds side panels through each other.
+    # `new` still writes the file (as for more than one degree of freedom), names the
+    # collisions in its report and exits 1, as `foldsim check` does on the file.
+    # Reference: python-fcl at t = 0.5 finds exactly the pairs whose reported
+    # collision interval holds t = 0.5.
+    from foldsim.gearing import fold_schedule
+    from foldsim.kinematics import poses_at
+
+    obj = star_prism(tmp_path / "star.obj")
+    path = tmp_path / "star.mech.json"
+    code, out, _ = run(capsys, "new", str(obj), "-o", str(path), "--json")
+    made = json.loads(out)
+    assert code == 1 and path.exists()
+    assert made["collision_free"] is False and made["collisions"] and made["dof"] == 1
+    code, out, _ = run(capsys, "check", str(path), "--json")
+    checked = json.loads(out)
+    assert code == 1 and checked["collisions"] == made["collisions"]
+    mech = load(path)
+    pose = poses_at(mech, fold_schedule(mech), np.array([0.5]))[0]
+    inside = {tuple(c["faces"]) for c in made["collisions"] if c["first_t"] <= 0.5 <= c["last_t"]}
+    assert inside and crossing_pairs_fcl(mech, pose) == inside
+    code, out, _ = run(capsys, "new", str(obj), "-o", str(path))
+    assert code == 1 and f"motion: {len(made['collisions'])} collision(s) between panels" in out
+
+
+def test_new_reports_a_clean_motion_and_the_clearance(capsys, tmp_path):
+    # A cube folds clean (every net of a cube does, with all hinges at 90 degrees:
+    # common practice). With a 10 mm cube and an 11 mm clearance, opposite faces (10 mm
+    # apart when closed) come too near, as `foldsim check --clearance 11` also says.
+    path, made = new_json(capsys, tmp_path, "cube", "--size", "10")
+    assert made["collision_free"] is True and made["collisions"] == [] and made["clearance"] == 0.0
+    code, out, _ = run(capsys, "new", "cube", "--size", "10", "--clearance", "11",
+                       "-o", str(tmp_path / "near.mech.json"), "--json")
+    near = json.loads(out)
+    assert code == 1 and near["collisions"]
+    _, out, _ = run(capsys, "check", str(tmp_path / "near.mech.json"), "--clearance", "11", "--json")
+    assert json.loads(out)["collisions"] == near["collisions"]

@@ -1,6 +1,7 @@
 """`foldsim new`: make a geared mechanism from a built-in solid or a mesh file."""
 
 import json
+import math
 from collections import Counter
 
 from ..design import GEARS, NETS, build
@@ -31,6 +32,9 @@ def register(sub):
                           "and spur pairs only; none: no gears (ideal schedule)")
     new.add_argument("--teeth", default=None, metavar="MIN:MAX",
                      help="give every gear pair integer teeth in this range")
+    new.add_argument("--clearance", type=float, default=0.0, metavar="C",
+                     help="panels not in contact by design collide when nearer than this over the motion "
+                          "(default 0), as for `foldsim check`")
     new.add_argument("--json", action="store_true", help="print the report as one JSON document")
     new.set_defaults(run=run)
 
@@ -68,17 +72,41 @@ def _format(report):
             lines.append(f" {r['hinges'][0]:>3}->{r['hinges'][1]:<3} {r['face']:>4}  {r['type']:<12}  "
                          f"{r['ratio']:<9.6f}  {teeth:<7}  {error:<9}  {gap:<9}  {geometry}")
     lines.append(f"closure gap at t = 1: {report['closure_gap']:.3g} {units}")
+    lines.append(_motion_line(report))
     lines.append(f"part types: {report['part_type_count']}")
     return "\n".join(lines)
+
+
+def _motion_line(report):
+    hits = report["collisions"]
+    if not hits:
+        return "motion: no collision from t = 0 to 1"
+    first = min(hits, key=lambda c: c["first_t"])
+    a, b = first["faces"]
+    return (f"motion: {len(hits)} collision(s) between panels, the first between faces {a} and {b} "
+            f"from t = {first['first_t']:.4g}; `foldsim check` lists them all")
+
+
+def _sweep(mech, clearance):
+    """The `check` sweep over the written design: its ``collisions`` list (docs/cli.md)."""
+    from ..analysis.collision import collision_intervals
+    from ..gearing import fold_schedule
+
+    return collision_intervals(mech, fold_schedule(mech), 0.0, 1.0, clearance)
 
 
 def run(args):
     from ..io.mechanism_json import save
 
+    if not 0 <= args.clearance < math.inf:
+        raise ModelError(f"--clearance: must be a finite non-negative length, not {args.clearance}")
     mech, report = build(args)
+    report["clearance"] = float(args.clearance)
+    report["collisions"] = _sweep(mech, args.clearance)
+    report["collision_free"] = not report["collisions"]
     try:
         save(mech, args.output)
     except OSError as exc:
         raise ModelError(f"{args.output}: cannot write file: {exc.strerror or exc}") from None
     print(json.dumps(report, indent=2) if args.json else _format(report))
-    return 0 if report["dof"] == 1 else 1
+    return 0 if report["dof"] == 1 and report["collision_free"] else 1

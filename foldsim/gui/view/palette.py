@@ -18,6 +18,8 @@ GAP = (128, 64, 208)
 HIGHLIGHT = (0, 150, 255)
 LABEL_TEXT = (30, 30, 40)
 LABEL_FILL = (255, 255, 255, 225)
+GEAR_BODY = (176, 132, 64)
+"""Gear bodies drawn as solids: bronze, apart from every panel colour and the warning."""
 INNER = (0.78, 0.78, 0.76)
 """What the inner side of a panel tends to (0-1 RGB): pale board."""
 

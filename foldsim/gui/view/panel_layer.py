@@ -35,7 +35,8 @@ void main() {
     int slot = int(a_face - u_base + 0.5);
     mat4 pose = u_pose[slot];
     v_normal = (u_modelview * (pose * vec4(a_normal, 0.0))).xyz;
-    if (u_lines > 0.5) {
+    if (u_lines > 0.5 || a_color.a > 0.0) {
+        // Lines, and solids with a colour of their own (gear bodies).
         v_front = a_color;
         v_back = a_color;
     } else {
@@ -159,7 +160,8 @@ class PanelLayer(gl.GLGraphicsItem.GLGraphicsItem):
             poly = np.asarray(poly, dtype=float)
             centre = poly.mean(axis=0)
             normal = unit(np.cross(poly - centre, np.roll(poly, -1, axis=0) - centre).sum(axis=0))
-            fills.append(self._rows(poly[np.asarray(tri)].reshape(-1, 3), normal, f, (1, 1, 1, 1)))
+            # Alpha 0: the fill takes the panel's colour (``set_colors``).
+            fills.append(self._rows(poly[np.asarray(tri)].reshape(-1, 3), normal, f, (1, 1, 1, 0)))
             loop = np.stack([poly, np.roll(poly, -1, axis=0)], axis=1).reshape(-1, 3)
             rows = [self._rows(loop, normal, f, line_color)]
             if f == root:
@@ -168,6 +170,11 @@ class PanelLayer(gl.GLGraphicsItem.GLGraphicsItem):
             outline_rows.append(np.concatenate(rows))
             ends = np.asarray(hinge_lines, dtype=float)[hinges_of[f]].reshape(-1, 3)
             hinge_rows.append(self._rows(ends, normal, f, hinge_color))
+        self._pack(fills, outline_rows, hinge_rows)
+
+    def _pack(self, fills, outline_rows, hinge_rows):
+        """Put each face's fill, outline and hinge rows into the one vertex buffer."""
+        n_faces = len(fills)
         blocks = fills + outline_rows + hinge_rows
         self._data = np.ascontiguousarray(np.concatenate(blocks), dtype=np.float32)
         counts = np.array([len(b) for b in blocks]).reshape(3, n_faces)

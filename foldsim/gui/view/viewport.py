@@ -36,6 +36,8 @@ draws the panels, and its shaders), `camera` (framing, projection, picking and t
 mouse) and `overlays` (crossings, gaps and labels, the envelope, the selection).
 """
 
+from dataclasses import dataclass
+
 import numpy as np
 import pyqtgraph.opengl as gl
 from OpenGL import GL
@@ -58,6 +60,7 @@ from .overlays import (
     label_text,
 )
 from .panel_layer import PanelLayer, _PanelProgram, _rgba, uniform_slots
+from .solid_layer import SolidLayer
 
 __all__ = ["CLICK_SLOP", "ENVELOPE", "ENVELOPE_ALPHA", "MAX_AUTO_LABELS", "NEAR_GAP", "VIEWS", "FoldView",
            "PanelLayer", "default_face_colors", "image_array", "label_text", "stage_transform", "uniform_slots"]
@@ -68,6 +71,17 @@ __all__ = ["CLICK_SLOP", "ENVELOPE", "ENVELOPE_ALPHA", "MAX_AUTO_LABELS", "NEAR_
 # before the application object exists.
 if QtWidgets.QApplication.instance() is None:
     QtCore.QCoreApplication.setAttribute(QtCore.Qt.ApplicationAttribute.AA_ShareOpenGLContexts)
+
+
+@dataclass(frozen=True)
+class _KnownCollisions:
+    """A sweep's intervals as arrays, and the stretch of t [lo, hi] it settled."""
+
+    faces: np.ndarray
+    first: np.ndarray
+    last: np.ndarray
+    lo: float
+    hi: float
 
 
 def default_face_colors(mech):
@@ -115,6 +129,8 @@ class FoldView(CameraControl, Overlays, gl.GLViewWidget):
         self.t = 0.0
         self.poses = None
         self.colliding = np.zeros((0, 2), np.int64)
+        self.known = None
+        self.solids = None
         self.gaps = np.zeros(0)
         self.gap_tolerance = 0.0
         self.selected_face = -1
@@ -163,6 +179,8 @@ class FoldView(CameraControl, Overlays, gl.GLViewWidget):
         self.selected_hinge = -1
         self.label_edges = None
         self.colliding = np.zeros((0, 2), np.int64)
+        self.known = None
+        self.solids = None
         self._stage = gl.GLGraphicsItem.GLGraphicsItem()
         self._stage.setTransform(_matrix(stage_transform(mech)))
         tris = [self._local_triangles(poly, self.pan.tri_points[s:s + c])
@@ -191,6 +209,37 @@ class FoldView(CameraControl, Overlays, gl.GLViewWidget):
         self.envelope_poses = None
         self.set_t(self.t)
         self.fit_motion()
+
+    def set_solids(self, solids):
+        """Draw the panels as solids (a build's prisms and gear bodies), or flat again.
+
+        The camera, t, colours and marks stay; only the panel layer is replaced.
+
+        Parameters
+        ----------
+        solids : sequence of Solid or None
+            `foldsim.build.prisms.Solid` (each carried by one face, flat frame);
+            None draws the file's flat panels.
+        """
+        if self.mech is None:
+            return
+        mech = self.mech
+        if self.isValid():
+            self.makeCurrent()
+            self._layer.release()
+            self.doneCurrent()
+        self._layer.setParentItem(None)
+        if solids is None:
+            tris = [self._local_triangles(poly, self.pan.tri_points[s:s + c])
+                    for poly, s, c in zip(mech.flat_faces, self.pan.start, self.pan.count)]
+            self._layer = PanelLayer(mech.flat_faces, tris, mech.axes, mech.parent, mech.root,
+                                     parentItem=self._stage)
+        else:
+            self._layer = SolidLayer(solids, mech.n_faces, mech.axes, mech.parent, parentItem=self._stage)
+        self.solids = None if solids is None else list(solids)
+        self._layer.set_poses(self.poses)
+        self._refresh_colors()
+        self.update()
 
     @staticmethod
     def _local_triangles(poly, tris):
@@ -251,6 +300,39 @@ class FoldView(CameraControl, Overlays, gl.GLViewWidget):
 
     # ------------------------------------------------------------------ drive
 
+    def set_known_collisions(self, intervals, swept=None):
+        """Take collisions from a sweep's intervals instead of testing every frame.
+
+        Inside the swept range a frame's colliding pairs are the pairs whose
+        interval holds its t (the sweep's ends are within ``t_resolution``), so a
+        scrub costs the drawing and the gaps, not a collision query; outside it,
+        and at t = 0 exactly (where flat-layout overlaps belong), the pose is tested.
+
+        Parameters
+        ----------
+        intervals : list of dict or None
+            ``{"faces", "first_t", "last_t"}`` as
+            `foldsim.analysis.collision.collision_intervals` gives them; None
+            forgets them.
+        swept : (float, float), optional
+            The stretch of t the sweep has settled so far.
+        """
+        if intervals is None or swept is None or not swept[1] > swept[0]:
+            self.known = None
+            return
+        faces = np.array([c["faces"] for c in intervals], np.int64).reshape(-1, 2)
+        faces.sort(axis=1)
+        self.known = _KnownCollisions(faces, np.array([c["first_t"] for c in intervals], float),
+                                      np.array([c["last_t"] for c in intervals], float),
+                                      float(swept[0]), float(swept[1]))
+
+    def _colliding_at(self, poses):
+        known = self.known
+        if known is not None and known.lo <= self.t <= known.hi and self.t != 0.0:
+            inside = (known.first <= self.t) & (self.t <= known.last)
+            return np.unique(known.faces[inside], axis=0).reshape(-1, 2)
+        return colliding_pairs(self.mech, poses, pan=self.pan)
+
     def set_t(self, t):
         """Move every panel to the drive value t and update collisions and gaps.
 
@@ -266,7 +348,7 @@ class FoldView(CameraControl, Overlays, gl.GLViewWidget):
         poses = poses_at(mech, self.schedule, np.array([self.t]))
         self.poses = poses[0]
         self._layer.set_poses(self.poses)
-        self.colliding = colliding_pairs(mech, self.poses, pan=self.pan)
+        self.colliding = self._colliding_at(self.poses)
         self._refresh_colors()
         self._update_crossings()
         self.gaps = cut_edge_gaps(mech, poses)[0] if len(mech.cut_faces) else np.zeros(0)

@@ -195,6 +195,11 @@ class MainWindow(FileHandling, Jobs, QtWidgets.QMainWindow):
             action.setCheckable(True)
             group.addAction(action)
         self.color_by_face.setChecked(True)
+        self.show_solids = self._action(view, "&Thick panels", lambda: self.apply_solids(), None,
+                                        "Draw the panels as the build's solids (files with a build object)")
+        self.show_solids.setCheckable(True)
+        self.show_solids.setChecked(True)
+        self.show_solids.setEnabled(False)
         view.addSeparator()
         dock = self.stackup_dock.toggleViewAction()
         dock.setText("&Play and Backlash")
@@ -265,6 +270,20 @@ class MainWindow(FileHandling, Jobs, QtWidgets.QMainWindow):
 
     # ------------------------------------------------------------------ model
 
+    def apply_solids(self):
+        """Draw thick panels when the model has a build and the View toggle is on."""
+        model = self.model
+        built = model is not None and model.has_build()
+        self.show_solids.setEnabled(built)
+        if model is None:
+            return
+        try:
+            solids = model.solids() if built and self.show_solids.isChecked() else None
+        except FoldsimError as exc:
+            self.statusBar().showMessage(error_line(exc), 10000)
+            solids = None
+        self.view.set_solids(solids or None)
+
     def _show_model(self, model, keep_view):
         old = self.model
         same = keep_view and old is not None and old.mech.n_faces == model.mech.n_faces
@@ -275,6 +294,7 @@ class MainWindow(FileHandling, Jobs, QtWidgets.QMainWindow):
         self.model = model
         mech = model.mech
         self.view.set_mechanism(mech, model.schedule, model.pan, face_colors=self._colors(model))
+        self.apply_solids()
         if camera is not None:
             for key in ("center", "distance", "elevation", "azimuth"):
                 self.view.opts[key] = camera[key]

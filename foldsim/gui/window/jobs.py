@@ -199,6 +199,8 @@ class Jobs:
             return
         self.intervals = found
         self.drive.strip.set_intervals(found, (task.edges[0], task.edges[done]))
+        # Scrubbing inside the settled stretch reads collisions from here (docs/app.md).
+        self.view.set_known_collisions(found, (task.edges[0], task.edges[done]))
         self.drive.show_progress((done, total))
 
     def _sweep_done(self, task, found):
@@ -206,6 +208,7 @@ class Jobs:
             return
         self.intervals = found
         self.drive.strip.set_intervals(found, (task.edges[0], task.edges[-1]))
+        self.view.set_known_collisions(found, (task.edges[0], task.edges[-1]))
         self.drive.show_progress(None)
         self.sweep = None
         self._update_status()

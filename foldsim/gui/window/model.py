@@ -136,6 +136,25 @@ class Model:
             chunks.append(cut_edge_gaps(self.mech, poses))
         self.gaps = np.concatenate(chunks)
         self.labels = None
+        self._solids = None
+
+    def has_build(self):
+        """Whether the file describes its printed parts (a ``build`` object, docs/build.md)."""
+        return self.mech.extras.get("build") is not None
+
+    def solids(self):
+        """The build's solids, each carried by one face (list of `Solid`; made once).
+
+        Thick panels as the build's prisms (`foldsim.build.prisms.panel_solids`).
+        Empty for a file without a ``build`` object.
+        """
+        if self._solids is None:
+            from ...build.prisms import panel_solids
+            from ...build.spec import build_spec
+
+            spec = build_spec(self.mech)
+            self._solids = [] if spec is None else panel_solids(self.mech, spec)
+        return self._solids
 
     @classmethod
     def from_shape(cls, recipe, mech=None):

@@ -1,0 +1,118 @@
+"""The GL item that draws a build's solids: thick panels and gear bodies.
+
+`SolidLayer` is a `PanelLayer` whose fills are closed triangle meshes instead of
+flat polygons. Every solid is carried by one face (`foldsim.build.prisms.Solid`),
+so the layer moves with the same (F, 4, 4) poses and draws a block of faces per
+call, as the flat layer does. A panel's prism takes the panel's colour (warning and
+selection included); a gear body keeps a colour of its own. Outlines are the
+meshes' feature edges: where two triangles meet at more than a few degrees.
+"""
+
+import numpy as np
+
+from . import palette
+from .panel_layer import PanelLayer, _rgba
+
+FEATURE_DEG = 20.0
+"""Edges between triangles that turn by more than this are drawn as outlines."""
+
+
+def feature_edges(triangles, min_turn_deg=FEATURE_DEG):
+    """The edges of a triangle mesh where its surface turns, and its open edges.
+
+    Parameters
+    ----------
+    triangles : (n, 3, 3) float
+    min_turn_deg : float
+        Two triangles sharing an edge make it a feature edge when their normals
+        differ by more than this.
+
+    Returns
+    -------
+    (m, 2, 3) float
+        End points of each feature edge, once each.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> square = np.array([[[0, 0, 0], [1, 0, 0], [1, 1, 0]], [[0, 0, 0], [1, 1, 0], [0, 1, 0]]], float)
+    >>> len(feature_edges(square))  # the four sides; the diagonal is flat
+    4
+    """
+    tri = np.asarray(triangles, dtype=float).reshape(-1, 3, 3)
+    if not len(tri):
+        return np.zeros((0, 2, 3))
+    normals = np.cross(tri[:, 1] - tri[:, 0], tri[:, 2] - tri[:, 0])
+    length = np.linalg.norm(normals, axis=1, keepdims=True)
+    normals = np.divide(normals, length, out=np.zeros_like(normals), where=length > 0)
+    ends = np.stack([tri, np.roll(tri, -1, axis=1)], axis=2).reshape(-1, 2, 3)
+    owner = np.repeat(np.arange(len(tri)), 3)
+    # Corners that coincide (to 1e-9 of the mesh's size) are one vertex.
+    scale = max(float(np.ptp(tri.reshape(-1, 3), axis=0).max()), 1e-300)
+    _, vid = np.unique(np.round(tri.reshape(-1, 3) / (scale * 1e-9)).astype(np.int64), axis=0,
+                       return_inverse=True)
+    vid = vid.ravel().reshape(-1, 3)
+    keys = np.sort(np.stack([vid, np.roll(vid, -1, axis=1)], axis=2).reshape(-1, 2), axis=1)
+    _, first, inverse, counts = np.unique(keys, axis=0, return_index=True, return_inverse=True,
+                                          return_counts=True)
+    inverse = inverse.ravel()
+    keep = counts[inverse] != 2
+    pairs = np.flatnonzero(counts == 2)
+    if len(pairs):
+        order = np.argsort(inverse, kind="stable")
+        starts = np.searchsorted(inverse[order], pairs)
+        a, b = owner[order[starts]], owner[order[starts + 1]]
+        turn = np.degrees(np.arccos(np.clip(np.einsum("ij,ij->i", normals[a], normals[b]), -1.0, 1.0)))
+        sharp = np.zeros(len(counts), bool)
+        sharp[pairs[turn > min_turn_deg]] = True
+        keep |= sharp[inverse]
+    chosen = np.zeros(len(counts), bool)
+    chosen[inverse[keep]] = True
+    return ends[first[chosen]]
+
+
+class SolidLayer(PanelLayer):
+    """Every face's solids (its prism, the gear bodies it carries) as one layer.
+
+    Parameters
+    ----------
+    solids : sequence of Solid
+        ``face``, ``kind`` and ``triangles`` (flat frame, outward).
+    n_faces : int
+    hinge_lines : (H, 2, 3) float
+    hinge_parent : (H,) int
+    parentItem : GLGraphicsItem, optional
+    """
+
+    def __init__(self, solids, n_faces, hinge_lines, hinge_parent, parentItem=None):
+        super(PanelLayer, self).__init__(parentItem=parentItem)
+        fills = [[] for _ in range(n_faces)]
+        outlines = [[] for _ in range(n_faces)]
+        gear = _rgba(palette.GEAR_BODY)
+        line = _rgba(palette.OUTLINE)
+        for solid in solids:
+            tri = np.asarray(solid.triangles, dtype=float).reshape(-1, 3, 3)
+            normals = np.cross(tri[:, 1] - tri[:, 0], tri[:, 2] - tri[:, 0])
+            normals /= np.maximum(np.linalg.norm(normals, axis=1, keepdims=True), 1e-300)
+            # Alpha 0: a panel's prism takes the panel's colour; a gear keeps its own.
+            color = (1.0, 1.0, 1.0, 0.0) if solid.kind == "panel" else gear
+            fills[solid.face].append(self._mesh_rows(tri, normals, solid.face, color))
+            edges = feature_edges(tri).reshape(-1, 3)
+            outlines[solid.face].append(self._rows(edges, (0.0, 0.0, 1.0), solid.face, line))
+        hinge_rows = [[] for _ in range(n_faces)]
+        for h, f in enumerate(hinge_parent):
+            ends = np.asarray(hinge_lines, dtype=float)[h]
+            hinge_rows[f].append(self._rows(ends, (0.0, 0.0, 1.0), f, _rgba(palette.HINGE)))
+        self.solid_count = len(solids)
+        self._pack([self._join(r) for r in fills], [self._join(r) for r in outlines],
+                   [self._join(r) for r in hinge_rows])
+
+    @staticmethod
+    def _join(rows):
+        return np.concatenate(rows) if rows else np.zeros((0, 11))
+
+    @staticmethod
+    def _mesh_rows(tri, normals, face, color):
+        n = len(tri) * 3
+        return np.hstack([tri.reshape(-1, 3), np.repeat(normals, 3, axis=0), np.full((n, 1), float(face)),
+                          np.broadcast_to(np.asarray(color, float), (n, 4))])
