@@ -10,6 +10,10 @@ an earlier one. What is left is refined exactly as the full sweep refines it, so
 first collision found is the one the full sweep reports first (the smallest
 ``first_t``, ties to the smallest face pair); `tests/test_study.py` compares the two.
 A net that does not collide costs the same as the full sweep.
+
+It reads that module's private `_Evaluator` and `_swept_candidates` and repeats
+its starting grid (`_grid`); a change to the sweep there must be mirrored here,
+and the comparison test says when it is not.
 """
 
 import numpy as np
