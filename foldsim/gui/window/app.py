@@ -68,6 +68,7 @@ class MainWindow(FileHandling, Jobs, QtWidgets.QMainWindow):
         self.export_progress = None
         self.dialog = None
         self.recording = False
+        self.ask_before_close = True
         self.pool = QtCore.QThreadPool(self)
         self.pool.setMaxThreadCount(1)
         # Loads, exports and the stack-up: apart from the sweep, so none waits for it.
@@ -258,7 +259,8 @@ class MainWindow(FileHandling, Jobs, QtWidgets.QMainWindow):
         files = [url.toLocalFile() for url in ev.mimeData().urls() if url.isLocalFile()]
         if files:
             ev.acceptProposedAction()
-            self.open_path(files[0])
+            if self.keep_or_discard("open"):
+                self.open_path(files[0])
 
     # ------------------------------------------------------------------ model
 
@@ -432,6 +434,9 @@ class MainWindow(FileHandling, Jobs, QtWidgets.QMainWindow):
     # ------------------------------------------------------------------ close
 
     def closeEvent(self, ev):
+        if self.ask_before_close and not self.keep_or_discard("quit"):
+            ev.ignore()
+            return
         self.drive.play(False)
         self.cancel_sweep()
         self.cancel_load()
@@ -460,5 +465,6 @@ def run(path=None, argv=None, built=None):
         window.statusBar().showMessage("Open a mechanism file (File → Open)")
     quit_after = os.environ.get("FOLDSIM_QUIT_AFTER_MS")
     if quit_after:
+        window.ask_before_close = False  # unattended: nobody to answer
         QtCore.QTimer.singleShot(int(quit_after), window.close)
     return app.exec()

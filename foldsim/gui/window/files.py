@@ -25,11 +25,64 @@ class FileHandling:
     """The main window's file commands (a mixin of `app.MainWindow`)."""
 
     def _refresh_recent(self):
-        self.recent_menu.clear()
-        for path in self.recent_files():
+        # Not QMenu.clear(): that deletes at once the action whose signal may be running now.
+        for action in self.recent_menu.actions():
+            self.recent_menu.removeAction(action)
+            action.deleteLater()
+        recent = self.recent_files()
+        for path in recent:
             action = self.recent_menu.addAction(path)
-            action.triggered.connect(lambda _=False, p=path: self.open_path(p))
-        self.recent_menu.setEnabled(bool(self.recent_files()))
+            action.triggered.connect(lambda _=False, p=path: self._open_recent(p))
+        self.recent_menu.addSeparator()
+        clear = self.recent_menu.addAction("Clear recent")
+        clear.setStatusTip("Forget the recently opened files")
+        clear.triggered.connect(self.clear_recent)
+        clear.setEnabled(bool(recent))
+        self.recent_menu.setEnabled(bool(recent))
+
+    def _open_recent(self, path):
+        if self.keep_or_discard("open"):
+            self.open_path(path)
+
+    def clear_recent(self):
+        """File ▸ Open recent ▸ Clear recent: forget the list."""
+        self.settings.setValue("recent", [])
+        self._refresh_recent()
+
+    # ----------------------------------------------------------- unsaved work
+
+    def unsaved(self):
+        """Whether the model on show exists only in memory (made from a shape, never saved)."""
+        return self.model is not None and self.model.path is None
+
+    def keep_or_discard(self, action):
+        """Before ``action`` replaces or closes an unsaved model, ask Save / Discard / Cancel.
+
+        Parameters
+        ----------
+        action : str
+            What is about to happen, in the words of the question ("quit", "open", "new").
+
+        Returns
+        -------
+        bool
+            True to go ahead: nothing unsaved, the model was saved, or the user
+            chose to discard it. False when the user cancelled (or the save did not
+            happen).
+        """
+        if not self.unsaved():
+            return True
+        buttons = QtWidgets.QMessageBox.StandardButton
+        words = {"quit": "before quitting", "open": "before opening another file",
+                 "new": "before making a new model"}
+        answer = QtWidgets.QMessageBox.question(
+            self, "foldsim",
+            f"{self.model.name()} is not saved. Save it {words.get(action, 'first')}?",
+            buttons.Save | buttons.Discard | buttons.Cancel, buttons.Save)
+        if answer == buttons.Save:
+            self.save_as()
+            return not self.unsaved()
+        return answer == buttons.Discard
 
     def recent_files(self):
         """Recently opened files, newest first."""
@@ -45,6 +98,8 @@ class FileHandling:
     # ------------------------------------------------------------------ files
 
     def open_dialog(self):
+        if not self.keep_or_discard("open"):
+            return
         start = str(self.model.folder()) if self.model else ""
         path, _ = QtWidgets.QFileDialog.getOpenFileName(
             self, "Open mechanism or mesh", start,
@@ -54,6 +109,8 @@ class FileHandling:
 
     def shape_dialog(self):
         """File ▸ New from shape…"""
+        if not self.keep_or_discard("new"):
+            return None
         box = ShapeDialog(self.model.folder() if self.model else "", self)
         box.accepted.connect(lambda box=box: self._shape_chosen(box))
         box.finished.connect(box.deleteLater)
