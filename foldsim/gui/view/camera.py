@@ -120,6 +120,10 @@ class CameraControl:
         end = 1.0 if self.t >= 0 else -1.0
         self.fit(t_values=(*np.linspace(0.0, end, 11), self.t))
 
+    def fit_pose(self):
+        """Fit the model as it stands at the current t (a closed model fills the view)."""
+        self.fit(t_values=(self.t,))
+
     def set_view(self, name):
         """Turn the camera to a standard view ("front", "top", "side" or "iso") and fit."""
         elevation, azimuth = VIEWS[name]
