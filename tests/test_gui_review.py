@@ -329,3 +329,179 @@ def test_part_type_colours_stay_apart_for_colour_blind_viewers():
     assert least_difference(types, "tritanomaly") > 5
     # The per-face palette was not made for this: two of its colours merge for a deuteranope.
     assert least_difference(palette.PANELS, "deuteranomaly") < 5
+
+
+# --------------------------------------------------------------- 3. honest marks
+
+from foldsim.gearing import fold_angles  # noqa: E402
+from foldsim.gui.record.caption import t_text  # noqa: E402
+
+from helpers import strip_document, write_doc  # noqa: E402
+
+
+@pytest.fixture
+def strip150(tmp_path):
+    """Three unit squares, the middle one fixed, both hinges closing at 150°: the outer
+    squares meet at t = 0.8 (an equilateral triangle, by hand) and cross beyond it."""
+    doc = strip_document()
+    doc.update(name="strip 150", root=1, drive=0)
+    for hinge in doc["hinges"]:
+        hinge["closed_angle_deg"] = 150.0
+    return write_doc(tmp_path, doc, "strip150.mech.json")
+
+
+def finish_sweep(qtbot, win):
+    qtbot.waitUntil(lambda: not win.sweeping(), timeout=60000)
+
+
+def test_the_strip_keeps_its_detailed_tooltip_while_the_mouse_rests(window, strip150, qtbot):
+    from PySide6 import QtGui
+
+    window.open_path(strip150)
+    finish_sweep(qtbot, window)
+    strip = window.drive.strip
+    c = window.intervals[-1]
+    x = int(round(strip.x_of(0.5 * (c["first_t"] + c["last_t"]))))
+    rest = QtGui.QHelpEvent(QtCore.QEvent.Type.ToolTip, QtCore.QPoint(x, 8), strip.mapToGlobal(QtCore.QPoint(x, 8)))
+    QtWidgets.QApplication.sendEvent(strip, rest)
+    text = QtWidgets.QToolTip.text()
+    assert text.startswith("faces 0 and 2: t = ") and text != strip.GENERIC_TIP
+    empty = int(round(strip.x_of(0.0)))
+    rest = QtGui.QHelpEvent(QtCore.QEvent.Type.ToolTip, QtCore.QPoint(empty, 8),
+                            strip.mapToGlobal(QtCore.QPoint(empty, 8)))
+    QtWidgets.QApplication.sendEvent(strip, rest)
+    assert QtWidgets.QToolTip.text() == strip.GENERIC_TIP
+
+
+def test_the_status_says_what_the_sweep_has_covered_so_far(window, strip150, qtbot):
+    window.open_path(strip150)
+    window.cancel_sweep()
+    text = window.status.text()
+    assert "over −1..1" not in text
+    seen = []
+    window.start_sweep()
+    window.sweep.signals.progress.connect(lambda *_: seen.append(window.status.text()))
+    finish_sweep(qtbot, window)
+    assert seen and all("so far" in s for s in seen)
+    assert all("over −1..1 so far" in s or "over −1..1" not in s for s in seen)
+    # The strip150 outer squares cross for t beyond ±0.8 (by hand): two stretches once done.
+    assert window.status.text().endswith("2 collision stretches over −1..1")
+    window.start_sweep()
+    window.cancel_sweep()
+    assert "over −1..1" not in window.status.text()
+
+
+def test_build_outlines_go_with_their_panel_from_the_view_and_clips(window, qtbot, tmp_path):
+    window.open_path(DEMO)
+    window.drive.set_t(1.0)
+    qtbot.wait(50)
+    plain = window.view.render_image(*SIZE)  # the view's size and camera as they are with the panel shut
+    window.stackup_dock.show()
+    qtbot.wait(50)
+    panel = window.stackup_panel
+    panel.process.setCurrentIndex(panel.process.findData("sintered-nylon"))
+    panel.samples.setValue(200)
+    panel.outlined.setValue(20)
+    panel.run_button.click()
+    qtbot.waitUntil(lambda: not panel.running(), timeout=120000)
+    assert window.view.envelope_poses is not None and "envelope" in keys(window)
+    window.stackup_dock.hide()
+    qtbot.wait(50)
+    assert window.view.envelope_poses is None and "envelope" not in keys(window)
+    np.testing.assert_array_equal(window.view.render_image(*SIZE), plain)
+    # A clip made now has no outlines either: its frame is the plain one.
+    from foldsim.gui.record.recorder import render_frames
+
+    frames = render_frames(window.view, 1.0, 1.0, seconds=1, fps=1, size=SIZE, overlay=False, fit=False)
+    _, _, rgba = next(frames)
+    frames.close()
+    np.testing.assert_array_equal(rgba, plain)
+    window.stackup_dock.show()
+    qtbot.wait(50)
+    assert window.view.envelope_poses is not None
+
+
+def test_during_playback_every_part_shows_the_same_t(window, qtbot):
+    window.open_path(DEMO)
+    mech, schedule = window.model.mech, window.model.schedule
+    checked = []
+
+    def same_t(t):
+        view = window.view
+        assert view.t == t
+        assert window.drive.field.text() == t_text(t).replace("−", "-")
+        assert t_text(t) in window.status.text()
+        assert window.gap_plot.cursor.value() == t
+        np.testing.assert_allclose(window.hinge_model.now, np.degrees(fold_angles(schedule, np.array([t]))[0]))
+        checked.append(t)
+
+    window.drive.tChanged.connect(same_t)
+    width = window.drive.play_button.width()
+    window.drive.play(True)
+    qtbot.waitUntil(lambda: len(checked) >= 15, timeout=60000)
+    assert window.drive.play_button.text() == "Pause" and window.drive.play_button.width() == width
+    window.drive.play(False)
+    assert window.drive.play_button.width() == width
+    assert len(set(checked)) > 10 and mech.n_faces > 0
+
+
+@pytest.mark.parametrize("t", [k / 16 for k in range(-16, 17)] + [-0.0004, 0.0005, 0.1235, 0.999])
+def test_caption_status_and_field_round_t_alike(window, t):
+    window.open_path(DEMO)
+    window.drive.set_t(t)
+    field = window.drive.field.text()  # Qt's own rounding of the number field
+    assert t_text(window.view.t).replace("−", "-") == field
+    assert t_text(window.view.t) in window.status.text()
+    from foldsim.gui.record.caption import overlay_lines
+
+    assert overlay_lines(window.view)[1] == t_text(window.view.t)
+
+
+# ------------------------------------------------------------- 4. gap lines
+
+from foldsim.gui.view.overlays import LARGE_MODEL, MAX_AUTO_LABELS, NEAR_GAP  # noqa: E402
+
+
+def test_gap_lines_can_be_turned_off_and_their_labels_go_too(window):
+    window.open_path(TRAY)
+    window.drive.set_t(0.9)
+    view = window.view
+    assert view._gap_lines.visible() and view._labels
+    with_lines = view.render_image(*SIZE)
+    window.gap_lines_action.trigger()
+    assert not view._gap_lines.visible() and not view._labels and len(view.drawn_gaps()) == 0
+    without = view.render_image(*SIZE)
+    assert pixels_near(with_lines, palette.GAP, 20) > pixels_near(without, palette.GAP, 20) + 50
+    window.gap_lines_action.trigger()
+    assert view._gap_lines.visible()
+
+
+def test_a_large_model_draws_only_the_chosen_or_the_widest_gaps(window):
+    recipe = shape_args("geodesic:2", net="bfs", gears="none")
+    window.open_shape(recipe, built=build(recipe)[0])
+    view = window.view
+    assert view.mech.n_faces >= LARGE_MODEL
+    window.drive.set_t(0.6)
+    view.set_label_edges(None)
+    drawn = view.drawn_gaps()
+    assert 0 < len(drawn) <= MAX_AUTO_LABELS
+    near = view.gaps[view.open_edges()]
+    widest = np.sort(near[near <= NEAR_GAP * view.mech.size])[::-1]  # wider ones are the net lying open
+    assert view.gaps[drawn].min() >= widest[min(MAX_AUTO_LABELS, len(widest)) - 1] - 1e-12
+    chosen = [int(e) for e in view.open_edges()[:2]]
+    view.set_label_edges(chosen)
+    assert sorted(view.drawn_gaps().tolist()) == sorted(chosen)
+
+
+def test_a_point_behind_a_panel_is_hidden_and_one_in_front_is_not(window):
+    window.open_path(TRAY)
+    window.drive.set_t(0.0)  # flat: every panel in one plane, seen from above
+    view = window.view
+    eye = view._eye()
+    root = view.mech.root
+    from foldsim.gui.view.numbers import face_centres
+
+    centre = face_centres(view.mech)[root]  # the root face does not move (identity pose)
+    towards = centre - eye
+    behind, before = centre + 0.2 * towards, centre - 0.2 * towards
+    assert view.hidden_points(np.array([behind, before])).tolist() == [True, False]

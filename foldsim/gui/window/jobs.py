@@ -222,6 +222,8 @@ class Jobs:
         task.signals.cancelled.connect(lambda task=task: self._sweep_stopped(task))
         task.signals.failed.connect(lambda message, task=task: self._sweep_stopped(task, message))
         self.sweep = task
+        self.intervals = []
+        self.swept, self.swept_whole = (task.edges[0], task.edges[0]), False
         self.drive.show_progress((0, len(task.edges) - 1))
         self.pool.start(task)
 
