@@ -505,3 +505,259 @@ def test_a_point_behind_a_panel_is_hidden_and_one_in_front_is_not(window):
     towards = centre - eye
     behind, before = centre + 0.2 * towards, centre - 0.2 * towards
     assert view.hidden_points(np.array([behind, before])).tolist() == [True, False]
+
+
+# ------------------------------------------------------------------ 5. framing
+
+
+def model_extent(view, width, height):
+    """Fraction of the frame's width and height the posed model's corners span."""
+    from foldsim.gui.record.framing import _posed_corners
+
+    px = view.model_to_pixels(_posed_corners(view, [view.t]), width, height)
+    return max(np.ptp(px[:, 0]) / width, np.ptp(px[:, 1]) / height)
+
+
+def test_fit_current_pose_fills_the_view_with_the_closed_model(window):
+    window.open_path(TRAY)
+    window.drive.set_t(1.0)
+    view = window.view
+    actions = {a.text().replace("&", ""): a for a in window.findChildren(QtWidgets.QMenu)[0].actions()}
+    fit_pose = next(a for a in window.actions() if a.text().replace("&", "") == "Fit current pose")
+    assert fit_pose.shortcut().toString() == "Shift+F" and actions is not None
+    fit_motion = next(a for a in window.actions() if a.text().replace("&", "") == "Fit whole motion")
+    fit_motion.trigger()
+    motion = model_extent(view, view.width(), view.height())
+    fit_pose.trigger()
+    pose = model_extent(view, view.width(), view.height())
+    # camera.fit leaves a margin of 1.1 on the larger side: the model spans 1 / 1.1 of it.
+    assert pose == pytest.approx(1 / 1.1, abs=0.02)
+    assert pose > motion + 0.05
+
+
+def test_clips_and_screenshots_offer_both_fits_and_the_pose_fills_the_frame(window, tmp_path):
+    from PySide6 import QtGui
+
+    from foldsim.gui.view.viewport import image_array
+
+    window.open_path(TRAY)
+    window.drive.set_t(1.0)
+    for box in (window.clip_dialog(), window.save_image()):
+        offered = [box.fit.itemData(k) for k in range(box.fit.count())]
+        assert {"pose", "motion", "keep"} <= set(offered)
+        box.reject()
+
+    def drawn_width(fit, name):
+        target = tmp_path / name
+        window.record(target, size=(320, 240), fit=fit)
+        img = image_array(QtGui.QImage(str(target)))
+        cols = np.flatnonzero((np.abs(img[..., :3].astype(int) - palette.BACKGROUND).max(axis=-1) > 20).any(axis=0))
+        return cols.max() - cols.min()
+
+    assert drawn_width("pose", "pose.png") > drawn_width("motion", "motion.png") + 20
+
+
+# ------------------------------------------------------------------ 6. dialogs
+
+
+def test_dialogs_remember_their_settings_in_the_session_and_the_next(window, tmp_path, qtbot):
+    window.open_path(DEMO)
+    box = window.clip_dialog()
+    box.kind.setCurrentIndex(box.kind.findData(".gif"))
+    box.path.setText(str(tmp_path / "out" / "fold.gif"))
+    (tmp_path / "out").mkdir()
+    box.fps.setValue(12)
+    box.seconds.setValue(0.25)
+    box.width_box.setValue(64)
+    box.height_box.setValue(48)
+    box.fit.setCurrentIndex(box.fit.findData("pose"))
+    box.accept()
+    assert (tmp_path / "out" / "fold.gif").is_file()
+    again = window.clip_dialog()
+    assert again.kind.currentData() == ".gif" and again.fps.value() == 12 and again.seconds.value() == 0.25
+    assert (again.width_box.value(), again.height_box.value()) == (64, 48) and again.fit.currentData() == "pose"
+    # The last folder used, not the demo's (bundled assets) folder.
+    assert Path(again.path.text()).parent == (tmp_path / "out").resolve()
+    again.reject()
+    export = window.export_dialog()
+    assert Path(export.path.text()).parent == (tmp_path / "out").resolve()
+    export.kind.setCurrentIndex(export.kind.findData(".csv"))
+    export.frames.setValue(7)
+    export.accept()
+    qtbot.waitUntil(lambda: not window.exporting(), timeout=30000)
+    # A new session reads the same settings file.
+    later = MainWindow(window.settings)
+    qtbot.addWidget(later)
+    later.open_path(DEMO)
+    clip = later.clip_dialog()
+    assert clip.fps.value() == 12 and clip.kind.currentData() == ".gif"
+    export = later.export_dialog()
+    assert export.kind.currentData() == ".csv" and export.frames.value() == 7
+    clip.reject()
+    export.reject()
+
+
+def test_the_first_output_folder_is_not_the_bundled_assets(window, monkeypatch, tmp_path):
+    monkeypatch.setenv("HOME", str(tmp_path))
+    window.open_path(DEMO)
+    box = window.export_dialog()
+    assert Path(box.path.text()).parent == Path.home()
+    assert "assets" not in Path(box.path.text()).parts
+    box.reject()
+
+
+def test_mp4_sizes_are_even_and_refusals_name_the_dialog_fields(window, tmp_path):
+    window.open_path(DEMO)
+    box = window.clip_dialog()
+    box.kind.setCurrentIndex(box.kind.findData(".mp4"))
+    box.width_box.setValue(641)
+    box.width_box.editingFinished.emit()
+    box.height_box.setValue(359)
+    assert box.options()["size"] == (642, 360)
+    assert box.width_box.singleStep() == 2
+    box.kind.setCurrentIndex(box.kind.findData(".gif"))
+    box.width_box.setValue(641)
+    assert box.options()["size"][0] == 641 and box.width_box.singleStep() == 1
+    box.reject()
+    # A refusal of a clip from the dialog names the dialog's field, not the flag.
+    from foldsim.gui.panels.dialogs import ClipDialog
+
+    assert window.record(tmp_path / "odd.mp4", terms=ClipDialog.TERMS, size=(127, 96)) is None
+    assert window.error_box.text().startswith("foldsim: Width and height 127x96: ")
+    assert "--" not in window.error_box.text()
+
+
+# ------------------------------------------------------------------- 7. layout
+
+
+def test_at_1280_by_800_every_column_is_readable_and_resizable(window):
+    window.open_path(TRAY)
+    assert (window.width(), window.height()) == (1280, 800)
+    for table in (window.hinge_table, window.gap_table):
+        header = table.horizontalHeader()
+        metrics = header.fontMetrics()
+        model = table.model()
+        for c in range(model.columnCount()):
+            text = model.headerData(c, QtCore.Qt.Orientation.Horizontal)
+            assert header.sectionSize(c) >= metrics.horizontalAdvance(text)
+            assert header.sectionResizeMode(c) in (QtWidgets.QHeaderView.ResizeMode.Interactive,
+                                                   QtWidgets.QHeaderView.ResizeMode.Stretch)
+        # What a narrow column cuts off is in the cell's tooltip.
+        assert model.data(model.index(0, model.columnCount() - 1), QtCore.Qt.ItemDataRole.ToolTipRole)
+
+
+def test_the_side_tables_share_height_and_the_plot_keeps_room(window, qtbot):
+    from foldsim.gui.window.app import GAP_PLOT_MIN
+
+    window.open_path(TRAY)
+    qtbot.wait(50)
+
+    def empty_rows(table):
+        rows = table.model().rowCount() * table.verticalHeader().defaultSectionSize()
+        return (table.viewport().height() - rows) / table.verticalHeader().defaultSectionSize()
+
+    def scrolls(table):
+        return table.verticalScrollBar().maximum() > 0
+
+    for table, other in ((window.hinge_table, window.gap_table), (window.gap_table, window.hinge_table)):
+        assert not (empty_rows(table) > 1.5 and scrolls(other))
+    window.stackup_dock.show()
+    qtbot.wait(100)
+    assert window.gap_plot.height() >= GAP_PLOT_MIN
+    for table, other in ((window.hinge_table, window.gap_table), (window.gap_table, window.hinge_table)):
+        assert not (empty_rows(table) > 1.5 and scrolls(other))
+
+
+def test_progress_text_fits(window):
+    bar = window.drive.progress
+    needed = bar.fontMetrics().horizontalAdvance("checking collisions 100%")
+    assert bar.minimumWidth() >= needed
+    bar = window.stackup_panel.progress
+    assert bar.minimumWidth() >= bar.fontMetrics().horizontalAdvance("sampling builds 100%")
+
+
+def menu_texts(window):
+    out = []
+    for menu in window.menuBar().findChildren(QtWidgets.QMenu):
+        out.extend(a.text().replace("&", "") for a in menu.actions() if a.text())
+    return out
+
+
+def test_help_menu_has_about_with_version_and_licence_and_the_guide(window, monkeypatch):
+    from PySide6 import QtGui
+
+    import foldsim
+    from foldsim.gui.window.app import DOCS
+
+    texts = menu_texts(window)
+    assert "About foldsim" in texts and "Guide to the app" in texts
+    about = window.about()
+    assert foldsim.__version__ in about.text() and "MIT" in about.text()
+    about.close()
+    opened = []
+    monkeypatch.setattr(QtGui.QDesktopServices, "openUrl", lambda url: opened.append(url.toLocalFile()))
+    window.open_docs()
+    assert opened == [str(DOCS)] and DOCS.is_file()
+
+
+def test_clear_recent_forgets_the_list(window, tmp_path):
+    window.open_path(DEMO)
+    assert window.recent_files()
+    clear = next(a for a in window.recent_menu.actions() if a.text() == "Clear recent")
+    clear.trigger()
+    assert window.recent_files() == []
+    assert [a.text() for a in window.recent_menu.actions() if a.text()] == ["Clear recent"]
+
+
+def test_labels_are_in_sentence_case_and_no_view_claims_a_projection_it_lacks(window):
+    texts = menu_texts(window) + [window.stackup_dock.windowTitle()]
+    assert "Play and backlash" in texts and "Play and Backlash" not in texts
+    keep = {"PNG", "MP4", "GIF", "Space"}
+    for text in texts:
+        words = text.replace("…", "").split()
+        assert all(not w[:1].isupper() or w in keep for w in words[1:]), text
+    # The view is drawn in perspective (a field of view), so no name says otherwise.
+    assert window.view.opts["fov"] > 0
+    for text in texts:
+        assert not any(w in text.lower() for w in ("iso view", "isometric", "orthographic", "parallel"))
+
+
+# ------------------------------------------------------------ 8. command line
+
+
+def test_old_spellings_still_work_with_a_note(tmp_path, capsys):
+    new = tmp_path / "new.csv"
+    old = tmp_path / "old.csv"
+    assert cli.main(["export", str(DEMO), "-o", str(new), "--from", "0.2", "--to", "0.6"]) == 0
+    assert capsys.readouterr().err == ""
+    assert cli.main(["export", str(DEMO), "--to", str(old), "--from", "0.2", "--to-t", "0.6"]) == 0
+    err = capsys.readouterr().err.splitlines()
+    assert len(err) == 2 and all(line.startswith("foldsim: note: ") and "deprecated" in line for line in err)
+    assert "-o/--output FILE" in err[0] and "--to T" in err[1]
+    assert new.read_text() == old.read_text()
+    assert cli.main(["nets", "cube", "--out", str(tmp_path / "a")]) == 0
+    assert "use -o/--output DIR" in capsys.readouterr().err
+    assert cli.main(["nets", "cube", "-o", str(tmp_path / "b")]) == 0
+    assert capsys.readouterr().err == ""
+    assert (tmp_path / "a" / "net-1.mech.json").read_text() == (tmp_path / "b" / "net-1.mech.json").read_text()
+    # Refused input keeps its one line alone, old spelling or not.
+    assert cli.main(["export", str(DEMO), "--to", str(tmp_path / "x.dwg")]) == 2
+    assert capsys.readouterr().err.count("\n") == 1
+    assert cli.main(["export", str(DEMO)]) == 2
+    assert "-o/--output" in capsys.readouterr().err
+
+
+def test_new_summarises_a_large_model_and_lists_with_verbose(tmp_path, capsys):
+    from foldsim.commands.new import LIST_UP_TO
+
+    assert cli.main(["new", "geodesic:2", "-o", str(tmp_path / "g.mech.json")]) == 0
+    short = capsys.readouterr().out.splitlines()
+    assert cli.main(["new", "geodesic:2", "-o", str(tmp_path / "g.mech.json"), "--verbose"]) == 0
+    full = capsys.readouterr().out.splitlines()
+    # geodesic:2 has 320 faces (20 * 4**2), so a spanning tree of 319 hinges and 318 gear pairs on it.
+    pairs = [line for line in full if "->" in line and "bevel" in line]
+    assert len(pairs) == 318 > LIST_UP_TO
+    assert len(short) < 12 and any("318 gear pairs (list them with --verbose)" in line for line in short)
+    # A small model still lists its pairs without --verbose.
+    assert cli.main(["new", "cube", "-o", str(tmp_path / "c.mech.json")]) == 0
+    assert sum("->" in line for line in capsys.readouterr().out.splitlines()) > 1

@@ -372,7 +372,8 @@ class _TableModel(QtCore.QAbstractTableModel):
     def data(self, index, role=QtCore.Qt.ItemDataRole.DisplayRole):
         if not index.isValid():
             return None
-        if role == QtCore.Qt.ItemDataRole.DisplayRole:
+        if role in (QtCore.Qt.ItemDataRole.DisplayRole, QtCore.Qt.ItemDataRole.ToolTipRole):
+            # The tooltip shows what a narrow column cuts off.
             return self.text(index.row(), index.column())
         if role == QtCore.Qt.ItemDataRole.TextAlignmentRole:
             return int(QtCore.Qt.AlignmentFlag.AlignRight | QtCore.Qt.AlignmentFlag.AlignVCenter)
