@@ -61,8 +61,10 @@ def anchor_points(mech, poses, centres=None):
     Returns
     -------
     dict
-        Kind -> (n, 3) float: face centres (F), hinge-line midpoints (H), and
-        cut-edge midpoints (E, halfway between the edge's two copies).
+        Kind -> (points (n, 3) float, numbers (n,) int): face centres (F),
+        hinge-line midpoints (H), and the midpoints of both copies of every cut
+        edge (2E: each copy is numbered where it lies on its panel; where the
+        two meet, one tag covers the other and only one is drawn).
     """
     centres = face_centres(mech) if centres is None else centres
     faces = transform_points(poses[:, None], centres[:, None])[:, 0]
@@ -74,10 +76,11 @@ def anchor_points(mech, poses, centres=None):
     if len(mech.cut_faces):
         a = transform_points(poses[mech.cut_faces[:, 0]][:, None], mech.cut_points[:, 0]).mean(axis=1)
         b = transform_points(poses[mech.cut_faces[:, 1]][:, None], mech.cut_points[:, 1]).mean(axis=1)
-        edges = (a + b) / 2.0
+        edges = np.stack([a, b], axis=1).reshape(-1, 3)
     else:
         edges = np.zeros((0, 3))
-    return {"face": faces, "hinge": hinges, "edge": edges}
+    return {"face": (faces, np.arange(len(faces))), "hinge": (hinges, np.arange(len(hinges))),
+            "edge": (edges, np.arange(len(edges)) // 2)}
 
 
 def _style(kind):
@@ -148,11 +151,11 @@ def draw_numbers(painter, view, anchors, width, height, scale, placed):
     drawn = set()
     frame = QtCore.QRectF(0, 0, width, height)
     for kind in KINDS:
-        points = anchors.get(kind)
-        if points is None or not len(points):
+        points, numbers = anchors.get(kind, (np.zeros((0, 3)), np.zeros(0, int)))
+        if not len(points):
             continue
         where = view.model_to_pixels(points, width, height)
-        for index, (x, y) in enumerate(where):
+        for index, (x, y) in zip(numbers.tolist(), where):
             if not (np.isfinite(x) and np.isfinite(y)):
                 continue
             text = number_text(kind, index)
