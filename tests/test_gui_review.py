@@ -761,3 +761,36 @@ def test_new_summarises_a_large_model_and_lists_with_verbose(tmp_path, capsys):
     # A small model still lists its pairs without --verbose.
     assert cli.main(["new", "cube", "-o", str(tmp_path / "c.mech.json")]) == 0
     assert sum("->" in line for line in capsys.readouterr().out.splitlines()) > 1
+
+
+def test_record_fit_pose_fills_the_frame_more_than_the_whole_motion(tmp_path, capsys):
+    from PySide6 import QtGui
+
+    from foldsim.gui.view.viewport import image_array
+
+    def drawn_width(fit):
+        target = tmp_path / f"{fit}.png"
+        assert cli.main(["record", str(TRAY), "-o", str(target), "--to", "1", "--size", "320x240",
+                         "--fit", fit, "--no-overlay"]) == 0
+        img = image_array(QtGui.QImage(str(target)))
+        cols = np.flatnonzero((np.abs(img[..., :3].astype(int) - palette.BACKGROUND).max(axis=-1) > 20).any(axis=0))
+        return cols.max() - cols.min()
+
+    assert drawn_width("pose") > drawn_width("motion") + 20
+    assert drawn_width("clip") == drawn_width("pose")  # a still's clip is its one pose
+
+
+def test_new_from_shape_refusals_name_the_dialog_field(window, qtbot, tmp_path, capsys):
+    window.open_path(DEMO)
+    # The command line words it with its flag ...
+    assert cli.main(["new", "cube", "-o", str(tmp_path / "x.mech.json"), "--teeth", "5"]) == 2
+    line = capsys.readouterr().err.strip()
+    assert line.startswith("foldsim: --teeth: ")
+    box = window.shape_dialog()
+    box.solid.setCurrentText("cube")
+    box.teeth.setText("5")
+    box.accept()
+    qtbot.waitUntil(lambda: not window.loading(), timeout=30000)
+    # ... the dialog with its field.
+    assert window.error_box.text() == line.replace("--teeth", "Teeth")
+    assert window.model.path == DEMO

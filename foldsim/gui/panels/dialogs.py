@@ -345,6 +345,9 @@ class ShapeDialog(_FormDialog):
     `recipe` gives the options of `foldsim new` (`foldsim.design.build`).
     """
 
+    TERMS = {"--size": "Size", "--units": "Units", "--net": "Net", "--root": "Fixed face",
+             "--cut": "Face pairs to cut", "--gears": "Gears", "--teeth": "Teeth"}
+
     def __init__(self, folder="", parent=None):
         super().__init__("New from shape", parent)
         self.folder = str(folder)

@@ -14,7 +14,7 @@ from PySide6 import QtCore, QtWidgets
 
 from ...errors import FoldsimError
 from ...io.mechanism_json import save
-from ..panels.dialogs import ShapeDialog, busy_dialog
+from ..panels.dialogs import ShapeDialog, busy_dialog, in_dialog_terms
 from .model import Model, error_line
 from .sweep import CallTask
 
@@ -124,9 +124,10 @@ class FileHandling:
         except FoldsimError as exc:
             self.show_error(error_line(exc))
             return
-        self.open_shape(recipe, remember=Path(recipe.shape) if box.use_mesh.isChecked() else None)
+        self.open_shape(recipe, remember=Path(recipe.shape) if box.use_mesh.isChecked() else None,
+                        terms=box.TERMS)
 
-    def open_shape(self, recipe, keep_view=False, remember=None, built=None):
+    def open_shape(self, recipe, keep_view=False, remember=None, built=None, terms=None):
         """Make a model from a shape as `foldsim new` does (in the background) and show it.
 
         Parameters
@@ -138,6 +139,9 @@ class FileHandling:
             A mesh file to add to the recent files.
         built : Mechanism, optional
             Already made from the recipe: shown at once.
+        terms : dict, optional
+            Flags of `foldsim new` and the dialog fields that set them, to word a
+            refusal in the dialog's terms (`panels.dialogs.in_dialog_terms`).
         """
         if built is not None:
             self._show_model(Model.from_shape(recipe, built), keep_view)
@@ -146,19 +150,20 @@ class FileHandling:
             return True
         name = Path(recipe.shape).name
         return self._load_in_background(lambda: Model.from_shape(recipe), f"Unfolding and gearing {name}…",
-                                        keep_view, remember)
+                                        keep_view, remember, terms)
 
     def loading(self):
         """Whether a model is being read or made in the background."""
         return self.load_task is not None
 
-    def _load_in_background(self, make, text, keep_view, remember):
+    def _load_in_background(self, make, text, keep_view, remember, terms=None):
         self.cancel_load()
         task = CallTask(lambda task: make())
         dialog = busy_dialog(self, text)
         dialog.canceled.connect(lambda task=task: self.cancel_load(task))
         task.signals.finished.connect(lambda model, task=task: self._loaded(task, model, keep_view, remember))
-        task.signals.failed.connect(lambda message, task=task: self._load_failed(task, message))
+        task.signals.failed.connect(lambda message, task=task: self._load_failed(
+            task, in_dialog_terms(message, terms) if terms else message))
         task.signals.cancelled.connect(lambda task=task: self._load_ended(task))
         self.load_task, self.load_dialog = task, dialog
         self.tool_pool.start(task)
