@@ -16,7 +16,7 @@ from PySide6 import QtCore, QtGui, QtWidgets
 from ...analysis.collision import triangle_pairs
 from ...gearing import fold_angles
 from ...geometry import transform_points
-from ...picking import intersection_segments, pick_face
+from ...picking import intersection_segments, ray_triangle_distances
 from ...stackup import perturbed_poses
 from . import palette
 from .camera import _matrix, stage_transform
@@ -152,17 +152,35 @@ class Overlays:
         """Which model-frame points (n, 3) a panel hides from the camera (n,) bool.
 
         A label whose line is hidden behind a panel is not drawn over that panel.
+        The panels' triangles are posed once for all the points.
         """
-        eye = self._eye()
-        slack = 1e-2 * self.mech.size
+        points = np.asarray(points, dtype=float).reshape(-1, 3)
         out = np.zeros(len(points), bool)
-        for k, p in enumerate(np.asarray(points, dtype=float)):
+        if not len(points):
+            return out
+        eye = self._eye()
+        pan = self.pan
+        if getattr(self, "_tri_bounds_of", None) is not pan:
+            # Each triangle's bounding sphere in its face's frame (rigid poses keep it).
+            self._tri_centres = pan.tri_points.mean(axis=1)
+            self._tri_radii = np.linalg.norm(pan.tri_points - self._tri_centres[:, None], axis=-1).max(axis=1)
+            self._tri_bounds_of = pan
+        centres = transform_points(self.poses[pan.tri_face], self._tri_centres)
+        slack = 1e-2 * self.mech.size
+        for k, p in enumerate(points):
             ray = p - eye
             reach = np.linalg.norm(ray)
             if reach <= 0:
                 continue
-            _, distance = pick_face(self.mech, self.poses, eye, ray / reach, pan=self.pan)
-            out[k] = distance < reach - slack
+            unit_ray = ray / reach
+            # Only triangles whose sphere the ray passes through can hide the point.
+            off = centres - eye
+            near = np.linalg.norm(np.cross(off, unit_ray), axis=1) <= self._tri_radii
+            if not near.any():
+                continue
+            which = np.flatnonzero(near)
+            posed = transform_points(self.poses[pan.tri_face[which]][:, None], pan.tri_points[which])
+            out[k] = ray_triangle_distances(eye, unit_ray, posed).min() < reach - slack
         return out
 
     def _update_gaps(self):
