@@ -10,9 +10,10 @@ place. The collision sweep over the whole range, large models, new models,
 exports and the stack-up run in worker threads (`sweep`); clips are drawn by
 `recorder` with a progress dialog.
 
-This module assembles the window (layout, menus, drive, selection, status); its
-file commands live in `files`, its background work in `jobs` and what it holds
-about one mechanism in `model`.
+This module assembles the window (layout, menus, drive, selection); its file
+commands live in `files`, its background work in `jobs`, its status words and
+side-column heights in `status`, its Help menu in `help` and what it holds about
+one mechanism in `model`.
 
 ``FOLDSIM_QUIT_AFTER_MS`` in the environment makes `run` quit after that many
 milliseconds (for smoke tests and unattended screenshots).
@@ -25,36 +26,28 @@ from pathlib import Path
 import numpy as np
 from PySide6 import QtCore, QtGui, QtWidgets
 
-from ... import __version__
 from ...design import is_mesh, shape_args
 from ...errors import FoldsimError
 from ...gearing import fold_angles
 from ..panels.side import DriveBar, GapModel, GapPlot, HingeModel, make_table
 from ..panels.stackup import StackupPanel
-from ..record.caption import t_text
 from ..view.numbers import NUMBERS_UP_TO
 from ..view.viewport import FoldView, default_face_colors
 from .files import MAX_RECENT, FileHandling
+from .help import DOCS, LICENCE, HelpMenu
 from .jobs import Jobs
 from .model import GAP_GRID, Model, error_line, file_stem, label_colors, label_order, part_labels
+from .status import GAP_PLOT_MIN, StatusBar
 
-__all__ = ["BACKGROUND_BYTES", "DEMO", "GAP_GRID", "MAX_RECENT", "MainWindow", "Model", "error_line",
+__all__ = ["BACKGROUND_BYTES", "DEMO", "DOCS", "GAP_GRID", "GAP_PLOT_MIN", "LICENCE", "VIEW_NAMES", "MAX_RECENT", "MainWindow", "Model", "error_line",
            "file_stem", "label_colors", "part_labels", "run"]
 
 DEMO = Path(__file__).resolve().parents[3] / "assets" / "gift-box.mech.json"
 """The model the app opens when started without a file."""
 
-DOCS = Path(__file__).resolve().parents[3] / "docs" / "app.md"
-"""The bundled guide to the app (Help ▸ Guide to the app)."""
-
-LICENCE = "MIT (see the LICENSE file)"
-
 VIEW_NAMES = {"front": "Front view", "top": "Top view", "side": "Side view", "iso": "Three-quarter view"}
 """View menu names of the standard directions; the view is in perspective, so the
 corner view is not called isometric."""
-
-GAP_PLOT_MIN = 150
-"""The gap plot is never squeezed below this height (pixels), panel open or not."""
 
 STEP, BIG_STEP = 0.01, 0.1
 """Drive steps of the arrow keys, without and with Shift."""
@@ -63,19 +56,7 @@ BACKGROUND_BYTES = 64_000
 """Model files larger than this are read in a worker thread (about 450 panels and up)."""
 
 
-def t_word(t):
-    """A drive value as the status bar writes a range's end, with a true minus sign.
-
-    Examples
-    --------
-    >>> t_word(-1.0), t_word(0.25), t_word(1)
-    ('−1', '0.25', '1')
-    """
-    text = f"{float(t):.3g}"
-    return text.replace("-", "−")
-
-
-class MainWindow(FileHandling, Jobs, QtWidgets.QMainWindow):
+class MainWindow(FileHandling, Jobs, StatusBar, HelpMenu, QtWidgets.QMainWindow):
     """The app's window; `open_path` loads a model into it."""
 
     def __init__(self, settings=None):
@@ -184,34 +165,6 @@ class MainWindow(FileHandling, Jobs, QtWidgets.QMainWindow):
             self.resizeDocks([self.stackup_dock], [max(260, self.height() // 3)], QtCore.Qt.Orientation.Vertical)
         QtCore.QTimer.singleShot(0, self.share_side_height)
 
-    def share_side_height(self):
-        """Give the hinge and cut-edge tables the height their rows need, the gap plot the rest.
-
-        When both cannot show every row, they share the height in proportion to
-        their rows, so neither holds empty space while the other scrolls; the gap
-        plot keeps at least a third of the column.
-        """
-        if self.model is None:
-            return
-        sizes = self.side.sizes()
-        total = sum(sizes)
-        if total <= 0:
-            return
-        needs = []
-        for k, table in enumerate((self.hinge_table, self.gap_table)):
-            box = self.side.widget(k)
-            overhead = max(box.height() - table.viewport().height(), 0)
-            rows = max(table.model().rowCount(), 1)
-            needs.append(overhead + rows * table.verticalHeader().defaultSectionSize() + 2)
-        room = total - max(GAP_PLOT_MIN, total // 3)
-        if sum(needs) <= room:
-            hinges, edges = needs
-        else:
-            least = min(room // 4, min(needs))
-            hinges = int(min(needs[0], max(least, room * needs[0] / sum(needs))))
-            edges = int(min(needs[1], room - hinges))
-        self.side.setSizes([hinges, edges, total - hinges - edges])
-
     # ------------------------------------------------------------------ menus
 
     def _action(self, menu, text, slot, shortcut=None, tip=None):
@@ -300,29 +253,6 @@ class MainWindow(FileHandling, Jobs, QtWidgets.QMainWindow):
                      "The bundled guide (docs/app.md) in your browser or viewer")
         self._action(help_, "&About foldsim", self.about)
         self._refresh_recent()
-
-    def open_docs(self):
-        """Help ▸ Guide to the app: the bundled docs/app.md in the desktop's viewer."""
-        if DOCS.is_file():
-            QtGui.QDesktopServices.openUrl(QtCore.QUrl.fromLocalFile(str(DOCS)))
-        else:
-            self.show_error(f"foldsim: {DOCS}: the guide is not installed here")
-
-    def about_text(self):
-        """What Help ▸ About says: version, licence, where the guide is."""
-        return (f"<b>foldsim {__version__}</b><br>Kinematics and checks for gear-coupled rigid folding "
-                f"mechanisms.<br><br>Licence: {LICENCE}.<br>Guide: <a href=\"{DOCS.as_uri()}\">{DOCS}</a>"
-                "<br><br>Moving panels can pinch fingers; printed parts' strength varies by process and "
-                "material: defer to the manufacturer's data.")
-
-    def about(self):
-        """Help ▸ About foldsim."""
-        box = QtWidgets.QMessageBox(QtWidgets.QMessageBox.Icon.Information, "About foldsim", self.about_text(),
-                                    QtWidgets.QMessageBox.StandardButton.Ok, self)
-        box.setTextFormat(QtCore.Qt.TextFormat.RichText)
-        box.open()
-        self.dialog = box
-        return box
 
     # ------------------------------------------------------------------ files
 
@@ -480,51 +410,6 @@ class MainWindow(FileHandling, Jobs, QtWidgets.QMainWindow):
         self.gap_model.set_now(self.view.gaps)
         self.gap_plot.set_t(t)
         self._update_status()
-
-    def _update_status(self):
-        if self.model is None:
-            return
-        mech, view = self.model.mech, self.view
-        parts = [f"{mech.n_faces} panels, {mech.n_hinges} hinges", t_text(view.t)]
-        n = len(view.colliding)
-        parts.append(f"{n} colliding pair{'s' if n != 1 else ''}" if n else "no collision here")
-        open_ = view.open_edges()
-        if len(open_):
-            parts.append(f"widest gap {view.gaps[open_].max():.3g} {mech.units}")
-        else:
-            parts.append("every cut edge meets")
-        parts.append(self.sweep_text())
-        self.status.setText("   ·   ".join(p for p in parts if p))
-        self.picked_label.setText(self.picked_text())
-
-    def sweep_text(self):
-        """What the collision check over −1..1 has found: so far while it runs, or up to where it stopped."""
-        lo, hi = self.swept
-        n = len(self.intervals or [])
-        found = f"{n} collision stretch{'es' if n != 1 else ''}" if n else "no collision"
-        if hi <= lo:
-            return "checking for collisions…" if self.sweep is not None else ""
-        span = f"{t_word(lo)}..{t_word(hi)}"
-        if self.sweep is not None:
-            return f"checking: {found} over {span} so far"
-        if self.swept_whole:
-            return f"{found} over {span}"
-        return f"{found} over {span} (check stopped)"
-
-    def picked_text(self):
-        """The status bar's words for the picked panel: face, parent hinge, part type ("" for none)."""
-        f = self.picked_face
-        if self.model is None or f < 0:
-            return ""
-        mech = self.model.mech
-        if f == mech.root:
-            words = f"face {f}: the fixed face"
-        else:
-            h = int(mech.face_hinge[f])
-            words = f"face {f}: hinge {h} from face {int(mech.parent[h])}"
-        if self.model.labels is not None:
-            words += f", part {self.model.labels[f]}"
-        return words
 
     # -------------------------------------------------------------- selection
 
