@@ -794,3 +794,36 @@ def test_new_from_shape_refusals_name_the_dialog_field(window, qtbot, tmp_path, 
     # ... the dialog with its field.
     assert window.error_box.text() == line.replace("--teeth", "Teeth")
     assert window.model.path == DEMO
+
+
+def test_hidden_points_agree_with_the_core_picking_ray_by_ray(window):
+    from foldsim.gui.view.numbers import face_centres
+    from foldsim.picking import pick_face
+
+    window.open_path(DEMO)
+    window.drive.set_t(0.7)
+    view = window.view
+    rng = np.random.default_rng(7)
+    centres = anchor_points(view.mech, view.poses)["face"][0]
+    lo, hi = centres.min(axis=0), centres.max(axis=0)
+    points = np.vstack([centres, rng.uniform(lo, hi, size=(150, 3))])
+    eye = view._eye()
+    slack = 1e-2 * view.mech.size
+    expected = []
+    for p in points:
+        ray = p - eye
+        reach = np.linalg.norm(ray)
+        _, distance = pick_face(view.mech, view.poses, eye, ray / reach, pan=view.pan)
+        expected.append(distance < reach - slack)
+    assert view.hidden_points(points, chunk=16).tolist() == expected
+    assert 0 < sum(expected) < len(points) and len(face_centres(view.mech)) == view.mech.n_faces
+
+
+def test_a_closed_box_numbers_only_the_faces_in_sight(window):
+    window.open_path(DEMO)
+    window.drive.set_t(1.0)
+    view = window.view
+    faces = anchor_points(view.mech, view.poses)["face"][0]
+    hidden = view.hidden_points(faces)
+    # A closed box seen from outside a corner: three faces in sight, three behind them (by hand).
+    assert hidden.sum() == 3

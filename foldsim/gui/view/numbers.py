@@ -139,7 +139,8 @@ def draw_numbers(painter, view, anchors, width, height, scale, placed):
         Text size factor (1 on screen).
     placed : list of QRectF
         Boxes already drawn (gap labels); a number that would meet one, or an
-        earlier number, is left out. Grows with the boxes drawn here.
+        earlier number, is left out. Grows with the boxes drawn here. A number
+        whose point other panels hide (`FoldView.hidden_points`) is left out too.
 
     Returns
     -------
@@ -155,6 +156,7 @@ def draw_numbers(painter, view, anchors, width, height, scale, placed):
         if not len(points):
             continue
         where = view.model_to_pixels(points, width, height)
+        where[view.hidden_points(points)] = np.nan  # behind other panels: not drawn over them
         for index, (x, y) in zip(numbers.tolist(), where):
             if not (np.isfinite(x) and np.isfinite(y)):
                 continue

@@ -16,8 +16,9 @@ from PySide6 import QtCore, QtGui, QtWidgets
 from ...analysis.collision import triangle_pairs
 from ...gearing import fold_angles
 from ...geometry import transform_points
-from ...picking import intersection_segments, ray_triangle_distances
+from ...picking import intersection_segments
 from ...stackup import perturbed_poses
+from ...tolerances import DEFAULT
 from . import palette
 from .camera import _matrix, stage_transform
 from .legend import draw_legend, legend_entries
@@ -148,39 +149,42 @@ class Overlays:
         inverse = np.linalg.inv(stage_transform(self.mech))
         return (inverse @ np.array([eye.x(), eye.y(), eye.z(), 1.0]))[:3]
 
-    def hidden_points(self, points):
+    def hidden_points(self, points, chunk=64):
         """Which model-frame points (n, 3) a panel hides from the camera (n,) bool.
 
-        A label whose line is hidden behind a panel is not drawn over that panel.
-        The panels' triangles are posed once for all the points.
+        A label whose line is hidden behind a panel, or a number whose panel is
+        turned away behind others, is not drawn over the panel in front. Every
+        ray starts at the eye, so the Möller–Trumbore terms that depend only on
+        the triangles are shared by all rays (Möller and Trumbore, 1997); a point
+        on a panel's own surface is not hidden by that panel.
         """
         points = np.asarray(points, dtype=float).reshape(-1, 3)
         out = np.zeros(len(points), bool)
-        if not len(points):
+        if not len(points) or self.poses is None:
             return out
         eye = self._eye()
         pan = self.pan
-        if getattr(self, "_tri_bounds_of", None) is not pan:
-            # Each triangle's bounding sphere in its face's frame (rigid poses keep it).
-            self._tri_centres = pan.tri_points.mean(axis=1)
-            self._tri_radii = np.linalg.norm(pan.tri_points - self._tri_centres[:, None], axis=-1).max(axis=1)
-            self._tri_bounds_of = pan
-        centres = transform_points(self.poses[pan.tri_face], self._tri_centres)
+        tris = transform_points(self.poses[pan.tri_face][:, None], pan.tri_points)
+        e1, e2 = tris[:, 1] - tris[:, 0], tris[:, 2] - tris[:, 0]
+        s = eye - tris[:, 0]
+        q = np.cross(s, e1)
+        along = np.einsum("ij,ij->i", e2, q)
+        area2 = np.linalg.norm(np.cross(e1, e2), axis=1)
         slack = 1e-2 * self.mech.size
-        for k, p in enumerate(points):
-            ray = p - eye
-            reach = np.linalg.norm(ray)
-            if reach <= 0:
-                continue
-            unit_ray = ray / reach
-            # Only triangles whose sphere the ray passes through can hide the point.
-            off = centres - eye
-            near = np.linalg.norm(np.cross(off, unit_ray), axis=1) <= self._tri_radii
-            if not near.any():
-                continue
-            which = np.flatnonzero(near)
-            posed = transform_points(self.poses[pan.tri_face[which]][:, None], pan.tri_points[which])
-            out[k] = ray_triangle_distances(eye, unit_ray, posed).min() < reach - slack
+        for start in range(0, len(points), chunk):
+            rays = points[start:start + chunk] - eye
+            reach = np.linalg.norm(rays, axis=1)
+            units = rays / np.where(reach > 0, reach, 1.0)[:, None]
+            p = np.cross(units[:, None, :], e2[None, :, :])
+            det = np.einsum("kj,mkj->mk", e1, p)
+            usable = np.abs(det) > DEFAULT.coincident * area2[None, :]
+            inv = np.where(usable, 1.0 / np.where(usable, det, 1.0), 0.0)
+            u = np.einsum("kj,mkj->mk", s, p) * inv
+            v = (units @ q.T) * inv
+            dist = along[None, :] * inv
+            hit = usable & (u >= 0) & (v >= 0) & (u + v <= 1) & (dist >= 0)
+            nearest = np.where(hit, dist, np.inf).min(axis=1)
+            out[start:start + chunk] = (reach > 0) & (nearest < reach - slack)
         return out
 
     def _update_gaps(self):
