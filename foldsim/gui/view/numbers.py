@@ -151,21 +151,26 @@ def draw_numbers(painter, view, anchors, width, height, scale, placed):
     metrics = QtGui.QFontMetricsF(font)
     drawn = set()
     frame = QtCore.QRectF(0, 0, width, height)
+    kinds, numbers, points = [], [], []
     for kind in KINDS:
-        points, numbers = anchors.get(kind, (np.zeros((0, 3)), np.zeros(0, int)))
-        if not len(points):
+        at, index = anchors.get(kind, (np.zeros((0, 3)), np.zeros(0, int)))
+        kinds.extend([kind] * len(at))
+        numbers.append(np.asarray(index, dtype=np.int64))
+        points.append(np.asarray(at, dtype=float).reshape(-1, 3))
+    points = np.concatenate(points)
+    if not len(points):
+        return drawn
+    where = view.model_to_pixels(points, width, height)
+    where[view.hidden_points(points)] = np.nan  # behind other panels: not drawn over them
+    for kind, index, (x, y) in zip(kinds, np.concatenate(numbers).tolist(), where):
+        if not (np.isfinite(x) and np.isfinite(y)):
             continue
-        where = view.model_to_pixels(points, width, height)
-        where[view.hidden_points(points)] = np.nan  # behind other panels: not drawn over them
-        for index, (x, y) in zip(numbers.tolist(), where):
-            if not (np.isfinite(x) and np.isfinite(y)):
-                continue
-            text = number_text(kind, index)
-            box = tag_box(metrics, text, scale)
-            box.moveCenter(QtCore.QPointF(x, y))
-            if not frame.contains(box) or any(box.intersects(other) for other in placed):
-                continue
-            placed.append(box)
-            paint_tag(painter, box, text, kind, scale)
-            drawn.add(kind)
+        text = number_text(kind, index)
+        box = tag_box(metrics, text, scale)
+        box.moveCenter(QtCore.QPointF(x, y))
+        if not frame.contains(box) or any(box.intersects(other) for other in placed):
+            continue
+        placed.append(box)
+        paint_tag(painter, box, text, kind, scale)
+        drawn.add(kind)
     return drawn

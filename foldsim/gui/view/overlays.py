@@ -20,7 +20,7 @@ from ...picking import intersection_segments
 from ...stackup import perturbed_poses
 from ...tolerances import DEFAULT
 from . import palette
-from .camera import _matrix, stage_transform
+from .camera import _matrix
 from .legend import draw_legend, legend_entries
 from .numbers import anchor_points, draw_numbers
 from .panel_layer import _rgba
@@ -146,7 +146,7 @@ class Overlays:
     def _eye(self):
         """The camera's position (3,) in the model frame."""
         eye = self.cameraPosition()
-        inverse = np.linalg.inv(stage_transform(self.mech))
+        inverse = np.linalg.inv(self.stage())
         return (inverse @ np.array([eye.x(), eye.y(), eye.z(), 1.0]))[:3]
 
     def hidden_points(self, points, chunk=64):
