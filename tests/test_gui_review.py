@@ -827,3 +827,18 @@ def test_a_closed_box_numbers_only_the_faces_in_sight(window):
     hidden = view.hidden_points(faces)
     # A closed box seen from outside a corner: three faces in sight, three behind them (by hand).
     assert hidden.sum() == 3
+
+
+def test_many_part_types_are_summed_up_in_one_legend_line(window, qtbot):
+    from foldsim.gui.view.legend import MAX_TYPES, legend_entries
+
+    window.open_path(TRAY)
+    view = window.view
+    names = [f"t{k}" for k in range(20)]
+    view.set_part_types([(n, palette.PART_TYPES[k % len(palette.PART_TYPES)]) for k, n in enumerate(names)])
+    entries = legend_entries(view)
+    listed = [e for e in entries if e.key == "part-type"]
+    assert len(listed) == MAX_TYPES
+    assert entries[len(entries) - 1 - len(view.numbers_drawn)].text == f"+{20 - MAX_TYPES} more part types (colours repeat)"
+    short = legend_entries(view, max_rows=6)
+    assert len(short) <= 6 and short[-1 - len(view.numbers_drawn)].key == "more"

@@ -40,8 +40,11 @@ class Entry:
     shape: str
 
 
-def legend_entries(view):
-    """The legend's lines for what the view shows now (list of `Entry`)."""
+def legend_entries(view, max_rows=None):
+    """The legend's lines for what the view shows now (list of `Entry`).
+
+    With ``max_rows``, part types beyond what fits are summed up in one line.
+    """
     if view.mech is None:
         return []
     out = []
@@ -57,15 +60,19 @@ def legend_entries(view):
         out.append(Entry("selection", "selected " + " and ".join(what), palette.HIGHLIGHT, "line"))
     if view._envelope is not None and view._envelope.visible():
         out.append(Entry("envelope", "sampled builds (play and backlash)", view.envelope_color, "line"))
+    numbers = [Entry(kind, LEGEND_TEXT[kind], palette.LABEL_TEXT, "tag")
+               for kind in sorted(view.numbers_drawn, key=("face", "hinge", "edge").index)]
     types = view.part_types or []
-    for name, rgb in types[:MAX_TYPES]:
+    listed = MAX_TYPES if max_rows is None else max(1, min(MAX_TYPES, max_rows - len(out) - len(numbers) - 1))
+    if len(types) <= listed + (1 if len(types) == listed + 1 else 0):
+        listed = len(types)
+    for name, rgb in types[:listed]:
         out.append(Entry("part-type", f"part {name}", tuple(rgb), "panel"))
-    if len(types) > MAX_TYPES:
-        out.append(Entry("more", f"{len(types) - MAX_TYPES} more part types: colours repeat, "
-                                 "click a panel for its type", palette.OUTLINE, "none"))
-    for kind in sorted(view.numbers_drawn, key=("face", "hinge", "edge").index):
-        out.append(Entry(kind, LEGEND_TEXT[kind], palette.LABEL_TEXT, "tag"))
-    return out
+    if len(types) > listed:
+        rest = len(types) - listed
+        repeat = " (colours repeat)" if len(types) > MAX_TYPES else ""
+        out.append(Entry("more", f"+{rest} more part types{repeat}", palette.OUTLINE, "none"))
+    return out + numbers
 
 
 def draw_legend(painter, view, entries, width, height, scale=1.0):

@@ -70,7 +70,8 @@ class _LabelOverlay(QtWidgets.QWidget):
             return
         painter = QtGui.QPainter(self)
         view.numbers_drawn = view._draw_labels(painter, self.width(), self.height(), 1.0)
-        view.legend_shown = legend_entries(view) if view.show_legend else []
+        rows = max(4, int(0.35 * self.height() / max(self.fontMetrics().height() + 3, 1)))
+        view.legend_shown = legend_entries(view, rows) if view.show_legend else []
         view.legend_box = draw_legend(painter, view, view.legend_shown, self.width(), self.height())
         painter.end()
 

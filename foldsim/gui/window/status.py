@@ -74,9 +74,10 @@ class StatusBar:
     def share_side_height(self):
         """Give the hinge and cut-edge tables the height their rows need, the gap plot the rest.
 
-        When both cannot show every row, they share the height in proportion to
-        their rows, so neither holds empty space while the other scrolls; the gap
-        plot keeps at least a third of the column.
+        When both cannot show every row, a table that fits in half the room gets
+        what it needs and the other the rest, else they halve it: neither holds
+        empty space while the other scrolls. The gap plot keeps at least a third
+        of the column.
         """
         if self.model is None:
             return
@@ -94,7 +95,8 @@ class StatusBar:
         if sum(needs) <= room:
             hinges, edges = needs
         else:
-            least = min(room // 4, min(needs))
-            hinges = int(min(needs[0], max(least, room * needs[0] / sum(needs))))
+            # One table fits in half: it gets what it needs, the other the rest;
+            # else they halve the room and both scroll.
+            hinges = int(min(needs[0], max(room / 2, room - needs[1])))
             edges = int(min(needs[1], room - hinges))
         self.side.setSizes([hinges, edges, total - hinges - edges])
