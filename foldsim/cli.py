@@ -12,6 +12,7 @@ import sys
 
 from . import __version__
 from .commands import app, check, export, nets, new, record, stackup, study
+from .commands.options import print_notes
 from .errors import FoldsimError
 
 COMMANDS = (check, new, nets, stackup, study, export, record, app)
@@ -37,8 +38,11 @@ def main(argv=None):
             from .commands.app import launch
 
             return launch()
-        return args.run(args)
+        code = args.run(args)
+        print_notes()
+        return code
     except FoldsimError as exc:
+        print_notes(show=False)
         print(f"foldsim: {exc}", file=sys.stderr)
         return 2
     except KeyboardInterrupt:

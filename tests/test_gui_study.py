@@ -1,4 +1,4 @@
-"""File ▸ Open Study… in the desktop app: a sortable table of nets; a chosen net is drawn.
+"""File ▸ Open study… in the desktop app: a sortable table of nets; a chosen net is drawn.
 
 Under a real X server (pytest-xvfb) with Mesa's software GL; the check that the
 net is shown looks at pixels the view drew, as in tests/test_gui.py.

@@ -190,7 +190,8 @@ def test_export_refusal_is_the_cli_line_in_a_dialog_and_writes_nothing(demo, qtb
     views.kind.setCurrentIndex(views.kind.findData(".html"))
     views.views.setText("0, half")
     views.accept()
-    assert demo.error_box.text() == "foldsim: --views: must be comma-separated numbers, not '0, half'"
+    # The dialog names its own field, not the command line's flag (--views).
+    assert demo.error_box.text() == "foldsim: Pictures at t: must be comma-separated numbers, not '0, half'"
     assert demo.model.path == DEMO
 
 

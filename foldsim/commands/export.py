@@ -22,12 +22,15 @@ def register(sub):
                     "(animated hinges), .svg (flat pattern at true scale), .csv/.json (fold angles and "
                     "closure gaps), .html (design review report), .stl/.obj (posed mesh). See docs/export.md.")
     ex.add_argument("model", help="a .mech.json file")
-    ex.add_argument("--to", "-o", dest="output", required=True, metavar="FILE",
+    ex.add_argument("-o", "--output", dest="output", default=None, metavar="FILE",
                     help="output file; its suffix picks the format")
     ex.add_argument("--from", dest="t_from", type=float, default=0.0, metavar="T",
                     help="first drive value of the motion (default 0, flat)")
-    ex.add_argument("--to-t", dest="t_to", type=float, default=1.0, metavar="T",
-                    help="last drive value of the motion (default 1, closed)")
+    ex.add_argument("--to", dest="to", default=None, metavar="T",
+                    help="last drive value of the motion (default 1, closed). Deprecated: a file name "
+                         "here is taken as the output file, as before, with a note")
+    ex.add_argument("--to-t", dest="to_t", type=float, default=None, metavar="T",
+                    help=argparse.SUPPRESS)
     ex.add_argument("--frames", type=int, default=None, metavar="N",
                     help="drive values sampled: table rows (default 11), gap-plot samples (default 41), "
                          "least number of glTF keyframes (default: as few as exact interpolation needs)")
@@ -56,10 +59,42 @@ def register(sub):
     ex.set_defaults(run=run)
 
 
+def resolve(args):
+    """Settle the output file and the last drive value from the new and the old spellings.
+
+    ``-o/--output FILE`` and ``--to T`` are the spellings of every subcommand;
+    ``--to FILE`` (the output) and ``--to-t T`` are the old ones, kept for one
+    release with a note on stderr.
+    """
+    from ..errors import FoldsimError
+    from .options import deprecated, is_number
+
+    t_to = None
+    if args.to is not None:
+        if is_number(args.to):
+            t_to = float(args.to)
+        elif args.output is None:
+            deprecated("export --to FILE", "-o/--output FILE", "--to takes the last drive value, as in check "
+                                                                "and record")
+            args.output = args.to
+        else:
+            raise FoldsimError(f"--to: must be a drive value, not {args.to!r} (the output file is -o/--output)")
+    if args.to_t is not None:
+        deprecated("export --to-t T", "--to T")
+        if t_to is not None and t_to != args.to_t:
+            raise FoldsimError("--to-t: the same as --to T; give one of them")
+        t_to = args.to_t
+    if args.output is None:
+        raise FoldsimError("export: name the output file with -o/--output FILE")
+    args.t_to = 1.0 if t_to is None else t_to
+    return args
+
+
 def run(args):
     from ..export import export, format_of
     from ..io.mechanism_json import load
 
+    resolve(args)
     format_of(args.output)  # refuse an unknown suffix before any work
     mech = load(args.model)
     what = export(mech, args.output, t_from=args.t_from, t_to=args.t_to, frames=args.frames,

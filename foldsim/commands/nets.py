@@ -1,5 +1,6 @@
 """`foldsim nets`: how many nets a solid has, how long their hinge chains are, the best few."""
 
+import argparse
 import json
 import sys
 from dataclasses import replace
@@ -25,9 +26,10 @@ def register(sub):
     nets.add_argument("--best", type=int, default=None, metavar="K",
                       help="show the K distinct nets with the shortest longest hinge chain, ties going to "
                            "the fewest part types")
-    nets.add_argument("--out", default=None, metavar="DIR",
+    nets.add_argument("-o", "--output", dest="out", default=None, metavar="DIR",
                       help="write the best nets as DIR/net-1.mech.json, ... (closed state, no couplings; "
                            "one net unless --best says how many)")
+    nets.add_argument("--out", dest="old_out", default=None, metavar="DIR", help=argparse.SUPPRESS)
     nets.add_argument("--limit", type=int, default=DEFAULT_LIMIT, metavar="N",
                       help="list the distinct nets only if the solid has at most N spanning trees "
                            f"(default {DEFAULT_LIMIT:,}; the counts are exact either way)")
@@ -312,6 +314,13 @@ def _format(report):
 def run(args):
     from ..netcount import nets_up_to_symmetry
     from ..nets import face_graph, min_diameter_net
+    from .options import deprecated
+
+    if args.old_out is not None:
+        deprecated("nets --out DIR", "-o/--output DIR")
+        if args.out is not None and args.out != args.old_out:
+            raise FoldsimError("--out: the same as -o/--output DIR; give one of them")
+        args.out = args.old_out
 
     if args.limit < 0:
         raise FoldsimError(f"--limit: must be a non-negative number of trees, not {args.limit}")

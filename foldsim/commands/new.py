@@ -8,6 +8,10 @@ from ..design import GEARS, NETS, build
 from ..errors import ModelError
 
 
+LIST_UP_TO = 24
+"""Gear pairs listed one per line without --verbose; more get a summary."""
+
+
 def register(sub):
     """Add the `new` subcommand to an argparse subparsers object."""
     new = sub.add_parser(
@@ -36,10 +40,25 @@ def register(sub):
                      help="panels not in contact by design collide when nearer than this over the motion "
                           "(default 0), as for `foldsim check`")
     new.add_argument("--json", action="store_true", help="print the report as one JSON document")
+    new.add_argument("-v", "--verbose", action="store_true",
+                     help=f"list every gear pair (models with more than {LIST_UP_TO} pairs get a summary)")
     new.set_defaults(run=run)
 
 
-def _format(report):
+def _pair_summary(report, units):
+    """The lines that stand for the gear-pair table of a large model."""
+    pairs = report["couplings"]
+    errors = [abs(r["ratio_error"]) for r in pairs if r["ratio_error"] is not None]
+    gaps = [r["closure_gap"] for r in pairs if r["closure_gap"] is not None]
+    line = f" {len(pairs)} gear pairs (list them with --verbose)"
+    if errors:
+        line += f"; largest ratio error {max(errors):.2e}"
+    if gaps:
+        line += f", largest closure gap from teeth {max(gaps):.3g} {units}"
+    return [line]
+
+
+def _format(report, verbose=False):
     units = report["units"]
     net = report["net"]
     lines = [(f"{report['model'] or 'mechanism'}: {report['faces']} faces, {report['hinges']} hinges, "
@@ -57,8 +76,12 @@ def _format(report):
                      f"{report['longest_gear_chain']} from the drive, degrees of freedom {report['dof']}")
         if report["unreachable_hinges"]:
             lines.append(f"no gear chain from the drive reaches hinges {report['unreachable_hinges']}")
-        lines.append(" hinges   face  type          ratio      teeth    error      gap        geometry")
-        for r in report["couplings"]:
+        listed = verbose or len(report["couplings"]) <= LIST_UP_TO
+        if listed:
+            lines.append(" hinges   face  type          ratio      teeth    error      gap        geometry")
+        else:
+            lines.extend(_pair_summary(report, units))
+        for r in (report["couplings"] if listed else []):
             teeth = f"{r['teeth'][0]}:{r['teeth'][1]}" if r["teeth"] else "-"
             error = f"{r['ratio_error']:+.2e}" if r["ratio_error"] is not None else "-"
             gap = f"{r['closure_gap']:.3g}" if r["closure_gap"] is not None else "-"
@@ -108,5 +131,5 @@ def run(args):
         save(mech, args.output)
     except OSError as exc:
         raise ModelError(f"{args.output}: cannot write file: {exc.strerror or exc}") from None
-    print(json.dumps(report, indent=2) if args.json else _format(report))
+    print(json.dumps(report, indent=2) if args.json else _format(report, args.verbose))
     return 0 if report["dof"] == 1 and report["collision_free"] else 1

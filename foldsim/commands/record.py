@@ -8,6 +8,9 @@ Only then is an X display made sure of (a virtual one when there is none, see
 
 from ..errors import FoldsimError
 
+FITS = {"clip": True, "pose": "pose", "motion": "motion"}
+"""``--fit`` choices and the recorder's ``fit`` for each (`foldsim.gui.record.framing.fit_values`)."""
+
 WIDGET_HEIGHT = 480
 """Height of the hidden 3D view the frames are drawn from; lines and labels scale
 with the frame's height over this, so a 720p frame looks like a 1.5x screen."""
@@ -61,6 +64,10 @@ def register(sub):
                              "(default 40 degrees when given without a number)")
     parser.add_argument("--view", choices=("iso", "front", "top", "side"), default="iso",
                         help="camera direction (default iso)")
+    parser.add_argument("--fit", choices=("clip", "pose", "motion"), default="clip",
+                        help="framing: every shape of the clip (default), the pose of the last frame (a "
+                             "closed model fills the frame; a .png's only pose), or the whole motion from "
+                             "flat to closed")
     parser.add_argument("--no-overlay", dest="overlay", action="store_false",
                         help="leave out the caption (name, t, collision state)")
     parser.set_defaults(run=run)
@@ -80,12 +87,12 @@ def run(args):
     check_target(args.output)
     mech = load(args.model)
     info = record(mech, args.output, fmt=fmt, t_from=t_from, t_to=t_to, seconds=seconds, fps=fps, size=size,
-                  orbit=orbit, overlay=args.overlay, view=args.view)
+                  orbit=orbit, overlay=args.overlay, view=args.view, fit=FITS[args.fit])
     print(info.summary())
     return 0
 
 
-def record(mech, output, fmt, size, view="iso", t_to=1.0, **options):
+def record(mech, output, fmt, size, view="iso", t_to=1.0, fit=True, **options):
     """Draw a mechanism in a hidden 3D view and record it (see `foldsim.gui.record.recorder`).
 
     Parameters
@@ -97,6 +104,8 @@ def record(mech, output, fmt, size, view="iso", t_to=1.0, **options):
     view : str
         Standard camera direction (`foldsim.gui.view.viewport.VIEWS`).
     t_to : float
+    fit : True, "pose" or "motion"
+        Framing (`foldsim.gui.record.recorder.record_clip`).
     **options
         The rest of `record_clip`'s options.
 
@@ -130,8 +139,8 @@ def record(mech, output, fmt, size, view="iso", t_to=1.0, **options):
         widget.set_t(t_to)
         widget.set_view(view)
         if fmt == "png":
-            return recorder.save_screenshot(widget, output, size, t=t_to, overlay=options["overlay"], fit=True)
-        return recorder.record_clip(widget, output, t_to=t_to, size=size, fit=True, **options)
+            return recorder.save_screenshot(widget, output, size, t=t_to, overlay=options["overlay"], fit=fit)
+        return recorder.record_clip(widget, output, t_to=t_to, size=size, fit=fit, **options)
     finally:
         widget.close()
         widget.deleteLater()

@@ -153,7 +153,7 @@ def write_atomic_bytes(path, data):
     FoldsimError
         When the file cannot be written; the old file, if any, stays whole.
     """
-    from ..io.mechanism_json import remove_stale_temporaries
+    from ..io.mechanism_json import remove_stale_temporaries, share_like_target
 
     path = Path(path)
     remove_stale_temporaries(path.parent)
@@ -162,6 +162,7 @@ def write_atomic_bytes(path, data):
     except OSError as exc:
         raise FoldsimError(f"{path}: cannot write: {exc.strerror or exc}") from None
     try:
+        share_like_target(tmp, path)
         with os.fdopen(fd, "wb") as out:
             out.write(data)
             out.flush()

@@ -316,15 +316,58 @@ def remove_stale_temporaries(folder, now=None):
     return removed
 
 
+def current_umask():
+    """The process's file-creation mask (int), read without changing it where the system allows."""
+    try:
+        with open("/proc/self/status", encoding="ascii") as status:
+            for line in status:
+                if line.startswith("Umask:"):
+                    return int(line.split()[1], 8)
+    except (OSError, ValueError, IndexError):
+        pass
+    mask = os.umask(0o022)
+    os.umask(mask)
+    return mask
+
+
+def file_mode(path):
+    """Permission bits for a file written at ``path`` (int).
+
+    An existing file keeps its own mode; a new one gets ``0o666`` less the umask,
+    as a file made with ``open(path, "w")`` would (common practice of editors).
+    `tempfile.mkstemp` makes its files 0600, so an atomic save sets this mode on
+    the temporary before renaming it into place.
+
+    Examples
+    --------
+    >>> import os, tempfile
+    >>> folder = tempfile.mkdtemp()
+    >>> file_mode(os.path.join(folder, "new.json")) == 0o666 & ~current_umask()
+    True
+    """
+    try:
+        return os.stat(path).st_mode & 0o7777
+    except OSError:
+        return 0o666 & ~current_umask()
+
+
+def share_like_target(tmp, path):
+    """Give a temporary file the mode `file_mode` chooses for ``path`` (before renaming it there)."""
+    os.chmod(tmp, file_mode(path))
+
+
 def write_atomic(path, text):
     """Replace a file's contents atomically: the old file stays whole on failure.
 
     Stale temporaries of earlier killed saves in the same folder are removed first.
+    The file gets the mode of the file it replaces, or the umask's for a new one
+    (`file_mode`).
     """
     path = Path(path)
     remove_stale_temporaries(path.parent)
     fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=path.parent or ".")
     try:
+        share_like_target(tmp, path)
         with os.fdopen(fd, "w", encoding="utf-8") as out:
             out.write(text)
             out.flush()

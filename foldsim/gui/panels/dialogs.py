@@ -44,6 +44,11 @@ NET_CHOICES = (("min-diameter", "Shortest longest hinge chain"), ("bfs", "Breadt
 GEAR_CHOICES = (("auto", "Bevel and spur pairs, remote bevels where needed"), ("simple", "Bevel and spur pairs only"),
                 ("none", "No gears (ideal schedule)"))
 CLIP_FORMATS = ((".mp4", "MP4 video"), (".gif", "Animated GIF"), (".png", "PNG still"))
+FRAMING_CLIP = (("range", "Fit every shape of the clip"), ("pose", "Fit the last frame's pose"),
+                ("motion", "Fit the whole motion, flat to closed"), ("keep", "Keep the camera as it is"))
+FRAMING_STILL = (("pose", "Fit the pose shown"), ("motion", "Fit the whole motion, flat to closed"),
+                 ("keep", "Keep the camera as it is"))
+"""Framing choices of clips and stills: key (the recorder's ``fit``, "keep" for False), what the list says."""
 
 
 def _spin(low, high, value, decimals=3, step=0.1, special=None):
@@ -88,14 +93,14 @@ def parse_views(text):
     >>> parse_views("a,b")
     Traceback (most recent call last):
     ...
-    foldsim.errors.FoldsimError: --views: must be comma-separated numbers, not 'a,b'
+    foldsim.errors.FoldsimError: Pictures at t: must be comma-separated numbers, not 'a,b'
     """
     if not text.strip():
         return None
     try:
         return [float(v) for v in text.split(",") if v.strip()]
     except ValueError:
-        raise FoldsimError(f"--views: must be comma-separated numbers, not {text!r}") from None
+        raise FoldsimError(f"Pictures at t: must be comma-separated numbers, not {text!r}") from None
 
 
 def parse_length(text, name):
@@ -150,6 +155,52 @@ class _FormDialog(QtWidgets.QDialog):
         column.addWidget(self.buttons)
         self.rows = {}
 
+    REMEMBERED = ()
+    """Keys of `rows` (or attribute names) whose values `remember` keeps."""
+
+    def _widgets(self):
+        for key in self.REMEMBERED:
+            widget = getattr(self, key, None)
+            if widget is None:
+                widget = self.rows.get(key)
+            if widget is not None:
+                yield key, widget
+
+    def remember(self, settings, group):
+        """Keep the remembered fields' values in QSettings under ``group`` (this session and the next)."""
+        for key, widget in self._widgets():
+            if isinstance(widget, QtWidgets.QComboBox):
+                value = widget.currentData()
+            elif isinstance(widget, (QtWidgets.QSpinBox, QtWidgets.QDoubleSpinBox)):
+                value = widget.value()
+            elif isinstance(widget, QtWidgets.QAbstractButton):
+                value = widget.isChecked()
+            else:
+                value = widget.text()
+            settings.setValue(f"{group}/{key}", value)
+
+    def restore(self, settings, group):
+        """Put back the values `remember` kept (fields never kept, or unreadable, keep their defaults)."""
+        for key, widget in self._widgets():
+            value = settings.value(f"{group}/{key}")
+            if value is None:
+                continue
+            try:
+                if isinstance(widget, QtWidgets.QComboBox):
+                    index = widget.findData(value)
+                    if index >= 0:
+                        widget.setCurrentIndex(index)
+                elif isinstance(widget, QtWidgets.QSpinBox):
+                    widget.setValue(int(float(value)))
+                elif isinstance(widget, QtWidgets.QDoubleSpinBox):
+                    widget.setValue(float(value))
+                elif isinstance(widget, QtWidgets.QAbstractButton):
+                    widget.setChecked(value in (True, "true", "1", 1))
+                else:
+                    widget.setText(str(value))
+            except (TypeError, ValueError):
+                continue
+
     def set_caution(self, text):
         """The caution line under the form (hidden when empty)."""
         self.caution.setText(text)
@@ -187,6 +238,12 @@ class ExportDialog(_FormDialog):
         ".stl": ("format", "file", "t"),
     }
     ROWS[".gltf"], ROWS[".json"], ROWS[".obj"] = ROWS[".glb"], ROWS[".csv"], ROWS[".stl"]
+    REMEMBERED = ("kind", "t_from", "t_to", "frames", "seconds", "seam_gap", "tabs", "labels", "views",
+                  "clearance", "gap_tol", "sheet")
+    TERMS = {"--views": "Pictures at t", "--gap-tol": "Gap that counts as met", "--from": "Motion from t",
+             "--to": "to t", "--frames": "Drive values sampled", "--seconds": "Animation length",
+             "--t": "Pose at t", "--seam-gap": "Seam gap", "--tabs": "Tab width", "--clearance": "Clearance"}
+    """Command-line flags in the core's messages, and the fields of this dialog that set them."""
 
     def __init__(self, start, t_now=1.0, units="", parent=None):
         super().__init__("Export", parent)
@@ -277,7 +334,8 @@ class ExportDialog(_FormDialog):
             out.update(seam_gap=self.seam_gap.value(), tabs=self.tabs.value(), labels=self.labels.isChecked())
         if "views" in rows:
             out.update(views=parse_views(self.views.text()), clearance=self.clearance.value(),
-                       gap_tol=parse_length(self.gap_tol.text(), "--gap-tol"), sheet=self.sheet.isChecked())
+                       gap_tol=parse_length(self.gap_tol.text(), "Gap that counts as met"),
+                       sheet=self.sheet.isChecked())
         return out
 
 
@@ -286,6 +344,9 @@ class ShapeDialog(_FormDialog):
 
     `recipe` gives the options of `foldsim new` (`foldsim.design.build`).
     """
+
+    TERMS = {"--size": "Size", "--units": "Units", "--net": "Net", "--root": "Fixed face",
+             "--cut": "Face pairs to cut", "--gears": "Gears", "--teeth": "Teeth"}
 
     def __init__(self, folder="", parent=None):
         super().__init__("New from shape", parent)
@@ -369,6 +430,11 @@ class ClipDialog(_FormDialog):
     t_now : float
     """
 
+    REMEMBERED = ("kind", "t_from", "t_to", "seconds", "fps", "width_box", "height_box", "orbit", "orbit_degrees",
+                  "caption", "fit")
+    TERMS = {"--size": "Width and height", "--fps": "Frames per second", "--seconds": "Length",
+             "--from": "From t", "--to": "To t", "--orbit": "Orbit"}
+
     def __init__(self, start, size=(1280, 720), still=False, t_now=0.0, parent=None):
         super().__init__("Save screenshot" if still else "Record clip", parent)
         self.still = still
@@ -395,9 +461,16 @@ class ClipDialog(_FormDialog):
         self.add_row("orbit", "Orbit", holder)
         self.caption = self.add_row("caption", "", QtWidgets.QCheckBox("Caption: name, t and collisions"))
         self.caption.setChecked(not still)
-        self.fit = self.add_row("fit", "", QtWidgets.QCheckBox("Frame the whole motion" if not still
-                                                               else "Frame the model (else keep the camera)"))
-        self.fit.setChecked(not still)
+        self.fit = self.add_row("fit", "Framing", QtWidgets.QComboBox())
+        for key, text in (FRAMING_STILL if still else FRAMING_CLIP):
+            self.fit.addItem(text, key)
+        self.fit.setCurrentIndex(self.fit.findData("keep" if still else "range"))
+        self.fit.setToolTip("Where the camera stands: fitted to the pose shown (a closed model fills the "
+                            "frame), to the whole motion, or as it is in the view")
+        self.width_box.setToolTip("MP4 (H.264) needs an even width and height")
+        self.height_box.setToolTip(self.width_box.toolTip())
+        for box in (self.width_box, self.height_box):
+            box.editingFinished.connect(self._even_size)
         self.kind.currentIndexChanged.connect(self._kind_changed)
         self._kind_changed()
         self.resize(480, self.sizeHint().height())
@@ -412,7 +485,17 @@ class ClipDialog(_FormDialog):
             keys |= {"t_from", "seconds", "fps", "orbit"}
         self.show_rows(keys)
         self.fps.setMaximum(50 if suffix == ".gif" else 120)
+        # MP4 frames have an even width and height: offer only even values.
+        for box in (self.width_box, self.height_box):
+            box.setSingleStep(2 if suffix == ".mp4" else 1)
+        self._even_size()
         self.adjustSize()
+
+    def _even_size(self):
+        if self.kind.currentData() == ".mp4":
+            for box in (self.width_box, self.height_box):
+                if box.value() % 2:
+                    box.setValue(box.value() + 1 if box.value() < box.maximum() else box.value() - 1)
 
     def _browse(self):
         suffix = self.kind.currentData()
@@ -426,14 +509,33 @@ class ClipDialog(_FormDialog):
 
     def options(self):
         """Keyword arguments of `record.recorder.record_clip` (or `save_screenshot` for a still)."""
+        self._even_size()
         size = (self.width_box.value(), self.height_box.value())
+        fit = {"keep": False}.get(self.fit.currentData(), self.fit.currentData())
         if self.kind.currentData() == ".png":
-            return {"size": size, "t": self.t_to.value(), "overlay": self.caption.isChecked(),
-                    "fit": self.fit.isChecked()}
+            return {"size": size, "t": self.t_to.value(), "overlay": self.caption.isChecked(), "fit": fit}
         return {"t_from": self.t_from.value(), "t_to": self.t_to.value(), "seconds": self.seconds.value(),
                 "fps": self.fps.value(), "size": size,
                 "orbit": self.orbit_degrees.value() if self.orbit.isChecked() else False,
-                "overlay": self.caption.isChecked(), "fit": self.fit.isChecked()}
+                "overlay": self.caption.isChecked(), "fit": fit}
+
+
+def in_dialog_terms(message, terms):
+    """A refusal worded for a dialog: the command-line flags it names become the dialog's field names.
+
+    Examples
+    --------
+    >>> in_dialog_terms("--size 1281x720: MP4 needs an even width", {"--size": "Width and height"})
+    'Width and height 1281x720: MP4 needs an even width'
+    >>> in_dialog_terms("--to-t 2: out of range", {"--to": "To t"})
+    '--to-t 2: out of range'
+    """
+    import re
+
+    def field(match):
+        return terms.get(match.group(0), match.group(0))
+
+    return re.sub(r"--[a-z][a-z0-9-]*", field, str(message))
 
 
 def busy_dialog(parent, text, cancel_text="Cancel"):

@@ -102,7 +102,26 @@ class CollisionStrip(QtWidgets.QWidget):
         self.setMinimumHeight(16)
         self.setMaximumHeight(16)
         self.setMouseTracking(True)
-        self.setToolTip("Where panels collide (red); click a mark to go there")
+        self.setToolTip(self.GENERIC_TIP)
+
+    GENERIC_TIP = "Where panels collide (red); click a mark to go there"
+
+    def tip_at(self, x):
+        """The tooltip at a pixel column: the face pairs and t ranges over a mark, else the generic one."""
+        c = self.interval_at(x)
+        if c is None:
+            return self.GENERIC_TIP
+        pairs = [d for d in self.intervals if d["first_t"] <= c["last_t"] and d["last_t"] >= c["first_t"]]
+        return "\n".join(f"faces {d['faces'][0]} and {d['faces'][1]}: t = {d['first_t']:.3f} to {d['last_t']:.3f}"
+                         for d in pairs)
+
+    def event(self, ev):
+        # Qt's own tooltip (the mouse resting) would show the generic text over a
+        # mark too: answer it with the text for where the mouse is.
+        if ev.type() == QtCore.QEvent.Type.ToolTip:
+            QtWidgets.QToolTip.showText(ev.globalPos(), self.tip_at(ev.pos().x()), self)
+            return True
+        return super().event(ev)
 
     def set_intervals(self, intervals, swept):
         """Show these collisions (list of dict), found over ``swept`` = (t0, t1) so far."""
@@ -162,14 +181,10 @@ class CollisionStrip(QtWidgets.QWidget):
         painter.end()
 
     def mouseMoveEvent(self, ev):
-        c = self.interval_at(ev.position().x())
-        if c is None:
+        if self.interval_at(ev.position().x()) is None:
             QtWidgets.QToolTip.hideText()
             return
-        pairs = [d for d in self.intervals if d["first_t"] <= c["last_t"] and d["last_t"] >= c["first_t"]]
-        text = "\n".join(f"faces {d['faces'][0]} and {d['faces'][1]}: t = {d['first_t']:.3f} to {d['last_t']:.3f}"
-                         for d in pairs)
-        QtWidgets.QToolTip.showText(ev.globalPosition().toPoint(), text, self)
+        QtWidgets.QToolTip.showText(ev.globalPosition().toPoint(), self.tip_at(ev.position().x()), self)
 
     def mousePressEvent(self, ev):
         c = self.interval_at(ev.position().x())
@@ -212,6 +227,9 @@ class DriveBar(QtWidgets.QWidget):
         self.play_button.setCheckable(True)
         self.play_button.setText("Play")
         self.play_button.setToolTip("Play / pause (Space)")
+        # As wide as its wider word, so the bar does not shift when it changes.
+        metrics = self.play_button.fontMetrics()
+        self.play_button.setFixedWidth(max(metrics.horizontalAdvance(w) for w in ("Play", "Pause")) + 24)
         self.mode = QtWidgets.QComboBox()
         self.mode.addItems(MODES)
         self.mode.setCurrentText("Back and forth")
@@ -225,9 +243,9 @@ class DriveBar(QtWidgets.QWidget):
         self.speed.setCurrentIndex(SPEEDS.index(1.0))
         self.speed.setToolTip(f"Playback speed (1× folds from flat to closed in {PASS_SECONDS:g} s)")
         self.progress = QtWidgets.QProgressBar()
-        self.progress.setMaximumHeight(14)
         self.progress.setTextVisible(True)
         self.progress.setFormat("checking collisions %p%")
+        self.progress.setMinimumWidth(self.progress.fontMetrics().horizontalAdvance("checking collisions 100%") + 40)
         self.cancel_button = QtWidgets.QToolButton()
         self.cancel_button.setText("Stop check")
         self.cancel_button.setToolTip("Stop the collision check over the range")
@@ -354,7 +372,8 @@ class _TableModel(QtCore.QAbstractTableModel):
     def data(self, index, role=QtCore.Qt.ItemDataRole.DisplayRole):
         if not index.isValid():
             return None
-        if role == QtCore.Qt.ItemDataRole.DisplayRole:
+        if role in (QtCore.Qt.ItemDataRole.DisplayRole, QtCore.Qt.ItemDataRole.ToolTipRole):
+            # The tooltip shows what a narrow column cuts off.
             return self.text(index.row(), index.column())
         if role == QtCore.Qt.ItemDataRole.TextAlignmentRole:
             return int(QtCore.Qt.AlignmentFlag.AlignRight | QtCore.Qt.AlignmentFlag.AlignVCenter)

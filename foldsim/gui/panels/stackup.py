@@ -199,7 +199,7 @@ class StackupPanel(QtWidgets.QWidget):
         self.stop_button = QtWidgets.QPushButton("Stop")
         self.stop_button.setEnabled(False)
         self.progress = QtWidgets.QProgressBar()
-        self.progress.setMaximumHeight(14)
+        self.progress.setMinimumWidth(self.progress.fontMetrics().horizontalAdvance("sampling builds 100%") + 40)
         self.progress.setFormat("sampling builds %p%")
         self.progress.setVisible(False)
         self.note = QtWidgets.QLabel("Not run yet.")

@@ -1,4 +1,4 @@
-"""File ▸ Open Study…: a net study's rows in a sortable table; a chosen row is shown.
+"""File ▸ Open study…: a net study's rows in a sortable table; a chosen row is shown.
 
 A study (`foldsim study`, docs/study.md) is read through `foldsim.study.table`;
 the table lists every net with its criteria, sortable by any column (numbers sort
@@ -147,7 +147,7 @@ class StudyPanel(QtWidgets.QDialog):
 
 
 def open_study(window, path=None):
-    """File ▸ Open Study…: ask for a study directory (unless given) and show its nets.
+    """File ▸ Open study…: ask for a study directory (unless given) and show its nets.
 
     Returns
     -------

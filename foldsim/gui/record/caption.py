@@ -57,15 +57,26 @@ def overlay_lines(viewport, title=None):
 
 
 def t_text(t):
-    """The caption's drive line, with a true minus sign.
+    """The caption's drive line, with a true minus sign, rounded as the app's t field rounds.
+
+    Three decimals of the exact binary value, a tie going away from zero, as Qt's
+    number field shows it (Python's own format would send a tie to the even
+    digit: 0.0625 as 0.062 where the field says 0.063). The status bar uses the
+    same words.
 
     Examples
     --------
     >>> t_text(0.5), t_text(-1), t_text(-0.0)
     ('t = 0.500', 't = −1.000', 't = 0.000')
+    >>> t_text(0.0625), t_text(-0.8125), t_text(-0.0004)
+    ('t = 0.063', 't = −0.813', 't = 0.000')
     """
-    t = float(t) + 0.0
-    return f"t = {abs(t):.3f}" if round(t, 3) == 0 or t > 0 else f"t = −{-t:.3f}"
+    from decimal import ROUND_HALF_UP, Decimal
+
+    shown = Decimal(float(t)).quantize(Decimal("0.001"), rounding=ROUND_HALF_UP)
+    if shown == 0:
+        return "t = 0.000"
+    return f"t = {shown:.3f}" if shown > 0 else f"t = −{-shown:.3f}"
 
 
 def _qimage(rgba):

@@ -16,6 +16,7 @@ from pathlib import Path
 import numpy as np
 
 from ...errors import FoldsimError
+from ...io.mechanism_json import share_like_target
 
 GIF_CELL_BITS = 5
 """Bits per channel of the colour grid the GIF palette is chosen and looked up on."""
@@ -42,9 +43,7 @@ class _AtomicTarget:
         self.path = Path(name)
 
     def commit(self):
-        umask = os.umask(0)
-        os.umask(umask)
-        os.chmod(self.path, 0o666 & ~umask)
+        share_like_target(self.path, self.target)
         try:
             os.replace(self.path, self.target)
         except OSError as exc:

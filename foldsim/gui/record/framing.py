@@ -109,7 +109,41 @@ def hull_meets_box(points, box):
     return True
 
 
-def plan_camera(viewport, t_values, turns, size, margin=MARGIN, reserve=None):
+def fit_values(fit, t_values):
+    """The drive values whose shapes a clip's framing must hold, for a ``fit`` choice.
+
+    Parameters
+    ----------
+    fit : True, "range", "pose" or "motion"
+        True and ``"range"``: every shape over the clip's own range of t;
+        ``"pose"``: the shape at the last frame only (a closed model fills the
+        frame); ``"motion"``: every shape from flat to closed on the side of the
+        last frame, as View ▸ Fit whole motion, and the clip's own range.
+    t_values : (n,) float
+        The clip's drive values (`clip_plan`).
+
+    Returns
+    -------
+    (m,) float
+
+    Examples
+    --------
+    >>> fit_values("pose", [0.0, 0.5, 1.0]).tolist()
+    [1.0]
+    >>> fit_values("motion", [-0.5]).tolist()[:3]
+    [-1.0, -0.9, -0.8]
+    """
+    t_values = np.asarray(t_values, dtype=float)
+    if fit == "pose":
+        return t_values[-1:]
+    if fit == "motion":
+        end = 1.0 if t_values[-1] >= 0 else -1.0
+        return np.unique(np.concatenate([np.linspace(0.0, end, 11), t_values[[0, -1]]]))
+    lo, hi = float(np.min(t_values)), float(np.max(t_values))
+    return np.unique(np.concatenate([np.linspace(lo, hi, 13), t_values[[0, -1]]]))
+
+
+def plan_camera(viewport, t_values, turns, size, margin=MARGIN, reserve=None, fit=True):
     """Camera of every frame such that the whole clip stays in view.
 
     From the view's current direction, turned by each frame's offset, the
@@ -129,6 +163,8 @@ def plan_camera(viewport, t_values, turns, size, margin=MARGIN, reserve=None):
     margin : float
     reserve : (float, float), optional
         Width and height in pixels to keep clear in the top-left corner.
+    fit : True, "range", "pose" or "motion"
+        Which shapes to hold (`fit_values`).
 
     Returns
     -------
@@ -138,8 +174,7 @@ def plan_camera(viewport, t_values, turns, size, margin=MARGIN, reserve=None):
     """
     w, h = size
     saved = _camera(viewport)
-    lo, hi = float(np.min(t_values)), float(np.max(t_values))
-    samples = np.unique(np.concatenate([np.linspace(lo, hi, 13), [t_values[0], t_values[-1]]]))
+    samples = fit_values(fit, t_values)
     points = _posed_corners(viewport, samples)
     turns = np.asarray(turns, dtype=float)
     sample_turns = np.unique(np.linspace(turns.min(), turns.max(), 9 if np.ptp(turns) > 0 else 1))

@@ -186,7 +186,7 @@ def render_frames(viewport, t_from=0.0, t_to=1.0, seconds=4.0, fps=30, size=(128
             reserve = None
     try:
         if fit:
-            cameras = plan_camera(viewport, t_values, turns, size, reserve=reserve)
+            cameras = plan_camera(viewport, t_values, turns, size, reserve=reserve, fit=fit)
         else:
             cameras = [dict(saved, azimuth=saved["azimuth"] + turn) for turn in turns]
         chosen = range(len(t_values)) if only is None else sorted({int(k) for k in only})
@@ -240,9 +240,11 @@ def record_clip(viewport, path, t_from=0.0, t_to=1.0, seconds=4.0, fps=30, size=
     cancel : callable, optional
         Asked before every frame; when it returns True the recording stops, the
         temporary file is removed and `Cancelled` is raised.
-    fit : bool
+    fit : bool or str
         Frame the whole clip (every shape over the range of t, at every orbit
-        angle) from the view's current direction; False keeps the camera as it
+        angle) from the view's current direction; ``"pose"`` frames the shape at
+        the last frame (a closed model fills the frame), ``"motion"`` every shape
+        from flat to closed (`framing.fit_values`); False keeps the camera as it
         is (orbiting about its centre).
     title : str, optional
         Caption's first line instead of the model's name.
@@ -331,8 +333,9 @@ def save_screenshot(viewport, path, size=(1280, 720), t=None, overlay=False, fit
         Drive value to show (default the view's current one).
     overlay : bool
         Caption the frame (name, t, collision state).
-    fit : bool
-        Frame the model at t in the picture; False keeps the camera.
+    fit : bool or str
+        Frame the model at t in the picture (True or ``"pose"``), or every shape
+        from flat to closed (``"motion"``); False keeps the camera.
     title : str, optional
         Caption's first line instead of the model's name.
     samples : int
@@ -355,7 +358,8 @@ def save_screenshot(viewport, path, size=(1280, 720), t=None, overlay=False, fit
     target = _AtomicTarget(path)
     written = False
     try:
-        frames = render_frames(viewport, t, t, seconds=1, fps=1, size=size, overlay=overlay, fit=fit,
+        frames = render_frames(viewport, t, t, seconds=1, fps=1, size=size, overlay=overlay,
+                               fit="pose" if fit is True else fit,
                                title=title, samples=samples)
         try:
             _, colliding, rgba = next(frames)

@@ -70,13 +70,20 @@ def stage_transform(mech):
 class CameraControl:
     """Camera, projection, picking and mouse handling (a mixin of `viewport.FoldView`)."""
 
+    def stage(self):
+        """`stage_transform` of the mechanism shown, (4, 4) float (computed once per mechanism)."""
+        if getattr(self, "_stage_of", None) is not self.mech:
+            self._stage_matrix = stage_transform(self.mech)
+            self._stage_of = self.mech
+        return self._stage_matrix
+
     def _display_points(self, t_values=None):
         """Corners (n, 3) of every panel in the display frame, at t or the current poses."""
         mech = self.mech
         flat = np.concatenate(mech.flat_faces)
         owner = np.concatenate([np.full(len(p), f) for f, p in enumerate(mech.flat_faces)])
         sets = [self.poses] if t_values is None else list(poses_at(mech, self.schedule, np.asarray(t_values)))
-        stage = stage_transform(mech)
+        stage = self.stage()
         return np.concatenate([transform_points(stage @ p[owner], flat) for p in sets])
 
     def fit(self, t_values=None, margin=1.1):
@@ -120,6 +127,10 @@ class CameraControl:
         end = 1.0 if self.t >= 0 else -1.0
         self.fit(t_values=(*np.linspace(0.0, end, 11), self.t))
 
+    def fit_pose(self):
+        """Fit the model as it stands at the current t (a closed model fills the view)."""
+        self.fit(t_values=(self.t,))
+
     def set_view(self, name):
         """Turn the camera to a standard view ("front", "top", "side" or "iso") and fit."""
         elevation, azimuth = VIEWS[name]
@@ -148,7 +159,7 @@ class CameraControl:
         """
         width = width or self.width()
         height = height or self.height()
-        m = self._view_projection(width, height) @ stage_transform(self.mech)
+        m = self._view_projection(width, height) @ self.stage()
         p = np.asarray(points, dtype=float).reshape(-1, 3)
         clip = np.hstack([p, np.ones((len(p), 1))]) @ m.T
         with np.errstate(divide="ignore", invalid="ignore"):
@@ -170,7 +181,7 @@ class CameraControl:
             ``direction`` has unit length.
         """
         w, h = max(self.width(), 1), max(self.height(), 1)
-        m = self._view_projection(w, h) @ stage_transform(self.mech)
+        m = self._view_projection(w, h) @ self.stage()
         inv = np.linalg.inv(m)
         ndc = np.array([[2 * x / w - 1, 1 - 2 * y / h, z, 1.0] for z in (-1.0, 1.0)])
         ends = ndc @ inv.T

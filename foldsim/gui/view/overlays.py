@@ -18,8 +18,11 @@ from ...gearing import fold_angles
 from ...geometry import transform_points
 from ...picking import intersection_segments
 from ...stackup import perturbed_poses
+from ...tolerances import DEFAULT
 from . import palette
 from .camera import _matrix
+from .legend import draw_legend, legend_entries
+from .numbers import anchor_points, draw_numbers
 from .panel_layer import _rgba
 
 MAX_AUTO_LABELS = 6
@@ -27,6 +30,9 @@ MAX_AUTO_LABELS = 6
 
 NEAR_GAP = 0.25
 """Open cut edges get gap lines when their gap is below this fraction of the model's size."""
+
+LARGE_MODEL = 100
+"""From this many panels on, gap lines are drawn only for the chosen cut edges (or the widest few)."""
 
 ENVELOPE = (176, 84, 0)
 """Colour of the sampled-build outlines (`FoldView.set_envelope`), drawn see-through."""
@@ -59,10 +65,15 @@ class _LabelOverlay(QtWidgets.QWidget):
         self.setAttribute(QtCore.Qt.WidgetAttribute.WA_NoSystemBackground)
 
     def paintEvent(self, ev):
-        if self.view._labels:
-            painter = QtGui.QPainter(self)
-            self.view._draw_labels(painter, self.width(), self.height(), 1.0)
-            painter.end()
+        view = self.view
+        if view.mech is None:
+            return
+        painter = QtGui.QPainter(self)
+        view.numbers_drawn = view._draw_labels(painter, self.width(), self.height(), 1.0)
+        rows = max(4, int(0.35 * self.height() / max(self.fontMetrics().height() + 3, 1)))
+        view.legend_shown = legend_entries(view, rows) if view.show_legend else []
+        view.legend_box = draw_legend(painter, view, view.legend_shown, self.width(), self.height())
+        painter.end()
 
 
 class Overlays:
@@ -94,12 +105,88 @@ class Overlays:
 
         Open edges nearer than `NEAR_GAP` of the model's size, and every open edge
         chosen with `set_label_edges`; wider gaps are the pattern lying open, not
-        a fault, and would only clutter the view.
+        a fault, and would only clutter the view. On a model of `LARGE_MODEL`
+        panels or more, only the chosen edges (none chosen: the `MAX_AUTO_LABELS`
+        widest of those) are drawn. With `show_gap_lines` off, none.
         """
+        if not self.show_gap_lines:
+            return np.zeros(0, np.int64)
         open_ = self.open_edges()
         near = self.gaps[open_] <= NEAR_GAP * self.mech.size
         chosen = np.isin(open_, self.label_edges or [])
-        return open_[near | chosen]
+        drawn = open_[near | chosen]
+        if self.mech.n_faces >= LARGE_MODEL:
+            if self.label_edges:
+                drawn = open_[chosen]
+            else:
+                drawn = np.sort(drawn[np.argsort(-self.gaps[drawn], kind="stable")[:MAX_AUTO_LABELS]])
+        return drawn
+
+    def set_gap_lines(self, on):
+        """Draw the gap lines of open cut edges (and their lengths), or not."""
+        self.show_gap_lines = bool(on)
+        if self.mech is not None:
+            self._update_gaps()
+            self.update()
+
+    def set_numbers(self, on):
+        """Draw face, hinge and cut-edge numbers, or not."""
+        self.show_numbers = bool(on)
+        self.update()
+
+    def set_legend(self, on):
+        """Show the legend in the view's corner, or not."""
+        self.show_legend = bool(on)
+        self.update()
+
+    def set_part_types(self, types):
+        """The part types the panels are coloured by, for the legend: list of (name, RGB 0-255), or None."""
+        self.part_types = None if types is None else [(str(n), tuple(int(c) for c in rgb)) for n, rgb in types]
+        self.update()
+
+    def _eye(self):
+        """The camera's position (3,) in the model frame."""
+        eye = self.cameraPosition()
+        inverse = np.linalg.inv(self.stage())
+        return (inverse @ np.array([eye.x(), eye.y(), eye.z(), 1.0]))[:3]
+
+    def hidden_points(self, points, chunk=64):
+        """Which model-frame points (n, 3) a panel hides from the camera (n,) bool.
+
+        A label whose line is hidden behind a panel, or a number whose panel is
+        turned away behind others, is not drawn over the panel in front. Every
+        ray starts at the eye, so the Möller–Trumbore terms that depend only on
+        the triangles are shared by all rays (Möller and Trumbore, 1997); a point
+        on a panel's own surface is not hidden by that panel.
+        """
+        points = np.asarray(points, dtype=float).reshape(-1, 3)
+        out = np.zeros(len(points), bool)
+        if not len(points) or self.poses is None:
+            return out
+        eye = self._eye()
+        pan = self.pan
+        tris = transform_points(self.poses[pan.tri_face][:, None], pan.tri_points)
+        e1, e2 = tris[:, 1] - tris[:, 0], tris[:, 2] - tris[:, 0]
+        s = eye - tris[:, 0]
+        q = np.cross(s, e1)
+        along = np.einsum("ij,ij->i", e2, q)
+        area2 = np.linalg.norm(np.cross(e1, e2), axis=1)
+        slack = 1e-2 * self.mech.size
+        for start in range(0, len(points), chunk):
+            rays = points[start:start + chunk] - eye
+            reach = np.linalg.norm(rays, axis=1)
+            units = rays / np.where(reach > 0, reach, 1.0)[:, None]
+            p = np.cross(units[:, None, :], e2[None, :, :])
+            det = np.einsum("kj,mkj->mk", e1, p)
+            usable = np.abs(det) > DEFAULT.coincident * area2[None, :]
+            inv = np.where(usable, 1.0 / np.where(usable, det, 1.0), 0.0)
+            u = np.einsum("kj,mkj->mk", s, p) * inv
+            v = (units @ q.T) * inv
+            dist = along[None, :] * inv
+            hit = usable & (u >= 0) & (v >= 0) & (u + v <= 1) & (dist >= 0)
+            nearest = np.where(hit, dist, np.inf).min(axis=1)
+            out[start:start + chunk] = (reach > 0) & (nearest < reach - slack)
+        return out
 
     def _update_gaps(self):
         mech = self.mech
@@ -197,8 +284,23 @@ class Overlays:
         self._hinge_mark.setVisible(h >= 0)
 
     def _draw_labels(self, painter, width, height, scale):
-        """Gap labels: the length in a pale box at the middle of each gap."""
-        where = self.model_to_pixels(np.array([p for p, _ in self._labels]), width, height)
+        """Gap labels, then the numbers (with `show_numbers`) where they fit; return the kinds of number drawn.
+
+        Gap labels: the length in a pale box at the middle of each gap, except
+        where a panel hides that point (its line is hidden there too).
+        """
+        placed = []
+        if self._labels:
+            self._draw_gap_labels(painter, width, height, scale, placed)
+        if not self.show_numbers or self.poses is None:
+            return set()
+        return draw_numbers(painter, self, anchor_points(self.mech, self.poses, self._centres),
+                            width, height, scale, placed)
+
+    def _draw_gap_labels(self, painter, width, height, scale, placed):
+        points = np.array([p for p, _ in self._labels])
+        where = self.model_to_pixels(points, width, height)
+        where[self.hidden_points(points)] = np.nan
         font = QtGui.QFont(self.font())
         font.setPointSizeF(font.pointSizeF() * scale if font.pointSizeF() > 0 else 9 * scale)
         painter.setFont(font)
@@ -206,7 +308,6 @@ class Overlays:
         metrics = QtGui.QFontMetricsF(font)
         pen = QtGui.QPen(QtGui.QColor(*palette.GAP))
         pen.setWidthF(1.2 * scale)
-        placed = []
         for (x, y), (_, text) in zip(where, self._labels):
             if not np.isfinite(x):
                 continue

@@ -37,6 +37,27 @@ PANELS = (
 )
 
 
+PART_TYPES = (
+    # Paul Tol, "Colour schemes", SRON/EPS/TN/09-002 (issue 3.2, 2021), qualitative
+    # scheme "light": made for filled areas under labels and distinct to viewers with
+    # the common forms of colour blindness. In Tol's order; pale grey last, as he
+    # advises, since it reads as "no type".
+    (0x77, 0xAA, 0xDD),  # light blue
+    (0xEE, 0x88, 0x66),  # orange
+    (0xEE, 0xDD, 0x88),  # light yellow
+    (0xFF, 0xAA, 0xBB),  # pink
+    (0x99, 0xDD, 0xFF),  # light cyan
+    (0x44, 0xBB, 0x99),  # mint
+    (0xBB, 0xCC, 0x33),  # pear
+    (0xAA, 0xAA, 0x00),  # olive
+    (0xDD, 0xDD, 0xDD),  # pale grey
+)
+"""Colours of part types (View ▸ Colour panels by ▸ Part type), in order of first use.
+
+More types than colours repeat them; the legend then says so.
+"""
+
+
 def unit_rgb(rgb):
     """A 0-255 triple as a (3,) tuple of floats in [0, 1]."""
     return tuple(c / 255.0 for c in rgb[:3])

@@ -59,6 +59,7 @@ from .overlays import (
     _LabelOverlay,
     label_text,
 )
+from .numbers import face_centres
 from .panel_layer import PanelLayer, _PanelProgram, _rgba, uniform_slots
 from .solid_layer import SolidLayer
 
@@ -150,6 +151,15 @@ class FoldView(CameraControl, Overlays, gl.GLViewWidget):
         self._envelope = None
         self._envelope_errors = None
         self.envelope_poses = None
+        self.envelope_color = ENVELOPE
+        self.show_numbers = False
+        self.show_gap_lines = True
+        self.show_legend = True
+        self.part_types = None
+        self.numbers_drawn = set()
+        self.legend_shown = []
+        self.legend_box = None
+        self._centres = None
 
     # ------------------------------------------------------------------ model
 
@@ -178,6 +188,8 @@ class FoldView(CameraControl, Overlays, gl.GLViewWidget):
         self.selected_face = -1
         self.selected_hinge = -1
         self.label_edges = None
+        self.part_types = None
+        self._centres = face_centres(mech)
         self.colliding = np.zeros((0, 2), np.int64)
         self.known = None
         self.solids = None
@@ -426,7 +438,7 @@ class FoldView(CameraControl, Overlays, gl.GLViewWidget):
             self._line_scale = 1.0
             self.doneCurrent()
         image = image.convertToFormat(QtGui.QImage.Format.Format_RGBA8888)
-        if self._labels:
+        if self._labels or self.show_numbers:
             painter = QtGui.QPainter(image)
             self._draw_labels(painter, width, height, scale)
             painter.end()

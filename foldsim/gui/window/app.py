@@ -10,9 +10,10 @@ place. The collision sweep over the whole range, large models, new models,
 exports and the stack-up run in worker threads (`sweep`); clips are drawn by
 `recorder` with a progress dialog.
 
-This module assembles the window (layout, menus, drive, selection, status); its
-file commands live in `files`, its background work in `jobs` and what it holds
-about one mechanism in `model`.
+This module assembles the window (layout, menus, drive, selection); its file
+commands live in `files`, its background work in `jobs`, its status words and
+side-column heights in `status`, its Help menu in `help` and what it holds about
+one mechanism in `model`.
 
 ``FOLDSIM_QUIT_AFTER_MS`` in the environment makes `run` quit after that many
 milliseconds (for smoke tests and unattended screenshots).
@@ -31,19 +32,23 @@ from ...gearing import fold_angles
 from ..panels.side import DriveBar, GapModel, GapPlot, HingeModel, make_table
 from ..panels.stackup import StackupPanel
 from ..panels.study import open_study
+from ..view.numbers import NUMBERS_UP_TO
 from ..view.viewport import FoldView, default_face_colors
 from .files import MAX_RECENT, FileHandling
+from .help import DOCS, LICENCE, HelpMenu
 from .jobs import Jobs
-from .model import GAP_GRID, Model, error_line, file_stem, label_colors, part_labels
+from .model import GAP_GRID, Model, error_line, file_stem, label_colors, label_order, part_labels
+from .status import GAP_PLOT_MIN, StatusBar
 
-__all__ = ["BACKGROUND_BYTES", "DEMO", "GAP_GRID", "MAX_RECENT", "MainWindow", "Model", "error_line",
+__all__ = ["BACKGROUND_BYTES", "DEMO", "DOCS", "GAP_GRID", "GAP_PLOT_MIN", "LICENCE", "VIEW_NAMES", "MAX_RECENT", "MainWindow", "Model", "error_line",
            "file_stem", "label_colors", "part_labels", "run"]
 
 DEMO = Path(__file__).resolve().parents[3] / "assets" / "gift-box.mech.json"
 """The model the app opens when started without a file."""
 
-SIDE_PANEL_MS = 100
-"""During playback the tables, the gap plot's cursor and the status follow this often."""
+VIEW_NAMES = {"front": "Front view", "top": "Top view", "side": "Side view", "iso": "Three-quarter view"}
+"""View menu names of the standard directions; the view is in perspective, so the
+corner view is not called isometric."""
 
 STEP, BIG_STEP = 0.01, 0.1
 """Drive steps of the arrow keys, without and with Shift."""
@@ -52,7 +57,7 @@ BACKGROUND_BYTES = 64_000
 """Model files larger than this are read in a worker thread (about 450 panels and up)."""
 
 
-class MainWindow(FileHandling, Jobs, QtWidgets.QMainWindow):
+class MainWindow(FileHandling, Jobs, StatusBar, HelpMenu, QtWidgets.QMainWindow):
     """The app's window; `open_path` loads a model into it."""
 
     def __init__(self, settings=None):
@@ -69,6 +74,7 @@ class MainWindow(FileHandling, Jobs, QtWidgets.QMainWindow):
         self.export_progress = None
         self.dialog = None
         self.recording = False
+        self.ask_before_close = True
         self.pool = QtCore.QThreadPool(self)
         self.pool.setMaxThreadCount(1)
         # Loads, exports and the stack-up: apart from the sweep, so none waits for it.
@@ -80,10 +86,6 @@ class MainWindow(FileHandling, Jobs, QtWidgets.QMainWindow):
         self.reload_timer.setSingleShot(True)
         self.reload_timer.setInterval(250)
         self.reload_timer.timeout.connect(lambda: self.reload(auto=True))
-        self.side_clock = QtCore.QElapsedTimer()
-        self.side_timer = QtCore.QTimer(self)
-        self.side_timer.setSingleShot(True)
-        self.side_timer.timeout.connect(self._update_side)
         self.setWindowTitle("foldsim")
         self.setAcceptDrops(True)
         self.resize(1280, 800)
@@ -113,6 +115,9 @@ class MainWindow(FileHandling, Jobs, QtWidgets.QMainWindow):
             inner.addWidget(widget)
             side.addWidget(box)
         side.setSizes([300, 200, 260])
+        side.setChildrenCollapsible(False)
+        self.gap_plot.setMinimumHeight(GAP_PLOT_MIN)
+        self.side = side
         split = QtWidgets.QSplitter(QtCore.Qt.Orientation.Horizontal)
         split.addWidget(centre)
         split.addWidget(side)
@@ -122,6 +127,10 @@ class MainWindow(FileHandling, Jobs, QtWidgets.QMainWindow):
         self.setCentralWidget(split)
         self.status = QtWidgets.QLabel()
         self.statusBar().addWidget(self.status, 1)
+        self.picked_label = QtWidgets.QLabel()
+        self.statusBar().addPermanentWidget(self.picked_label)
+        self.swept = (0.0, 0.0)
+        self.swept_whole = False
         self.stackup_panel = StackupPanel(self.tool_pool)
         self.stackup_dock = QtWidgets.QDockWidget("Play and backlash", self)
         self.stackup_dock.setObjectName("play-and-backlash")
@@ -130,9 +139,12 @@ class MainWindow(FileHandling, Jobs, QtWidgets.QMainWindow):
         self.stackup_dock.hide()
         self.stackup_dock.visibilityChanged.connect(self._dock_shown)
         self._dock_sized = False
+        self._numbers_chosen = False
+        self.picked_face = -1
 
         self._build_menus()
-        self.stackup_panel.envelopeChanged.connect(self.view.set_envelope)
+        self.envelope_errors = None
+        self.stackup_panel.envelopeChanged.connect(self._envelope_changed)
         self.stackup_panel.failed.connect(lambda message: self.show_error(error_line(message)))
         self.stackup_panel.hingeChosen.connect(self._select_hinge_row)
         self.drive.tChanged.connect(self.set_t)
@@ -141,11 +153,18 @@ class MainWindow(FileHandling, Jobs, QtWidgets.QMainWindow):
         self.hinge_table.selectionModel().selectionChanged.connect(self._hinge_selected)
         self.gap_table.selectionModel().selectionChanged.connect(self._edges_selected)
 
+    def _envelope_changed(self, errors):
+        self.envelope_errors = errors
+        self.view.set_envelope(errors if self.stackup_dock.isVisible() else None)
+
     def _dock_shown(self, visible):
+        # The sampled builds are outlined only while their panel is open.
+        self.view.set_envelope(self.envelope_errors if visible else None)
         # The first time it opens, give the panel a third of the window and the view the rest.
         if visible and not self._dock_sized:
             self._dock_sized = True
             self.resizeDocks([self.stackup_dock], [max(260, self.height() // 3)], QtCore.Qt.Orientation.Vertical)
+        QtCore.QTimer.singleShot(0, self.share_side_height)
 
     # ------------------------------------------------------------------ menus
 
@@ -161,32 +180,52 @@ class MainWindow(FileHandling, Jobs, QtWidgets.QMainWindow):
         self.addAction(action)
         return action
 
+    def _toggle(self, menu, text, shortcut, slot, tip, checked=False):
+        action = self._action(menu, text, lambda: None, shortcut, tip)
+        action.setCheckable(True)
+        action.setChecked(checked)
+        action.toggled.connect(slot)
+        return action
+
+    def _numbers_toggled(self, on):
+        self._numbers_chosen = True
+        self.view.set_numbers(on)
+
     def _build_menus(self):
         bar = self.menuBar()
         files = bar.addMenu("&File")
         self._action(files, "&Open…", self.open_dialog, QtGui.QKeySequence.StandardKey.Open)
-        self._action(files, "&New from Shape…", self.shape_dialog, QtGui.QKeySequence.StandardKey.New,
+        self._action(files, "&New from shape…", self.shape_dialog, QtGui.QKeySequence.StandardKey.New,
                      "Unfold and gear a built-in solid or a mesh file")
-        self.recent_menu = files.addMenu("Open &Recent")
-        self._action(files, "Open S&tudy…", lambda: open_study(self), None,
+        self.recent_menu = files.addMenu("Open &recent")
+        self._action(files, "Open s&tudy…", lambda: open_study(self), None,
                      "List the nets of a net study (foldsim study) and show one")
         self._action(files, "Re&load", lambda: self.reload(), "Ctrl+R", "Read the model's file again")
         files.addSeparator()
         self._action(files, "&Save", self.save, QtGui.QKeySequence.StandardKey.Save)
-        self._action(files, "Save &As…", self.save_as, QtGui.QKeySequence.StandardKey.SaveAs)
+        self._action(files, "Save &as…", self.save_as, QtGui.QKeySequence.StandardKey.SaveAs)
         self._action(files, "&Export…", self.export_dialog, "Ctrl+E",
                      "glTF, flat pattern, tables, review report or a posed mesh")
         files.addSeparator()
-        self._action(files, "Save Screens&hot…", self.save_image, "Ctrl+I", "Save the 3D view as a PNG")
-        self._action(files, "Record &Clip…", self.clip_dialog, "Ctrl+Shift+R",
+        self._action(files, "Save screens&hot…", self.save_image, "Ctrl+I", "Save the 3D view as a PNG")
+        self._action(files, "Record &clip…", self.clip_dialog, "Ctrl+Shift+R",
                      "Record the motion as MP4, GIF or PNG")
         files.addSeparator()
         self._action(files, "&Quit", self.close, QtGui.QKeySequence.StandardKey.Quit)
         view = bar.addMenu("&View")
-        self._action(view, "&Fit", self.view.fit_motion, "F", "Fit the model to the view")
+        self._action(view, "&Fit whole motion", self.view.fit_motion, "F",
+                     "Fit every shape from flat to closed into the view")
+        self._action(view, "Fit &current pose", self.view.fit_pose, "Shift+F",
+                     "Fit the model as it stands at this t into the view")
         for name, key in (("front", "1"), ("top", "2"), ("side", "3"), ("iso", "4")):
-            self._action(view, f"{name.capitalize()} view", lambda _=False, n=name: self.view.set_view(n), key)
+            self._action(view, VIEW_NAMES[name], lambda _=False, n=name: self.view.set_view(n), key)
         view.addSeparator()
+        self.numbers_action = self._toggle(view, "&Numbers", "N", self._numbers_toggled,
+                                           "Face, hinge (h) and cut-edge (e) numbers, as in the tables")
+        self.gap_lines_action = self._toggle(view, "&Gap lines", "G", self.view.set_gap_lines,
+                                             "Lines and lengths of the cut edges still open", checked=True)
+        self.legend_action = self._toggle(view, "&Legend", "L", self.view.set_legend,
+                                          "The key to the marks in the view's corner", checked=True)
         colours = view.addMenu("&Colour panels by")
         group = QtGui.QActionGroup(self)
         self.color_by_face = self._action(colours, "Face", lambda: self.apply_colors())
@@ -202,7 +241,7 @@ class MainWindow(FileHandling, Jobs, QtWidgets.QMainWindow):
         self.show_solids.setEnabled(False)
         view.addSeparator()
         dock = self.stackup_dock.toggleViewAction()
-        dock.setText("&Play and Backlash")
+        dock.setText("&Play and backlash")
         dock.setShortcut(QtGui.QKeySequence("Ctrl+B"))
         dock.setStatusTip("Closure gaps of sampled builds with hinge play and gear backlash")
         view.addAction(dock)
@@ -217,6 +256,10 @@ class MainWindow(FileHandling, Jobs, QtWidgets.QMainWindow):
         self._action(drive, "Flat (t = 0)", lambda: self.drive.set_t(0.0), "Home")
         self._action(drive, "Closed (t = 1)", lambda: self.drive.set_t(1.0), "End")
         self._action(drive, "Closed the other way (t = −1)", lambda: self.drive.set_t(-1.0), "Shift+End")
+        help_ = bar.addMenu("&Help")
+        self._action(help_, "&Guide to the app", self.open_docs, QtGui.QKeySequence.StandardKey.HelpContents,
+                     "The bundled guide (docs/app.md) in your browser or viewer")
+        self._action(help_, "&About foldsim", self.about)
         self._refresh_recent()
 
     # ------------------------------------------------------------------ files
@@ -266,7 +309,8 @@ class MainWindow(FileHandling, Jobs, QtWidgets.QMainWindow):
         files = [url.toLocalFile() for url in ev.mimeData().urls() if url.isLocalFile()]
         if files:
             ev.acceptProposedAction()
-            self.open_path(files[0])
+            if self.keep_or_discard("open"):
+                self.open_path(files[0])
 
     # ------------------------------------------------------------------ model
 
@@ -293,6 +337,12 @@ class MainWindow(FileHandling, Jobs, QtWidgets.QMainWindow):
         self.cancel_sweep()
         self.model = model
         mech = model.mech
+        if not self._numbers_chosen:
+            self.numbers_action.blockSignals(True)
+            self.numbers_action.setChecked(mech.n_faces < NUMBERS_UP_TO)
+            self.numbers_action.blockSignals(False)
+        self.view.set_numbers(self.numbers_action.isChecked())
+        self.picked_face = -1
         self.view.set_mechanism(mech, model.schedule, model.pan, face_colors=self._colors(model))
         self.apply_solids()
         if camera is not None:
@@ -311,12 +361,14 @@ class MainWindow(FileHandling, Jobs, QtWidgets.QMainWindow):
         self._select_edges(picked_edges)
         self._select_hinge_row(picked_hinge)
         self.intervals = []
+        self.swept, self.swept_whole = (0.0, 0.0), False
         self.drive.strip.set_intervals([], (0.0, 0.0))
         self.stackup_panel.set_model(mech)
         self._watch(model.source)
         self._update_title()
         self.set_t(self.drive.t)
         self._size_columns()
+        QtCore.QTimer.singleShot(0, self.share_side_height)
         if model.labels is None:
             self.start_report()
         self.start_sweep()
@@ -347,6 +399,8 @@ class MainWindow(FileHandling, Jobs, QtWidgets.QMainWindow):
         """Colour the panels per face or per part type, as chosen in the View menu."""
         if self.model is not None:
             self.view.set_face_colors(self._colors(self.model))
+            by_part = self.color_by_part.isChecked() and self.model.labels is not None
+            self.view.set_part_types(label_order(self.model.labels) if by_part else None)
 
     def _update_title(self):
         if self.model is None:
@@ -366,43 +420,19 @@ class MainWindow(FileHandling, Jobs, QtWidgets.QMainWindow):
         if self.drive.t != t:
             self.drive.set_t(t)
             return
+        # The view, the t field, the tables, the gap plot's cursor and the status
+        # bar all show this t in the same frame, during playback too.
         self.view.set_t(t)
-        # While playing, the side panels follow at a calmer rate than the 3D view
-        # (every panel repainted each frame costs more than the view itself); the
-        # trailing timer shows the last value when playback stops between updates.
-        if self.drive.is_playing() and self.side_clock.isValid() and self.side_clock.elapsed() < SIDE_PANEL_MS:
-            if not self.side_timer.isActive():
-                self.side_timer.start(SIDE_PANEL_MS)
-            return
         self._update_side()
 
     def _update_side(self):
         if self.model is None:
             return
         t = self.view.t
-        self.side_clock.start()
         self.hinge_model.set_now(np.degrees(fold_angles(self.model.schedule, np.array([t]))[0]))
         self.gap_model.set_now(self.view.gaps)
         self.gap_plot.set_t(t)
         self._update_status()
-
-    def _update_status(self):
-        if self.model is None:
-            return
-        mech, view = self.model.mech, self.view
-        parts = [f"{self.model.name()}: {mech.n_faces} panels, {mech.n_hinges} hinges",
-                 f"t = {view.t:.3f}"]
-        n = len(view.colliding)
-        parts.append(f"{n} colliding pair{'s' if n != 1 else ''}" if n else "no collision here")
-        open_ = view.open_edges()
-        if len(open_):
-            parts.append(f"widest gap {view.gaps[open_].max():.3g} {mech.units}")
-        else:
-            parts.append("every cut edge meets")
-        if self.sweep is None and self.intervals is not None:
-            parts.append(f"{len(self.intervals)} collision stretch(es) over −1..1" if self.intervals
-                         else "no collision over −1..1")
-        self.status.setText("   ·   ".join(parts))
 
     # -------------------------------------------------------------- selection
 
@@ -436,14 +466,18 @@ class MainWindow(FileHandling, Jobs, QtWidgets.QMainWindow):
         self.view.select_hinge(h)
         if h >= 0 and self.view.selected_face not in (-1, int(self.model.mech.child[h])):
             self.view.select_face(-1)
+            self.picked_face = -1
+            self._update_status()
 
     def _face_picked(self, face):
         """A click in the 3D view: select the panel and the hinge that carries it."""
         self.view.select_face(face)
+        self.picked_face = int(face)
         if face < 0:
             self._select_hinge_row(-1)
-            return
-        self._select_hinge_row(int(self.model.mech.face_hinge[face]))
+        else:
+            self._select_hinge_row(int(self.model.mech.face_hinge[face]))
+        self._update_status()
 
     def _edges_selected(self, *_):
         edges = self._selected_edges()
@@ -455,6 +489,9 @@ class MainWindow(FileHandling, Jobs, QtWidgets.QMainWindow):
     # ------------------------------------------------------------------ close
 
     def closeEvent(self, ev):
+        if self.ask_before_close and not self.keep_or_discard("quit"):
+            ev.ignore()
+            return
         self.drive.play(False)
         self.cancel_sweep()
         self.cancel_load()
@@ -483,5 +520,6 @@ def run(path=None, argv=None, built=None):
         window.statusBar().showMessage("Open a mechanism file (File → Open)")
     quit_after = os.environ.get("FOLDSIM_QUIT_AFTER_MS")
     if quit_after:
+        window.ask_before_close = False  # unattended: nobody to answer
         QtCore.QTimer.singleShot(int(quit_after), window.close)
     return app.exec()

@@ -14,7 +14,7 @@ from PySide6 import QtCore, QtWidgets
 
 from ...errors import FoldsimError
 from ...io.mechanism_json import save
-from ..panels.dialogs import ShapeDialog, busy_dialog
+from ..panels.dialogs import ShapeDialog, busy_dialog, in_dialog_terms
 from .model import Model, error_line
 from .sweep import CallTask
 
@@ -25,11 +25,64 @@ class FileHandling:
     """The main window's file commands (a mixin of `app.MainWindow`)."""
 
     def _refresh_recent(self):
-        self.recent_menu.clear()
-        for path in self.recent_files():
+        # Not QMenu.clear(): that deletes at once the action whose signal may be running now.
+        for action in self.recent_menu.actions():
+            self.recent_menu.removeAction(action)
+            action.deleteLater()
+        recent = self.recent_files()
+        for path in recent:
             action = self.recent_menu.addAction(path)
-            action.triggered.connect(lambda _=False, p=path: self.open_path(p))
-        self.recent_menu.setEnabled(bool(self.recent_files()))
+            action.triggered.connect(lambda _=False, p=path: self._open_recent(p))
+        self.recent_menu.addSeparator()
+        clear = self.recent_menu.addAction("Clear recent")
+        clear.setStatusTip("Forget the recently opened files")
+        clear.triggered.connect(self.clear_recent)
+        clear.setEnabled(bool(recent))
+        self.recent_menu.setEnabled(bool(recent))
+
+    def _open_recent(self, path):
+        if self.keep_or_discard("open"):
+            self.open_path(path)
+
+    def clear_recent(self):
+        """File ▸ Open recent ▸ Clear recent: forget the list."""
+        self.settings.setValue("recent", [])
+        self._refresh_recent()
+
+    # ----------------------------------------------------------- unsaved work
+
+    def unsaved(self):
+        """Whether the model on show exists only in memory (made from a shape, never saved)."""
+        return self.model is not None and self.model.path is None
+
+    def keep_or_discard(self, action):
+        """Before ``action`` replaces or closes an unsaved model, ask Save / Discard / Cancel.
+
+        Parameters
+        ----------
+        action : str
+            What is about to happen, in the words of the question ("quit", "open", "new").
+
+        Returns
+        -------
+        bool
+            True to go ahead: nothing unsaved, the model was saved, or the user
+            chose to discard it. False when the user cancelled (or the save did not
+            happen).
+        """
+        if not self.unsaved():
+            return True
+        buttons = QtWidgets.QMessageBox.StandardButton
+        words = {"quit": "before quitting", "open": "before opening another file",
+                 "new": "before making a new model"}
+        answer = QtWidgets.QMessageBox.question(
+            self, "foldsim",
+            f"{self.model.name()} is not saved. Save it {words.get(action, 'first')}?",
+            buttons.Save | buttons.Discard | buttons.Cancel, buttons.Save)
+        if answer == buttons.Save:
+            self.save_as()
+            return not self.unsaved()
+        return answer == buttons.Discard
 
     def recent_files(self):
         """Recently opened files, newest first."""
@@ -45,6 +98,8 @@ class FileHandling:
     # ------------------------------------------------------------------ files
 
     def open_dialog(self):
+        if not self.keep_or_discard("open"):
+            return
         start = str(self.model.folder()) if self.model else ""
         path, _ = QtWidgets.QFileDialog.getOpenFileName(
             self, "Open mechanism or mesh", start,
@@ -54,6 +109,8 @@ class FileHandling:
 
     def shape_dialog(self):
         """File ▸ New from shape…"""
+        if not self.keep_or_discard("new"):
+            return None
         box = ShapeDialog(self.model.folder() if self.model else "", self)
         box.accepted.connect(lambda box=box: self._shape_chosen(box))
         box.finished.connect(box.deleteLater)
@@ -67,9 +124,10 @@ class FileHandling:
         except FoldsimError as exc:
             self.show_error(error_line(exc))
             return
-        self.open_shape(recipe, remember=Path(recipe.shape) if box.use_mesh.isChecked() else None)
+        self.open_shape(recipe, remember=Path(recipe.shape) if box.use_mesh.isChecked() else None,
+                        terms=box.TERMS)
 
-    def open_shape(self, recipe, keep_view=False, remember=None, built=None):
+    def open_shape(self, recipe, keep_view=False, remember=None, built=None, terms=None):
         """Make a model from a shape as `foldsim new` does (in the background) and show it.
 
         Parameters
@@ -81,6 +139,9 @@ class FileHandling:
             A mesh file to add to the recent files.
         built : Mechanism, optional
             Already made from the recipe: shown at once.
+        terms : dict, optional
+            Flags of `foldsim new` and the dialog fields that set them, to word a
+            refusal in the dialog's terms (`panels.dialogs.in_dialog_terms`).
         """
         if built is not None:
             self._show_model(Model.from_shape(recipe, built), keep_view)
@@ -89,19 +150,20 @@ class FileHandling:
             return True
         name = Path(recipe.shape).name
         return self._load_in_background(lambda: Model.from_shape(recipe), f"Unfolding and gearing {name}…",
-                                        keep_view, remember)
+                                        keep_view, remember, terms)
 
     def loading(self):
         """Whether a model is being read or made in the background."""
         return self.load_task is not None
 
-    def _load_in_background(self, make, text, keep_view, remember):
+    def _load_in_background(self, make, text, keep_view, remember, terms=None):
         self.cancel_load()
         task = CallTask(lambda task: make())
         dialog = busy_dialog(self, text)
         dialog.canceled.connect(lambda task=task: self.cancel_load(task))
         task.signals.finished.connect(lambda model, task=task: self._loaded(task, model, keep_view, remember))
-        task.signals.failed.connect(lambda message, task=task: self._load_failed(task, message))
+        task.signals.failed.connect(lambda message, task=task: self._load_failed(
+            task, in_dialog_terms(message, terms) if terms else message))
         task.signals.cancelled.connect(lambda task=task: self._load_ended(task))
         self.load_task, self.load_dialog = task, dialog
         self.tool_pool.start(task)

@@ -7,19 +7,45 @@ drawn by `recorder` on the GUI thread (the view's GL context lives there) under 
 progress dialog.
 """
 
+import os
 from pathlib import Path
 
 from PySide6 import QtCore, QtWidgets
 
 from ...errors import FoldsimError
-from ..panels.dialogs import ClipDialog, ExportDialog, busy_dialog
+from ..panels.dialogs import ClipDialog, ExportDialog, busy_dialog, in_dialog_terms
 from ..record import recorder
 from .model import error_line, part_labels
 from .sweep import CallTask, ReportTask, SweepTask, export_file
 
 
+ASSETS = Path(__file__).resolve().parents[3] / "assets"
+"""The bundled demo models' folder: not where a user's exports should land."""
+
+
 class Jobs:
     """The main window's background and long-running work (a mixin of `app.MainWindow`)."""
+
+    def output_folder(self):
+        """Where exports, clips and screenshots are offered: the last folder used for one.
+
+        Before any, the model's folder, unless that is the bundled assets folder
+        or cannot be written to; then the user's home.
+        """
+        last = self.settings.value("output/folder", "")
+        if last and Path(last).is_dir():
+            return Path(last)
+        folder = self.model.folder()
+        try:
+            bundled = folder.resolve() == ASSETS.resolve()
+        except OSError:
+            bundled = True
+        if bundled or not os.access(folder, os.W_OK):
+            return Path.home()
+        return folder
+
+    def _used_folder(self, path):
+        self.settings.setValue("output/folder", str(Path(path).resolve().parent))
 
     # ---------------------------------------------------------------- exports
 
@@ -27,8 +53,9 @@ class Jobs:
         """File ▸ Export…"""
         if self.model is None:
             return None
-        start = self.model.folder() / f"{self.model.default_stem()}.glb"
+        start = self.output_folder() / f"{self.model.default_stem()}.glb"
         box = ExportDialog(str(start), t_now=self.view.t, units=self.model.mech.units, parent=self)
+        box.restore(self.settings, "export")
         box.accepted.connect(lambda box=box: self._export_chosen(box))
         box.finished.connect(box.deleteLater)
         self.dialog = box
@@ -36,21 +63,25 @@ class Jobs:
         return box
 
     def _export_chosen(self, box):
+        box.remember(self.settings, "export")
         try:
             options = box.options()
         except FoldsimError as exc:
             self.show_error(error_line(exc))
             return
-        self.export_to(box.target(), **options)
+        self._used_folder(box.target())
+        self.export_to(box.target(), terms=box.TERMS, **options)
 
     def exporting(self):
         return self.export_task is not None
 
-    def export_to(self, path, **options):
+    def export_to(self, path, terms=None, **options):
         """Export the model through `foldsim.export.export` in the background.
 
-        Parameters are those of `foldsim.export.export`. The result line goes to
-        the status bar; a refusal to a dialog.
+        Parameters are those of `foldsim.export.export`; ``terms`` maps the
+        flags a refusal names to the fields of the dialog that asked
+        (`panels.dialogs.in_dialog_terms`). The result line goes to the status
+        bar; a refusal to a dialog.
         """
         if self.model is None:
             return None
@@ -60,7 +91,8 @@ class Jobs:
         dialog = busy_dialog(self, f"Writing {path.name}…")
         dialog.canceled.connect(lambda task=task: self.cancel_export(task))
         task.signals.finished.connect(lambda line, task=task: self._export_ended(task, line))
-        task.signals.failed.connect(lambda message, task=task: self._export_ended(task, error=message))
+        task.signals.failed.connect(lambda message, task=task: self._export_ended(
+            task, error=in_dialog_terms(message, terms) if terms else message))
         task.signals.cancelled.connect(lambda task=task: self._export_ended(task))
         self.export_task, self.export_progress = task, dialog
         self.tool_pool.start(task)
@@ -98,15 +130,24 @@ class Jobs:
             return None
         suffix = ".png" if still else ".mp4"
         size = (self.view.width() * 2, self.view.height() * 2) if still else (1280, 720)
-        start = self.model.folder() / f"{self.model.default_stem()}{suffix}"
+        start = self.output_folder() / f"{self.model.default_stem()}{suffix}"
         box = ClipDialog(str(start), size=size, still=still, t_now=self.view.t, parent=self)
-        box.accepted.connect(lambda box=box: self.record(box.target(), **box.options()))
+        group = "screenshot" if still else "clip"
+        box.restore(self.settings, group)
+        if still:
+            box.t_to.setValue(self.view.t)  # a screenshot is of the t shown
+        box.accepted.connect(lambda box=box: self._clip_chosen(box, group))
         box.finished.connect(box.deleteLater)
         self.dialog = box
         box.open()
         return box
 
-    def record(self, path, **options):
+    def _clip_chosen(self, box, group):
+        box.remember(self.settings, group)
+        self._used_folder(box.target())
+        self.record(box.target(), terms=box.TERMS, **box.options())
+
+    def record(self, path, terms=None, **options):
         """Write a clip (MP4, GIF) or a still (PNG) of the view with `recorder`.
 
         The frames are drawn by the view's GL context, which lives on this
@@ -144,7 +185,7 @@ class Jobs:
         except recorder.Cancelled as exc:
             self.statusBar().showMessage(str(exc), 5000)
         except FoldsimError as exc:
-            self.show_error(error_line(exc))
+            self.show_error(error_line(in_dialog_terms(exc, terms) if terms else exc))
         finally:
             self.recording = False
             progress.cancel()
@@ -181,6 +222,8 @@ class Jobs:
         task.signals.cancelled.connect(lambda task=task: self._sweep_stopped(task))
         task.signals.failed.connect(lambda message, task=task: self._sweep_stopped(task, message))
         self.sweep = task
+        self.intervals = []
+        self.swept, self.swept_whole = (task.edges[0], task.edges[0]), False
         self.drive.show_progress((0, len(task.edges) - 1))
         self.pool.start(task)
 
@@ -190,6 +233,7 @@ class Jobs:
             self.sweep.cancel()
             self.drive.show_progress(None)
             self.sweep = None
+            self._update_status()
 
     def sweeping(self):
         return self.sweep is not None
@@ -198,17 +242,20 @@ class Jobs:
         if task is not self.sweep:
             return
         self.intervals = found
-        self.drive.strip.set_intervals(found, (task.edges[0], task.edges[done]))
+        self.swept = (task.edges[0], task.edges[done])
+        self.drive.strip.set_intervals(found, self.swept)
         # Scrubbing inside the settled stretch reads collisions from here (docs/app.md).
-        self.view.set_known_collisions(found, (task.edges[0], task.edges[done]))
+        self.view.set_known_collisions(found, self.swept)
         self.drive.show_progress((done, total))
+        self._update_status()
 
     def _sweep_done(self, task, found):
         if task is not self.sweep:
             return
         self.intervals = found
-        self.drive.strip.set_intervals(found, (task.edges[0], task.edges[-1]))
-        self.view.set_known_collisions(found, (task.edges[0], task.edges[-1]))
+        self.swept, self.swept_whole = (task.edges[0], task.edges[-1]), True
+        self.drive.strip.set_intervals(found, self.swept)
+        self.view.set_known_collisions(found, self.swept)
         self.drive.show_progress(None)
         self.sweep = None
         self._update_status()
@@ -217,5 +264,6 @@ class Jobs:
         if task is self.sweep:
             self.sweep = None
             self.drive.show_progress(None)
+            self._update_status()
         if message:
             self.statusBar().showMessage(error_line(message), 10000)

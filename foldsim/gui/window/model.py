@@ -72,12 +72,25 @@ def part_labels(part_types, n_faces):
     return labels if all(label is not None for label in labels) else None
 
 
-def label_colors(labels):
-    """Colours (F, 3) in [0, 1]: one palette colour per distinct label, in order of first use."""
+def label_order(labels):
+    """The distinct labels in order of first use, each with its colour (0-255 RGB) from `palette.PART_TYPES`.
+
+    Examples
+    --------
+    >>> label_order(["b", "a", "b"])
+    [('b', (119, 170, 221)), ('a', (238, 136, 102))]
+    """
     order = {}
     for label in labels:
         order.setdefault(label, len(order))
-    return np.array([palette.unit_rgb(palette.PANELS[order[label] % len(palette.PANELS)]) for label in labels])
+    n = len(palette.PART_TYPES)
+    return [(label, palette.PART_TYPES[k % n]) for label, k in order.items()]
+
+
+def label_colors(labels):
+    """Colours (F, 3) in [0, 1]: one palette colour per distinct label, in order of first use."""
+    colour = dict(label_order(labels))
+    return np.array([palette.unit_rgb(colour[label]) for label in labels])
 
 
 def file_stem(path):

@@ -22,6 +22,7 @@ from PySide6 import QtCore
 
 from ...analysis.collision import collision_intervals
 from ...errors import FoldsimError
+from ...io.mechanism_json import share_like_target
 from ...report import check
 from ...tolerances import DEFAULT
 
@@ -292,6 +293,7 @@ def export_file(mech, path, options, task=None):
             raise FoldsimError(str(exc).replace(tmp, str(path))) from None
         if task is not None:
             task.check()
+        share_like_target(tmp, path)
         os.replace(tmp, path)
     finally:
         if os.path.exists(tmp):
