@@ -261,8 +261,10 @@ def build_spec(mech, tol=DEFAULT):
     for h, deg in doc.stops.items():
         stops[h], given[h] = math.radians(deg), True
     spec = BuildSpec(thickness, doc.material, doc.axis, doc.gears, stops, given, doc.clearance, doc)
+    from .gears import gear_pairs
     from .prisms import panel_solids
 
     panel_solids(mech, spec, tol=tol)  # thickness the bevels cannot take fails here, on load
+    gear_pairs(mech, spec, tol=tol)  # so do gears the hinges cannot carry
     _CACHE[mech] = spec
     return spec

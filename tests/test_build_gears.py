@@ -1,0 +1,151 @@
+"""Gear bodies of the ``build`` object (foldsim.build.gears)."""
+
+import json
+import math
+
+import numpy as np
+import pytest
+
+from foldsim.build.gears import ISO54_FIRST, contact_ratio, gear_pairs, gear_solids, preferred_module
+from foldsim.build.spec import build_spec
+from foldsim.errors import ModelError
+from foldsim.io.mechanism_json import loads
+
+from helpers import cube_document, strip_document
+
+
+def strip_doc(gears, side=40.0, **build):
+    """Three squares in a row, hinges 0 and 1 closing at 90 degrees, one spur coupling."""
+    doc = strip_document()
+    doc["vertices"] = [[side * x for x in v] for v in doc["vertices"]]
+    doc["couplings"] = [{"hinges": [0, 1], "teeth": [24, 24]}]
+    doc["build"] = {"thickness": 2.0, "gears": gears, **build}
+    return doc
+
+
+def cube_doc(gears, side=40.0):
+    """The cube with its front and right sides geared on the bottom (a 90-degree bevel pair)."""
+    doc = cube_document()
+    doc["vertices"] = [[side * x for x in v] for v in doc["vertices"]]
+    doc["couplings"] = [{"hinges": [0, 1], "teeth": [20, 20]}]
+    doc["build"] = {"thickness": 2.0, "gears": gears}
+    return doc
+
+
+def _pairs(doc):
+    mech = loads(json.dumps(doc))
+    spec = build_spec(mech)
+    return mech, spec, gear_pairs(mech, spec)
+
+
+def _trimesh(tris):
+    trimesh = pytest.importorskip("trimesh")
+    mesh = trimesh.Trimesh(vertices=tris.reshape(-1, 3), faces=np.arange(len(tris) * 3).reshape(-1, 3))
+    mesh.merge_vertices()
+    return mesh
+
+
+def test_iso54_first_choice_modules():
+    # ISO 54:1996, first-choice series (from memory): 1, 1.25, 1.5, 2, 2.5, 3, 4, 5, 6, 8, 10, 12, 16, 20.
+    for m in (1, 1.25, 1.5, 2, 2.5, 3, 4, 5, 6, 8, 10, 12, 16, 20):
+        assert m in ISO54_FIRST
+    # Second-choice values (ISO 54, from memory) are not in the first series.
+    for m in (1.125, 1.375, 1.75, 2.25, 2.75, 3.5, 4.5, 5.5, 7, 9, 11, 14):
+        assert m not in ISO54_FIRST
+    assert preferred_module(1.8) == 1.5 and preferred_module(4.0) == 4.0
+    assert preferred_module(0.1, units="cm") == 0.1  # 1 mm
+
+
+def test_spur_pitch_diameters_are_module_times_teeth():
+    mech, spec, (pair,) = _pairs(strip_doc([{"coupling": 0}]))
+    assert pair.kind == "spur"
+    # Pitch diameter d = m z (any gear handbook); the external pair's centre
+    # distance is (d1 + d2) / 2, here the 40 mm between the hinge lines.
+    m = pair.module
+    np.testing.assert_allclose([2 * g.pitch_radius for g in pair.gears], [m * 24, m * 24], rtol=1e-12)
+    np.testing.assert_allclose(m * (24 + 24) / 2, 40.0, rtol=1e-12)
+
+
+def test_bevel_pitch_diameters_with_an_iso54_module():
+    mech, spec, (pair,) = _pairs(cube_doc([{"coupling": 0, "module": 1.25}]))
+    assert pair.kind == "bevel"
+    # d = m z at the outer end (Dudley, bevel gears); equal teeth on a 90-degree
+    # shaft angle give 45-degree pitch cones (standard bevel geometry, ISO 23509).
+    np.testing.assert_allclose([2 * g.pitch_radius for g in pair.gears], [1.25 * 20, 1.25 * 20], rtol=1e-12)
+    np.testing.assert_allclose(np.degrees(pair.cone_angles), [45.0, 45.0], atol=1e-9)
+    np.testing.assert_allclose(pair.cone_distance, 1.25 * 20 / (2 * math.sin(math.radians(45))), rtol=1e-12)
+
+
+def test_contact_ratio_formula():
+    # Two standard 20-degree gears, z = 20 and 20, m = 1, a = 20 mm: eps ~ 1.56
+    # (REFERENCES.md, from memory), written out here from the handbook formula
+    # eps = (sqrt(ra1^2 - rb1^2) + sqrt(ra2^2 - rb2^2) - a sin(alpha)) / (pi m cos(alpha)).
+    alpha = np.radians(20.0)
+    r, ra, rb = 10.0, 11.0, 10.0 * np.cos(alpha)
+    by_hand = (2 * np.sqrt(ra**2 - rb**2) - 20.0 * np.sin(alpha)) / (np.pi * np.cos(alpha))
+    np.testing.assert_allclose(contact_ratio(r, r, 1.0), by_hand, rtol=1e-12)
+    np.testing.assert_allclose(contact_ratio(r, r, 1.0), 1.56, atol=0.005)
+
+
+@pytest.mark.parametrize("sector", [90.0, 200.0, 360.0])
+def test_spur_solid_volume_matches_the_sector_cylinder(sector):
+    mech, spec, (pair,) = _pairs(strip_doc([{"coupling": 0, "sector_deg": sector, "face_width": 6.0}]))
+    solid = gear_solids(mech, spec, [pair])[0]
+    mesh = _trimesh(solid.triangles)
+    assert mesh.is_watertight and mesh.is_winding_consistent
+    r, w, span = pair.gears[0].pitch_radius, 6.0, np.radians(sector)
+    n = int(np.ceil(48 * span / (2 * np.pi)))
+    h = span / (2 * n)
+    # Sector of a cylinder: V = S r^2 w / 2 (elementary geometry); the mesh is the
+    # circumscribed polygon of n facets, whose area is the sector's times tan(h) / h.
+    np.testing.assert_allclose(mesh.volume, span * r**2 * w / 2 * np.tan(h) / h, rtol=1e-9)
+
+
+def test_bevel_solid_volume_matches_the_frustum():
+    mech, spec, (pair,) = _pairs(cube_doc([{"coupling": 0, "module": 1.0, "face_width": 4.0,
+                                            "sector_deg": 120.0}]))
+    solid = gear_solids(mech, spec, [pair])[0]
+    mesh = _trimesh(solid.triangles)
+    assert mesh.is_watertight and mesh.is_winding_consistent
+    R, b, d = pair.cone_distance, 4.0, np.radians(45.0)
+    r0, r1, height = (R - b) * np.sin(d), R * np.sin(d), b * np.cos(d)
+    span = np.radians(120.0)
+    n = int(np.ceil(48 * span / (2 * np.pi)))
+    h = span / (2 * n)
+    # Frustum: V = pi H (r0^2 + r0 r1 + r1^2) / 3, times S / 2pi for a sector
+    # (elementary geometry), times tan(h) / h for the circumscribed facets.
+    exact = span * height * (r0**2 + r0 * r1 + r1**2) / 6
+    np.testing.assert_allclose(mesh.volume, exact * np.tan(h) / h, rtol=1e-9)
+
+
+def test_gear_solids_ride_on_their_panels():
+    from foldsim.build.gears import posed_solid_meshes
+    from foldsim.gearing import fold_schedule
+
+    mech, spec, (pair,) = _pairs(strip_doc([{"coupling": 0, "sector_deg": 360}]))
+    t = np.linspace(0, 1, 5)
+    posed, owner, solids = posed_solid_meshes(mech, spec, fold_schedule(mech), t)
+    assert posed.shape == (5, len(owner), 3, 3)
+    # Each gear turns about its own hinge line: its axis points stay on that line.
+    g0 = pair.gears[0]
+    index = [k for k, s in enumerate(solids) if s.kind == "gear"][0]
+    pts = posed[:, owner == index].reshape(5, -1, 3)
+    a0, a1 = mech.axes[g0.hinge]
+    assert solids[index].face == g0.face
+    d = (a1 - a0) / np.linalg.norm(a1 - a0)
+    # The gear on hinge 0 is carried by the root face: it does not move.
+    np.testing.assert_allclose(pts, pts[:1].repeat(5, axis=0), atol=1e-9)
+    radial = pts[0] - a0 - ((pts[0] - a0) @ d)[:, None] * d
+    assert np.linalg.norm(radial, axis=1).max() <= g0.pitch_radius / np.cos(np.pi / 48) + 1e-9
+
+
+@pytest.mark.parametrize("gears, message", [
+    ([{"coupling": 0, "kind": "bevel"}], "build.gears[0].kind: hinges 0 and 1 make a spur pair, not bevel"),
+    ([{"coupling": 0, "module": 2.0}], "build.gears[0].module: hinges 0 and 1 lie 40 apart"),
+    ([{"coupling": 0, "teeth": [20, 30]}], "build.gears[0].teeth: 20:30 make ratio 0.666667"),
+    ([{"coupling": 0, "face_width": 50}], "build.gears[0].face_width: the band"),
+])
+def test_bad_gear_entries_name_the_field(gears, message):
+    with pytest.raises(ModelError) as err:
+        loads(json.dumps(strip_doc(gears)), source="strip.mech.json")
+    assert message in str(err.value) and "\n" not in str(err.value)
