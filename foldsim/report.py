@@ -113,7 +113,9 @@ def check(mech, t_from=0.0, t_to=1.0, gap_tol=None, clearance=0.0, sheet=False, 
 
 
 def _build_part(mech, schedule, t_from, t_to, problems, tol):
-    """The ``build`` and ``stops`` keys, for a file with a ``build`` object (docs/build.md)."""
+    """The ``build``, ``stops`` and ``sector_coverage`` keys, for a file with a ``build`` object (docs/build.md)."""
+    from .build.gears import gear_pairs
+    from .build.sectors import sector_coverage
     from .build.spec import build_spec
     from .build.stops import stop_overruns
 
@@ -126,4 +128,12 @@ def _build_part(mech, schedule, t_from, t_to, problems, tol):
         worst = max(passed, key=lambda row: row["overrun_deg"])
         problems.append(f"{len(passed)} hinge(s) pass their stop (hinge {worst['hinge']} by "
                         f"{worst['overrun_deg']:.4g}° from t = {worst['at_t']:.4g})")
-    return {"build": spec.report(), "stops": stops}
+    pairs = gear_pairs(mech, spec, tol)
+    coverage = sector_coverage(mech, spec, schedule, t_from, t_to, pairs=pairs, tol=tol)
+    for row in coverage:
+        if row["runs_out_at_t"] is not None:
+            problems.append(f"coupling {row['coupling']}: a gear sector runs out of teeth from t = "
+                            f"{row['runs_out_at_t']:.4g} (contact ratio down to {row['min_contact_ratio']:.3g})")
+    report = spec.report()
+    report["gear_bodies"] = [p.report() for p in pairs]
+    return {"build": report, "stops": stops, "sector_coverage": coverage}

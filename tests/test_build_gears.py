@@ -149,3 +149,79 @@ def test_bad_gear_entries_name_the_field(gears, message):
     with pytest.raises(ModelError) as err:
         loads(json.dumps(strip_doc(gears)), source="strip.mech.json")
     assert message in str(err.value) and "\n" not in str(err.value)
+
+
+def _needed_sector_deg(z, eps):
+    """90 degrees of turn plus the arc of action, eps * 360 / z (REFERENCES.md: sector >= travel + eps * pitch angle)."""
+    return 90.0 + eps * 360.0 / z
+
+
+def _eps_24():
+    # Handbook formula written out for z = 24, 24 on a 40 mm centre distance
+    # (Dudley; ISO 21771): m = 40 * 2 / 48, ra = r + m, rb = r cos 20 deg.
+    m = 80.0 / 48.0
+    r = 20.0
+    ra, rb, alpha = r + m, r * np.cos(np.radians(20)), np.radians(20)
+    return (2 * np.sqrt(ra**2 - rb**2) - 40.0 * np.sin(alpha)) / (np.pi * m * np.cos(alpha))
+
+
+def test_sector_five_degrees_short_runs_out_where_computed_by_hand(tmp_path, capsys):
+    from foldsim.cli import main
+
+    eps = _eps_24()
+    short = _needed_sector_deg(24, eps) - 5.0
+    doc = strip_doc([{"coupling": 0, "sector_deg": [short, 360]}])
+    path = tmp_path / "strip.mech.json"
+    path.write_text(json.dumps(doc))
+    assert main(["check", str(path), "--json"]) == 1
+    report = json.loads(capsys.readouterr().out)
+    (row,) = report["sector_coverage"]
+    np.testing.assert_allclose(row["contact_ratio_full"], eps, rtol=1e-12)
+    # Hand case: the gear turns 90 degrees over t in [0, 1] and its sector is 5
+    # degrees short, so the arc of action reaches the sector's end 5 degrees
+    # before closing: t = 85 / 90. At t = 1, 5 degrees of the eps * 15 degree arc
+    # are bare: eps_eff = eps - 5 / 15.
+    np.testing.assert_allclose(row["runs_out_at_t"], 85.0 / 90.0, atol=1e-12)
+    np.testing.assert_allclose(row["min_contact_ratio"], eps - 5.0 / 15.0, atol=1e-12)
+    assert any("runs out of teeth" in p for p in report["problems"])
+    # The needed sector exactly: in mesh to the end.
+    doc["build"]["gears"][0]["sector_deg"] = [short + 5.0, 360]
+    path.write_text(json.dumps(doc))
+    assert main(["check", str(path), "--json"]) == 0
+    (row,) = json.loads(capsys.readouterr().out)["sector_coverage"]
+    assert row["runs_out_at_t"] is None
+    np.testing.assert_allclose(row["min_contact_ratio"], eps, rtol=1e-12)
+
+
+def test_sector_coverage_counts_the_play():
+    from foldsim.build.sectors import sector_coverage
+
+    eps = _eps_24()
+    doc = strip_doc([{"coupling": 0, "sector_deg": [_needed_sector_deg(24, eps), 360]}])
+    doc["tolerances"] = {"hinge": {"play_deg": 1.0}}  # total range 1 degree: +-0.5 (docs/stackup.md)
+    mech = loads(json.dumps(doc))
+    (row,) = sector_coverage(mech, build_spec(mech))
+    # Hand case: the sector holds the nominal travel exactly; 0.5 degree of play at
+    # each end eats 1 degree of it, so the mesh thins from t = 89 / 90.
+    np.testing.assert_allclose(row["runs_out_at_t"], 89.0 / 90.0, atol=1e-12)
+
+
+def test_default_sectors_stay_in_mesh_on_every_kind():
+    from foldsim.build.sectors import effective_contact_ratio, sector_coverage
+    from foldsim.gearing import fold_schedule
+
+    doc = json.load(open("assets/lantern.mech.json"))
+    doc["build"] = {"thickness": 2.0, "gears": [{"coupling": k} for k in range(6)]}
+    mech = loads(json.dumps(doc))
+    spec = build_spec(mech)
+    pairs = gear_pairs(mech, spec)
+    assert sorted({p.kind for p in pairs}) == ["bevel", "remote", "spur"]
+    rates = fold_schedule(mech).rates
+    for p, row in zip(pairs, sector_coverage(mech, spec)):
+        assert row["runs_out_at_t"] is None
+        # Rolling without slip: both pitch points move the same arc length.
+        g0, g1 = p.gears
+        np.testing.assert_allclose(g0.pitch_radius * g0.sign * rates[g0.hinge],
+                                   p.kappa * g1.pitch_radius * g1.sign * rates[g1.hinge], rtol=1e-9)
+        dense = effective_contact_ratio(p, rates, np.linspace(0, 1, 401))
+        np.testing.assert_allclose(dense, p.contact_ratio, rtol=1e-12)
