@@ -113,11 +113,12 @@ def check(mech, t_from=0.0, t_to=1.0, gap_tol=None, clearance=0.0, sheet=False, 
 
 
 def _build_part(mech, schedule, t_from, t_to, problems, tol):
-    """The ``build``, ``stops`` and ``sector_coverage`` keys, for a file with a ``build`` object (docs/build.md)."""
+    """The ``build``, ``stops``, ``sector_coverage`` and ``gear_clearance`` keys, for a file with a ``build`` object (docs/build.md)."""
     from .build.gears import gear_pairs
     from .build.sectors import sector_coverage
     from .build.spec import build_spec
     from .build.stops import stop_overruns
+    from .build.sweep import RESOLUTION, gear_clearance
 
     spec = build_spec(mech, tol=tol)
     if spec is None:
@@ -134,6 +135,14 @@ def _build_part(mech, schedule, t_from, t_to, problems, tol):
         if row["runs_out_at_t"] is not None:
             problems.append(f"coupling {row['coupling']}: a gear sector runs out of teeth from t = "
                             f"{row['runs_out_at_t']:.4g} (contact ratio down to {row['min_contact_ratio']:.3g})")
+    clearance = gear_clearance(mech, spec, schedule, t_from, t_to, pairs=pairs, tol=tol)
+    floor = RESOLUTION * mech.size
+    for row in clearance:
+        d = row["min_clearance"]
+        if d is not None and (d < spec.clearance or d <= floor):
+            problems.append(f"coupling {row['coupling']}: its {row['body'].split(' ', 2)[2]} comes within "
+                            f"{d:.4g} {mech.units} of {row['with']} at t = {row['at_t']:.4g} "
+                            f"(clearance {spec.clearance:g})")
     report = spec.report()
     report["gear_bodies"] = [p.report() for p in pairs]
-    return {"build": report, "stops": stops, "sector_coverage": coverage}
+    return {"build": report, "stops": stops, "sector_coverage": coverage, "gear_clearance": clearance}
