@@ -148,3 +148,22 @@ def test_flap_swept_past_its_stop(tmp_path, capsys):
     report = json.loads(capsys.readouterr().out)
     assert report["stops"][0]["overrun_deg"] == 0.0 and report["stops"][0]["at_t"] is None
     assert report["build"]["thickness"] == [2.0, 2.0]
+
+
+def test_outer_closure_in_the_check_report(tmp_path, capsys):
+    # Material inside a closed cube: the file's polygons are the outer surface, so
+    # its outer cut edges meet; material outside: the square outer edges of two
+    # panels at a right angle stand T * sqrt(2) apart (elementary geometry).
+    from foldsim.cli import main
+
+    path = tmp_path / "box.mech.json"
+    path.write_text(json.dumps(_cube({"thickness": 1})))
+    assert main(["check", str(path), "--json"]) == 0
+    report = json.loads(capsys.readouterr().out)
+    assert report["outer_closure"]["meets"] and report["outer_closure"]["max_gap"] < 1e-9
+    path.write_text(json.dumps(_cube({"thickness": 1, "material": "front"})))
+    assert main(["check", str(path), "--json"]) == 1
+    report = json.loads(capsys.readouterr().out)
+    np.testing.assert_allclose(report["outer_closure"]["max_gap"], np.sqrt(2.0), atol=1e-9)
+    assert report["closure"]["meets"]  # the thin-panel closure is unchanged
+    assert any("outer surface" in p for p in report["problems"])
