@@ -167,3 +167,44 @@ def test_outer_closure_in_the_check_report(tmp_path, capsys):
     np.testing.assert_allclose(report["outer_closure"]["max_gap"], np.sqrt(2.0), atol=1e-9)
     assert report["closure"]["meets"]  # the thin-panel closure is unchanged
     assert any("outer surface" in p for p in report["problems"])
+
+
+def _flap(stop_deg, play_deg=2.0):
+    return {"schema": "foldsim.mechanism/1", "state": "flat",
+            "vertices": [[0, 0, 0], [40, 0, 0], [40, 40, 0], [0, 40, 0], [80, 0, 0], [80, 40, 0]],
+            "faces": [[0, 1, 2, 3], [1, 4, 5, 2]], "hinges": [{"faces": [0, 1], "closed_angle_deg": 90}],
+            "tolerances": {"hinge": {"play_deg": play_deg}},
+            "build": {"thickness": 2, "stops": [{"hinge": 0, "stop_deg": stop_deg}]}}
+
+
+def test_stackup_play_stops_at_the_stop():
+    # Hand case: a flap held against its stop at 90 degrees with +-1 degree of
+    # play can only fall back: its angle is 90 + min(e, 0) for every draw e.
+    from dataclasses import replace
+
+    from foldsim.kinematics import face_poses
+    from foldsim.stackup import play_spec
+    from foldsim.stackup.sampling import draw_errors, perturbed_poses
+
+    mech = loads(json.dumps(_flap(90.0)))
+    spec = replace(play_spec(mech), stops=build_spec(mech).stops)
+    errors = draw_errors(spec, 200, np.random.default_rng(1))
+    theta = np.radians([[90.0]])
+    held = perturbed_poses(mech, theta, errors, stops=spec.stops)[:, 0]
+    e = errors.hinge[:, 0, 0]
+    assert (e > 0).any() and (e < 0).any()
+    expected = face_poses(mech, (np.radians(90.0) + np.minimum(e, 0.0))[:, None])
+    np.testing.assert_allclose(held, expected, atol=1e-12)
+    # Short of the stop by more than the play, both directions stay open.
+    free = perturbed_poses(mech, np.radians([[80.0]]), errors, stops=spec.stops)[:, 0]
+    np.testing.assert_allclose(free, face_poses(mech, (np.radians(80.0) + e)[:, None]), atol=1e-12)
+
+
+def test_stackup_command_reads_the_stops(tmp_path, capsys):
+    from foldsim.cli import main
+
+    path = tmp_path / "flap.mech.json"
+    path.write_text(json.dumps(_flap(90.0)))
+    assert main(["stackup", str(path), "--json", "--samples", "200"]) == 0
+    report = json.loads(capsys.readouterr().out)
+    np.testing.assert_allclose(report["stops_deg"], [90.0], atol=1e-12)

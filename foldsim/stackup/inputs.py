@@ -309,11 +309,16 @@ class PlaySpec:
         Half-range of the angular backlash at the driven gear of each coupling, rad.
     process : str or None
         Preset the values started from.
+    stops : (H,) float or None
+        Stop angle of every hinge (rad, on the side its closing angle lies; the
+        file's ``build.stops``): sampled play never takes a hinge past its stop,
+        so a hinge held against it takes play in one direction only.
     """
 
     hinge: np.ndarray
     mesh: np.ndarray
     process: object = None
+    stops: object = None
 
     @classmethod
     def zeros(cls, mech):
