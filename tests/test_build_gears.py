@@ -305,3 +305,38 @@ def test_allowed_contacts_are_the_mate_and_the_carrier():
     assert not any("panel 0" in p for p in tested)
     expected = {tuple(sorted((g, f"panel {f}"))) for g, own in zip(gears, (1, 2)) for f in range(1, 6) if f != own}
     assert tested == expected
+
+
+def test_sizing_picks_the_largest_cone_pair_that_keeps_its_clearance():
+    from foldsim.build.sizing import size_gears
+    from foldsim.build.sweep import gear_clearance
+
+    mech = loads(json.dumps(cube_doc([])))
+    build, (row,) = size_gears(mech, 2.0, 1.0, clearance=0.5)
+    assert row["kind"] == "bevel" and row["passes"] and row["limited_by"].startswith("panel")
+    z = row["teeth"][0]
+
+    def nearest(teeth):
+        doc = cube_doc([{"coupling": 0, "module": 1.0, "teeth": [teeth, teeth]}])
+        m = loads(json.dumps(doc))
+        return gear_clearance(m, build_spec(m))[0]
+
+    # The chosen size keeps the clearance over the whole motion, one tooth more does not
+    # (checked with the check's own, finer sweep).
+    assert nearest(z)["min_clearance"] >= 0.5 - 5e-3 * mech.size
+    bigger = nearest(z + 1)
+    assert bigger["min_clearance"] < 0.5 + 5e-3 * mech.size
+    assert build["gears"] == [{"coupling": 0, "module": 1.0, "teeth": [z, z]}]
+
+
+def test_new_writes_a_build_object(tmp_path, capsys):
+    from foldsim.cli import main
+
+    out = tmp_path / "box.mech.json"
+    assert main(["new", "cube", "--size", "40", "-o", str(out), "--gears", "none", "--thickness", "1.5",
+                 "--json"]) == 0
+    report = json.loads(capsys.readouterr().out)
+    assert report["build"] == {"thickness": 1.5, "clearance": 0.0} and report["gear_sizing"] == []
+    assert json.loads(out.read_text())["build"]["thickness"] == 1.5
+    assert main(["new", "cube", "-o", str(tmp_path / "x.mech.json"), "--module", "1"]) == 2
+    assert "--module: sizes gears on thick panels; give --thickness too" in capsys.readouterr().err

@@ -13,12 +13,14 @@ Kinds (docs/build.md, "Gear bodies"):
   pitch radii ``r_i + r_j = a`` and ``r_i / r_j = z_i / z_j``; pitch diameter
   ``d = m z`` (any gear handbook, e.g. Dudley's Handbook of Practical Gear Design).
   The solid is a sector of the pitch cylinder, ``face_width`` long, its band along
-  the hinges starting ``corner_distance`` (default 0) from where both hinge edges
-  begin to overlap.
+  the hinges starting ``corner_distance`` from where both hinge edges begin to
+  overlap (by default the band is centred on their common length, clear of the
+  corners where cone pairs sit).
 - ``bevel``: the hinge lines meet at a corner of the carrier, the pitch cones'
   apex; cone angles from `foldsim.layout.bevel_cones` (standard straight bevel
   geometry, ISO 23509). The solid is a sector of the pitch cone's frustum between
-  the cone distances ``R - face_width`` and ``R``.
+  the cone distances ``R - face_width`` and ``R``; it must end within its hinge
+  edge.
 - ``remote``: the lines cross off the panel; the same cones sit at that apex, each
   carried by a rod along its hinge's line to a hollow barrel at the hinge edge's
   nearer end. The solid is the cone frustum and the rod.
@@ -306,7 +308,7 @@ def gear_pairs(mech, spec, tol=DEFAULT):
             hi = min(max((p - ends[0][0]) @ d for p in e) for e in ends)
             common = hi - lo
             width = doc.face_width if doc.face_width is not None else min(10.0 * m, 0.25 * common)
-            start = doc.corner_distance or 0.0
+            start = doc.corner_distance if doc.corner_distance is not None else (common - width) / 2.0
             if start + width > common * (1 + 1e-9):
                 raise ModelError(f"{field}.face_width: the band ({start:.6g} + {width:.6g}) runs past the "
                                  f"hinges' common length {common:.6g}")
@@ -349,6 +351,11 @@ def gear_pairs(mech, spec, tol=DEFAULT):
             if not width < R:
                 raise ModelError(f"{field}.face_width: {width:.6g} must be shorter than the cone distance {R:.6g}")
             r = (R * math.sin(cones.delta1), R * math.sin(cones.delta2))
+            if kind == "bevel":
+                for h, (p, q), delta in zip((i, j), ends, cone_angles):
+                    if R * math.cos(delta) > np.linalg.norm(p - q) * (1 + 1e-9):
+                        raise ModelError(f"{field}: the gear on hinge {h} reaches {R * math.cos(delta):.6g} along "
+                                         f"its hinge, past the edge's length {np.linalg.norm(p - q):.6g}")
             origins = [apex, apex]
             toward = []
             x_ranges, r_ranges, rods = [], [], []

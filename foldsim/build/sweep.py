@@ -188,7 +188,8 @@ def _winding_batch(points, tris):
     return (2.0 * np.arctan2(det, den)).sum(axis=1) / (4.0 * np.pi)
 
 
-def gear_clearance(mech, spec, schedule=None, t_from=0.0, t_to=1.0, pairs=None, tol=DEFAULT):
+def gear_clearance(mech, spec, schedule=None, t_from=0.0, t_to=1.0, pairs=None, only=None,
+                   resolution=RESOLUTION, tol=DEFAULT):
     """Least distance of every coupling's gear bodies to what they must not touch (the ``gear_clearance`` key).
 
     Parameters
@@ -198,6 +199,10 @@ def gear_clearance(mech, spec, schedule=None, t_from=0.0, t_to=1.0, pairs=None, 
     schedule : Schedule, optional
     t_from, t_to : float
     pairs : list of GearPair, optional
+    only : list of int, optional
+        Test only the bodies of these couplings (and report only them).
+    resolution : float
+        Distance resolution relative to the model's size (module docstring).
 
     Returns
     -------
@@ -211,15 +216,18 @@ def gear_clearance(mech, spec, schedule=None, t_from=0.0, t_to=1.0, pairs=None, 
     solids = panel_solids(mech, spec, tol=tol) + gear_solids(mech, spec, pairs, tip=True, tol=tol)
     carrier = {p.coupling: p.carrier for p in pairs}
     tested = body_pairs(solids, carrier)
+    if only is not None:
+        mask = [any(solids[i].kind != "panel" and solids[i].coupling in only for i in pair) for pair in tested]
+        tested = tested[np.array(mask, bool).reshape(-1)]
     rows = {p.coupling: {"coupling": p.coupling, "min_clearance": None, "at_t": None, "body": None, "with": None}
-            for p in pairs}
+            for p in pairs if only is None or p.coupling in only}
     if not len(tested) or t_from == t_to:
         return list(rows.values())
     profile = body_speed_profile(mech, schedule.rates, solids)
     faces = np.array([s.face for s in solids])
     depth = common_depth(mech, faces[tested])
     rate = profile[tested[:, 0], depth] + profile[tested[:, 1], depth]
-    eps = RESOLUTION * mech.size
+    eps = resolution * mech.size
     lo_t, hi_t = sorted((float(t_from), float(t_to)))
     shortest = tol.t_resolution * 1e-3
     grid = np.linspace(lo_t, hi_t, INITIAL_STEPS + 1)
@@ -261,7 +269,9 @@ def gear_clearance(mech, spec, schedule=None, t_from=0.0, t_to=1.0, pairs=None, 
         for s, other in ((a, b), (b, a)):
             if s.kind == "panel":
                 continue
-            row = rows[s.coupling]
+            row = rows.get(s.coupling)
+            if row is None:
+                continue
             if row["min_clearance"] is None or lows[k] < row["min_clearance"]:
                 row.update(min_clearance=float(lows[k]), at_t=float(ts[k]), body=s.label,
                            **{"with": other.label})

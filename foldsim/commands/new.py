@@ -31,6 +31,13 @@ def register(sub):
                           "and spur pairs only; none: no gears (ideal schedule)")
     new.add_argument("--teeth", default=None, metavar="MIN:MAX",
                      help="give every gear pair integer teeth in this range")
+    new.add_argument("--thickness", type=float, default=None, metavar="LEN",
+                     help="panel thickness: write a build object (thick panels, docs/build.md)")
+    new.add_argument("--module", type=float, default=None, metavar="M",
+                     help="with --thickness: gear module; sizes every cone pair as large as the motion allows")
+    new.add_argument("--gear-clearance", type=float, default=0.0, metavar="LEN",
+                     help="with --module: least distance a gear body keeps from what it must not touch "
+                          "(default 0)")
     new.add_argument("--json", action="store_true", help="print the report as one JSON document")
     new.set_defaults(run=run)
 
@@ -69,6 +76,13 @@ def _format(report):
                          f"{r['ratio']:<9.6f}  {teeth:<7}  {error:<9}  {gap:<9}  {geometry}")
     lines.append(f"closure gap at t = 1: {report['closure_gap']:.3g} {units}")
     lines.append(f"part types: {report['part_type_count']}")
+    if "gear_sizing" in report:
+        lines.append(f"thick panels: {report['build']['thickness']:g} {units}; gears sized "
+                     f"(clearance {report['build']['clearance']:g} {units}):")
+        for r in report["gear_sizing"]:
+            clear = "-" if r["min_clearance"] is None else f"{r['min_clearance']:.3g} {units}"
+            lines.append(f" coupling {r['coupling']} {r['kind']}: teeth {r['teeth'][0]}:{r['teeth'][1]}, "
+                         f"clearance {clear}{'' if r['passes'] else ' (too near)'}, limited by {r['limited_by']}")
     return "\n".join(lines)
 
 
