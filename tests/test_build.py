@@ -208,3 +208,31 @@ def test_stackup_command_reads_the_stops(tmp_path, capsys):
     assert main(["stackup", str(path), "--json", "--samples", "200"]) == 0
     report = json.loads(capsys.readouterr().out)
     np.testing.assert_allclose(report["stops_deg"], [90.0], atol=1e-12)
+
+
+def test_lantern_build_demo_passes_check(capsys):
+    # The demo of docs/build.md: the lantern in 1.5 mm panels with three bevel pairs.
+    from pathlib import Path
+
+    from foldsim.cli import main
+
+    path = Path(__file__).resolve().parent.parent / "assets" / "lantern-build.mech.json"
+    assert main(["check", str(path), "--json"]) == 0
+    report = json.loads(capsys.readouterr().out)
+    assert report["ok"] and report["collisions"] == []
+    bodies = report["build"]["gear_bodies"]
+    assert [b["kind"] for b in bodies] == ["bevel"] * 3
+    for body in bodies:
+        # d = m z (any gear handbook) with the ISO 54 module 0.5
+        np.testing.assert_allclose(body["pitch_diameters"], [0.5 * z for z in body["teeth"]], rtol=1e-12)
+        # side to base closes at 90 degrees, side to side at 60 (hexagonal prism,
+        # REFERENCES.md: (n - 2) 180 / n = 120 dihedral), so teeth 24:36 make the
+        # 60 / 90 ratio and the shaft angle is the carrier's 90-degree corner:
+        # tan(delta1) = z1 / z2 (ISO 23509, memory).
+        np.testing.assert_allclose(body["cone_angles_deg"][0], np.degrees(np.arctan(24 / 36)), atol=1e-9)
+    for row in report["gear_clearance"]:
+        assert row["min_clearance"] >= report["build"]["clearance"]
+    for row in report["sector_coverage"]:
+        assert row["runs_out_at_t"] is None and row["min_contact_ratio"] >= 1.2  # 1.2: common-practice floor
+    assert all(row["overrun_deg"] == 0 for row in report["stops"])
+    assert report["outer_closure"]["meets"]

@@ -196,9 +196,13 @@ def gear_clearance(mech, spec, schedule=None, t_from=0.0, t_to=1.0, pairs=None, 
     ----------
     mech : Mechanism
     spec : BuildSpec
+        With ``clearance`` not used here (the report compares against it).
     schedule : Schedule, optional
+        Default: the mechanism's own.
     t_from, t_to : float
+        The swept range.
     pairs : list of GearPair, optional
+        From `gear_pairs`.
     only : list of int, optional
         Test only the bodies of these couplings (and report only them).
     resolution : float

@@ -13,7 +13,7 @@ import numpy as np
 
 from ..errors import ModelError
 from ..limits import DEFAULT_SAMPLES, DEFAULT_TIMES  # noqa: F401  (part of this module's interface)
-from ..limits import QUOTE_CHARS, as_float, quote
+from ..limits import QUOTE_CHARS, as_float, quote, unknown_key
 
 
 def _show(value, width=QUOTE_CHARS):
@@ -171,11 +171,9 @@ def _pair(value, field):
 
 
 def _object(value, field, allowed):
-    if not isinstance(value, dict):
-        raise ModelError(f"{field}: must be an object")
-    unknown = sorted(set(value) - allowed)
-    if unknown:
-        raise ModelError(f"{field}.{quote(unknown[0], 30)[1:-1]}: unknown key (known: {', '.join(sorted(allowed))})")
+    key = unknown_key(value, field, allowed)
+    if key is not None:
+        raise ModelError(f"{field}.{quote(key, 30)[1:-1]}: unknown key (known: {', '.join(sorted(allowed))})")
     return value
 
 
