@@ -340,3 +340,61 @@ def test_new_writes_a_build_object(tmp_path, capsys):
     assert json.loads(out.read_text())["build"]["thickness"] == 1.5
     assert main(["new", "cube", "-o", str(tmp_path / "x.mech.json"), "--module", "1"]) == 2
     assert "--module: sizes gears on thick panels; give --thickness too" in capsys.readouterr().err
+
+
+def _write(tmp_path, doc, name="m.mech.json"):
+    path = tmp_path / name
+    path.write_text(json.dumps(doc))
+    return path
+
+
+def test_posed_stl_carries_the_thick_panels_and_gears(tmp_path):
+    trimesh = pytest.importorskip("trimesh")
+    from scipy.spatial import ConvexHull, HalfspaceIntersection
+
+    from foldsim.cli import main
+
+    doc = cube_document()
+    doc["vertices"] = [[10.0 * x for x in v] for v in doc["vertices"]]
+    doc["build"] = {"thickness": 1.0}
+    src = _write(tmp_path, doc)
+    assert main(["export", str(src), "-o", str(tmp_path / "box.stl")]) == 0
+    mesh = trimesh.load(tmp_path / "box.stl")
+    # The closed thick cube: outer cube minus the polyhedron one thickness inside
+    # every face (scipy half-space intersection), as in the prism volume test.
+    planes = [[0, 0, -1, 1.0], [0, 0, 1, -10 + 1.0], [-1, 0, 0, 1.0], [1, 0, 0, -10 + 1.0],
+              [0, -1, 0, 1.0], [0, 1, 0, -10 + 1.0]]
+    inner = HalfspaceIntersection(np.array(planes, float), np.array([5.0, 5, 5])).intersections
+    np.testing.assert_allclose(abs(mesh.volume), 1000.0 - ConvexHull(inner).volume, rtol=1e-9)
+
+    gears = cube_doc([{"coupling": 0, "module": 1.0}])
+    src = _write(tmp_path, gears, "geared.mech.json")
+    assert main(["export", str(src), "-o", str(tmp_path / "geared.obj")]) == 0
+    text = (tmp_path / "geared.obj").read_text()
+    assert "o coupling 0 gear on hinge 0" in text and "o coupling 0 gear on hinge 1" in text
+    assert "o panel 5" in text
+
+
+def test_gltf_and_svg_carry_the_build(tmp_path):
+    pygltflib = pytest.importorskip("pygltflib")
+    import re
+
+    from foldsim.cli import main
+
+    doc = cube_doc([{"coupling": 0, "module": 1.0}], side=10.0)
+    doc["build"]["gears"][0]["face_width"] = 2.0
+    doc["build"]["thickness"] = 1.0
+    src = _write(tmp_path, doc)
+    assert main(["export", str(src), "-o", str(tmp_path / "box.glb")]) == 0
+    gltf = pygltflib.GLTF2().load(str(tmp_path / "box.glb"))
+    assert [m.name for m in gltf.materials][-1] == "gear body"
+    gear_prims = [p for m in gltf.meshes for p in m.primitives if p.material == 2]
+    assert len(gltf.meshes) == 6 and len(gear_prims) == 2  # the gears ride on panels 1 and 2
+    assert main(["export", str(src), "-o", str(tmp_path / "box.svg")]) == 0
+    svg = (tmp_path / "box.svg").read_text()
+    assert svg.count('class="bevel"') == 6
+    # Tapered panels (Tachi 2011; Lang et al. 2018): on a cube every edge closes at
+    # 90 degrees, so a 10 mm panel 1 mm thick has an 8 mm far face (45-degree mitre).
+    d = re.search(r'id="bevel-0"[^>]* d="([^"]+)"', svg).group(1)
+    pts = np.array([[float(x) for x in pair.split()] for pair in re.findall(r"[-\d.]+ [-\d.]+", d)])
+    np.testing.assert_allclose(np.ptp(pts, axis=0), [8.0, 8.0], atol=1e-6)
