@@ -138,8 +138,9 @@ def _build_part(mech, schedule, t_from, t_to, problems, tol, tolerance, end):
         if row["runs_out_at_t"] is not None:
             problems.append(f"coupling {row['coupling']}: a gear sector runs out of teeth from t = "
                             f"{row['runs_out_at_t']:.4g} (contact ratio down to {row['min_contact_ratio']:.3g})")
-    clearance = gear_clearance(mech, spec, schedule, t_from, t_to, pairs=pairs, tol=tol)
     floor = RESOLUTION * mech.size
+    clearance = gear_clearance(mech, spec, schedule, t_from, t_to, pairs=pairs,
+                               enough=max(2.0 * spec.clearance, spec.clearance + 2.0 * floor), tol=tol)
     for row in clearance:
         d = row["min_clearance"]
         if d is not None and (d < spec.clearance or d <= floor):

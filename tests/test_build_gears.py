@@ -289,6 +289,11 @@ def test_gear_clearance_sweep_is_within_its_resolution_of_dense_fcl_samples():
     # The sweep's guarantee (docs/build.md): the true least distance lies at most
     # RESOLUTION * size below what it reports, so no sample can be nearer.
     assert dense >= row["min_clearance"] - RESOLUTION * mech.size - 1e-9
+    assert row["guaranteed_min"] <= dense + 1e-9
+    # With a pass/fail target the sweep proves at least min(found - resolution, target).
+    (coarse,) = gear_clearance(mech, spec, enough=1.0)
+    assert coarse["guaranteed_min"] <= dense + 1e-9
+    assert coarse["guaranteed_min"] >= min(coarse["min_clearance"] - RESOLUTION * mech.size, 1.0) - 1e-9
 
 
 def test_allowed_contacts_are_the_mate_and_the_carrier():

@@ -46,7 +46,8 @@ def _clearance_of(mech, build, coupling, tol):
         spec = build_spec(trial, tol=tol)
     except ModelError as exc:
         return {"min_clearance": -1.0, "with": str(exc).split(": ", 1)[-1], "at_t": None}
-    rows = gear_clearance(trial, spec, tol=tol, only=[coupling], resolution=SIZING_RESOLUTION)
+    enough = max(2.0 * spec.clearance, spec.clearance + 2.0 * SIZING_RESOLUTION * trial.size)
+    rows = gear_clearance(trial, spec, tol=tol, only=[coupling], resolution=SIZING_RESOLUTION, enough=enough)
     return next(r for r in rows if r["coupling"] == coupling)
 
 

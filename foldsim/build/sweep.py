@@ -21,7 +21,10 @@ t0)) / 2``. Intervals whose bound lies below the least distance found so far,
 less ``RESOLUTION * mech.size`` (1/1000 of the model's size), are halved until
 none is left (or shorter than ``tol.t_resolution / 1000``), so the reported
 ``min_clearance`` is a distance the bodies really reach, and the true least
-distance over the range is at most ``RESOLUTION * mech.size`` below it.
+distance over the range is at most ``RESOLUTION * mech.size`` below it. Where
+only pass or fail matters (``enough``), a stretch whose bound already reaches that
+distance is left alone; every row says the bound it did prove
+(``guaranteed_min``).
 Between samples a sphere around each solid gives a cheap lower bound; the
 exact distance is computed only where that bound could matter. Distances are exact between the triangle meshes (`triangles.triangle_distance`),
 and a body inside another counts as distance 0 (winding number).
@@ -189,7 +192,7 @@ def _winding_batch(points, tris):
 
 
 def gear_clearance(mech, spec, schedule=None, t_from=0.0, t_to=1.0, pairs=None, only=None,
-                   resolution=RESOLUTION, tol=DEFAULT):
+                   resolution=RESOLUTION, enough=np.inf, tol=DEFAULT):
     """Least distance of every coupling's gear bodies to what they must not touch (the ``gear_clearance`` key).
 
     Parameters
@@ -207,13 +210,18 @@ def gear_clearance(mech, spec, schedule=None, t_from=0.0, t_to=1.0, pairs=None, 
         Test only the bodies of these couplings (and report only them).
     resolution : float
         Distance resolution relative to the model's size (module docstring).
+    enough : float
+        A distance past which no more precision is wanted: a stretch of t whose
+        bound reaches it is not refined further (`check` passes twice the
+        clearance, and at least the clearance plus twice the resolution).
 
     Returns
     -------
     list of dict
         Per coupling with gears: ``coupling``, ``min_clearance`` (None when no
         body is tested against them), ``at_t``, ``body`` and ``with`` (labels of
-        the nearest two solids).
+        the nearest two solids), ``guaranteed_min`` (no distance over the range
+        is smaller: at least ``min(min_clearance - resolution * size, enough)``).
     """
     schedule = schedule or fold_schedule(mech, tol)
     pairs = gear_pairs(mech, spec, tol) if pairs is None else pairs
@@ -223,8 +231,8 @@ def gear_clearance(mech, spec, schedule=None, t_from=0.0, t_to=1.0, pairs=None, 
     if only is not None:
         mask = [any(solids[i].kind != "panel" and solids[i].coupling in only for i in pair) for pair in tested]
         tested = tested[np.array(mask, bool).reshape(-1)]
-    rows = {p.coupling: {"coupling": p.coupling, "min_clearance": None, "at_t": None, "body": None, "with": None}
-            for p in pairs if only is None or p.coupling in only}
+    rows = {p.coupling: {"coupling": p.coupling, "min_clearance": None, "at_t": None, "body": None, "with": None,
+                         "guaranteed_min": None} for p in pairs if only is None or p.coupling in only}
     if not len(tested) or t_from == t_to:
         return list(rows.values())
     profile = body_speed_profile(mech, schedule.rates, solids)
@@ -249,7 +257,8 @@ def gear_clearance(mech, spec, schedule=None, t_from=0.0, t_to=1.0, pairs=None, 
             order = np.argsort(ts)
             ts, lows, exact = ts[order], lows[order], exact[order]
             span = np.diff(ts)
-            active = (np.maximum(0.5 * (lows[:-1] + lows[1:] - lip * span), 0.0) < goal - eps) & (span > shortest)
+            bound = np.maximum(0.5 * (lows[:-1] + lows[1:] - lip * span), 0.0)
+            active = (bound < goal - eps) & (bound < enough) & (span > shortest)
             ends = np.zeros(len(ts), bool)
             ends[:-1] |= active
             ends[1:] |= active
@@ -266,6 +275,11 @@ def gear_clearance(mech, spec, schedule=None, t_from=0.0, t_to=1.0, pairs=None, 
             ts = np.concatenate([ts, mid])
             lows = np.concatenate([lows, _sphere_bounds(centre, radius, pair, faces, poses_at(mech, schedule, mid))])
             exact = np.concatenate([exact, np.zeros(len(mid), bool)])
+        floor = float(bound.min()) if len(bound) else np.inf
+        for c in couplings[n]:
+            if c in rows:
+                known = rows[c]["guaranteed_min"]
+                rows[c]["guaranteed_min"] = floor if known is None else min(known, floor)
         if not exact.any():
             continue
         k = int(np.flatnonzero(exact)[np.argmin(lows[exact])])
