@@ -526,6 +526,14 @@ def posed_solid_meshes(mech, spec, schedule, t, solids=None, tol=DEFAULT):
     tris = np.concatenate([s.triangles for s in solids])
     owner = np.repeat(np.arange(len(solids)), [len(s.triangles) for s in solids])
     faces = np.array([s.face for s in solids])[owner]
-    poses = poses_at(mech, schedule, np.atleast_1d(np.asarray(t, float)))[:, faces]  # (T, N, 4, 4)
-    posed = np.einsum("tnij,nkj->tnki", poses[:, :, :3, :3], tris) + poses[:, :, None, :3, 3]
+    poses = poses_at(mech, schedule, np.atleast_1d(np.asarray(t, float)))  # (T, F, 4, 4)
+    posed = np.empty((len(poses),) + tris.shape)
+    # One matrix product per carrying face, for all t at once.
+    order = np.argsort(faces, kind="stable")
+    cuts = np.flatnonzero(np.diff(faces[order])) + 1
+    for run in np.split(order, cuts):
+        f = faces[run[0]]
+        pts = tris[run].reshape(-1, 3)
+        moved = pts @ np.swapaxes(poses[:, f, :3, :3], -1, -2) + poses[:, f, None, :3, 3]
+        posed[:, run] = moved.reshape(len(poses), len(run), 3, 3)
     return posed, owner, solids
