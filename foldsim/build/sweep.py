@@ -114,7 +114,7 @@ def body_speed_profile(mech, rates, solids):
 
 
 def _corners(solid):
-    """(n, 3) float: the solid's distinct corners (cached on the instance's triangles' id)."""
+    """(n, 3) float: the solid's distinct corners."""
     return np.unique(solid.triangles.reshape(-1, 3), axis=0)
 
 
