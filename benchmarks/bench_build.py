@@ -21,7 +21,6 @@ Rows:
 import argparse
 import json
 import sys
-import time
 from dataclasses import replace
 from pathlib import Path
 
@@ -29,6 +28,9 @@ import numpy as np
 
 ROOT = Path(__file__).resolve().parent.parent
 sys.path.insert(0, str(ROOT))
+sys.path.insert(0, str(ROOT / "benchmarks"))
+
+from bench_check import best_of  # noqa: E402
 
 from foldsim.build.gears import build_solids, posed_solid_meshes  # noqa: E402
 from foldsim.build.spec import build_spec  # noqa: E402
@@ -40,12 +42,8 @@ from foldsim.report import check  # noqa: E402
 
 
 def _best(fn, repeat=3):
-    best, out = np.inf, None
-    for _ in range(repeat):
-        start = time.perf_counter()
-        out = fn()
-        best = min(best, time.perf_counter() - start)
-    return best, out
+    """Smallest wall time of `repeat` calls and the last result (`bench_check.best_of`)."""
+    return best_of(repeat, fn)
 
 
 def posed_rows(mech, n_t):
