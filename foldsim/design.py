@@ -20,10 +20,41 @@ MESH_SUFFIXES = (".obj", ".off", ".stl", ".ply")
 """Files that are turned into a mechanism the way `foldsim new` does."""
 
 
-def shape_args(shape, size=None, units="mm", net=None, root=None, cut=None, gears="auto", teeth=None):
+def shape_args(shape, size=None, units="mm", net=None, root=None, cut=None, gears="auto", teeth=None,
+               thickness=None, module=None, gear_clearance=0.0):
     """The options of `foldsim new` as `build` takes them (nothing is written)."""
     return argparse.Namespace(shape=str(shape), size=size, units=units, net=net, root=root, cut=cut,
-                              gears=gears, teeth=teeth, output="(not saved)", json=False)
+                              gears=gears, teeth=teeth, thickness=thickness, module=module,
+                              gear_clearance=gear_clearance, output="(not saved)", json=False)
+
+
+def _sized_build(mech, args):
+    """The mechanism with a ``build`` object (docs/build.md) when --thickness is given, and the sizing rows."""
+    from dataclasses import replace
+
+    thickness = getattr(args, "thickness", None)
+    module = getattr(args, "module", None)
+    clearance = getattr(args, "gear_clearance", 0.0) or 0.0
+    if thickness is None:
+        if module is not None:
+            raise ModelError("--module: sizes gears on thick panels; give --thickness too")
+        return mech, None
+    for name, value in (("--thickness", thickness), ("--module", module)):
+        if value is not None and not (value > 0 and value < float("inf")):
+            raise ModelError(f"{name}: must be a positive length, not {value:g}")
+    if not clearance >= 0:
+        raise ModelError(f"--gear-clearance: must be a length of at least 0, not {clearance:g}")
+    if module is None or not mech.couplings:
+        build, rows = {"thickness": float(thickness), "clearance": float(clearance)}, []
+    else:
+        from .build.sizing import size_gears
+
+        build, rows = size_gears(mech, thickness, module, clearance)
+    out = replace(mech, extras={**mech.extras, "build": build})
+    from .build.spec import build_spec
+
+    build_spec(out)
+    return out, rows
 
 
 def is_mesh(path):
@@ -172,6 +203,7 @@ def build(args):
                            name=poly.name, units=args.units)
     if layout is not None:
         rows = _coupling_rows(mech, layout, toothed)
+    mech, sizing = _sized_build(mech, args)
     schedule = fold_schedule(mech)
     overlap = flat_overlaps(mech)
     diameter = tree_diameter(mech.n_faces, [tuple(h) for h in mech.hinge_faces.tolist()])
@@ -202,4 +234,7 @@ def build(args):
         "part_type_count": len(types),
         "part_types": types,
     }
+    if sizing is not None:
+        report["build"] = mech.extras["build"]
+        report["gear_sizing"] = sizing
     return mech, report

@@ -180,3 +180,33 @@ def check_text(value, field):
         raise ModelError(f"{field}: not valid Unicode text (a lone surrogate "
                          f"{value[exc.start].encode('unicode_escape').decode('ascii')} at character {exc.start})") from None
     return value
+
+
+def unknown_key(value, field, allowed):
+    """The first (sorted) key of a JSON object that is not allowed, or None.
+
+    Parameters
+    ----------
+    value : object
+        The parsed JSON value, which must be an object.
+    field : str
+        Its place in the document, for the message.
+    allowed : set of str
+
+    Raises
+    ------
+    ModelError
+        When ``value`` is not an object.
+
+    Examples
+    --------
+    >>> unknown_key({"a": 1, "z": 2, "b": 3}, "x", {"a"})
+    'b'
+    """
+    from .errors import ModelError
+
+    if not isinstance(value, dict):
+        raise ModelError(f"{field}: must be an object")
+    unknown = sorted(set(value) - set(allowed))
+    return unknown[0] if unknown else None
+

@@ -84,7 +84,7 @@ def check(mech, t_from=0.0, t_to=1.0, gap_tol=None, clearance=0.0, sheet=False, 
         problems.append(f"{len(collisions)} collision(s) between panels")
     if sheet and len(overlap):
         problems.append(f"the flat layout overlaps itself ({len(overlap)} pair(s))")
-    built = _build_part(mech, schedule, t_from, t_to, problems, tol)
+    built = _build_part(mech, schedule, t_from, t_to, problems, tol, tolerance, end)
     return {
         "model": mech.name,
         "units": mech.units,
@@ -112,10 +112,16 @@ def check(mech, t_from=0.0, t_to=1.0, gap_tol=None, clearance=0.0, sheet=False, 
     }
 
 
-def _build_part(mech, schedule, t_from, t_to, problems, tol):
-    """The ``build`` and ``stops`` keys, for a file with a ``build`` object (docs/build.md)."""
+def _build_part(mech, schedule, t_from, t_to, problems, tol, tolerance, end):
+    """The ``build``, ``stops``, ``sector_coverage``, ``gear_clearance`` and ``outer_closure`` keys, for a file with a ``build`` object (docs/build.md)."""
+    from dataclasses import replace
+
+    from .build.gears import gear_pairs
+    from .build.prisms import outer_surface_points
+    from .build.sectors import sector_coverage
     from .build.spec import build_spec
     from .build.stops import stop_overruns
+    from .build.sweep import RESOLUTION, gear_clearance
 
     spec = build_spec(mech, tol=tol)
     if spec is None:
@@ -126,4 +132,28 @@ def _build_part(mech, schedule, t_from, t_to, problems, tol):
         worst = max(passed, key=lambda row: row["overrun_deg"])
         problems.append(f"{len(passed)} hinge(s) pass their stop (hinge {worst['hinge']} by "
                         f"{worst['overrun_deg']:.4g}° from t = {worst['at_t']:.4g})")
-    return {"build": spec.report(), "stops": stops}
+    pairs = gear_pairs(mech, spec, tol)
+    coverage = sector_coverage(mech, spec, schedule, t_from, t_to, pairs=pairs, tol=tol)
+    for row in coverage:
+        if row["runs_out_at_t"] is not None:
+            problems.append(f"coupling {row['coupling']}: a gear sector runs out of teeth from t = "
+                            f"{row['runs_out_at_t']:.4g} (contact ratio down to {row['min_contact_ratio']:.3g})")
+    floor = RESOLUTION * mech.size
+    clearance = gear_clearance(mech, spec, schedule, t_from, t_to, pairs=pairs,
+                               enough=max(2.0 * spec.clearance, spec.clearance + 2.0 * floor), tol=tol)
+    for row in clearance:
+        d = row["min_clearance"]
+        if d is not None and (d < spec.clearance or d <= floor):
+            problems.append(f"coupling {row['coupling']}: its {row['body'].split(' ', 2)[2]} comes within "
+                            f"{d:.4g} {mech.units} of {row['with']} at t = {row['at_t']:.4g} "
+                            f"(clearance {spec.clearance:g})")
+    outer = replace(mech, cut_points=outer_surface_points(mech, spec))
+    outer_closure = closure_summary(mech, cut_edge_gaps(outer, end)[0], tolerance)
+    if not outer_closure["meets"]:
+        n_open = sum(not e["meets"] for e in outer_closure["edges"])
+        problems.append(f"{n_open} cut edge(s) do not meet on the outer surface of the thick panels "
+                        f"(largest gap {outer_closure['max_gap']:.4g} {mech.units})")
+    report = spec.report()
+    report["gear_bodies"] = [p.report() for p in pairs]
+    return {"build": report, "stops": stops, "sector_coverage": coverage, "gear_clearance": clearance,
+            "outer_closure": outer_closure}

@@ -148,3 +148,91 @@ def test_flap_swept_past_its_stop(tmp_path, capsys):
     report = json.loads(capsys.readouterr().out)
     assert report["stops"][0]["overrun_deg"] == 0.0 and report["stops"][0]["at_t"] is None
     assert report["build"]["thickness"] == [2.0, 2.0]
+
+
+def test_outer_closure_in_the_check_report(tmp_path, capsys):
+    # Material inside a closed cube: the file's polygons are the outer surface, so
+    # its outer cut edges meet; material outside: the square outer edges of two
+    # panels at a right angle stand T * sqrt(2) apart (elementary geometry).
+    from foldsim.cli import main
+
+    path = tmp_path / "box.mech.json"
+    path.write_text(json.dumps(_cube({"thickness": 1})))
+    assert main(["check", str(path), "--json"]) == 0
+    report = json.loads(capsys.readouterr().out)
+    assert report["outer_closure"]["meets"] and report["outer_closure"]["max_gap"] < 1e-9
+    path.write_text(json.dumps(_cube({"thickness": 1, "material": "front"})))
+    assert main(["check", str(path), "--json"]) == 1
+    report = json.loads(capsys.readouterr().out)
+    np.testing.assert_allclose(report["outer_closure"]["max_gap"], np.sqrt(2.0), atol=1e-9)
+    assert report["closure"]["meets"]  # the thin-panel closure is unchanged
+    assert any("outer surface" in p for p in report["problems"])
+
+
+def _flap(stop_deg, play_deg=2.0):
+    return {"schema": "foldsim.mechanism/1", "state": "flat",
+            "vertices": [[0, 0, 0], [40, 0, 0], [40, 40, 0], [0, 40, 0], [80, 0, 0], [80, 40, 0]],
+            "faces": [[0, 1, 2, 3], [1, 4, 5, 2]], "hinges": [{"faces": [0, 1], "closed_angle_deg": 90}],
+            "tolerances": {"hinge": {"play_deg": play_deg}},
+            "build": {"thickness": 2, "stops": [{"hinge": 0, "stop_deg": stop_deg}]}}
+
+
+def test_stackup_play_stops_at_the_stop():
+    # Hand case: a flap held against its stop at 90 degrees with +-1 degree of
+    # play can only fall back: its angle is 90 + min(e, 0) for every draw e.
+    from dataclasses import replace
+
+    from foldsim.kinematics import face_poses
+    from foldsim.stackup import play_spec
+    from foldsim.stackup.sampling import draw_errors, perturbed_poses
+
+    mech = loads(json.dumps(_flap(90.0)))
+    spec = replace(play_spec(mech), stops=build_spec(mech).stops)
+    errors = draw_errors(spec, 200, np.random.default_rng(1))
+    theta = np.radians([[90.0]])
+    held = perturbed_poses(mech, theta, errors, stops=spec.stops)[:, 0]
+    e = errors.hinge[:, 0, 0]
+    assert (e > 0).any() and (e < 0).any()
+    expected = face_poses(mech, (np.radians(90.0) + np.minimum(e, 0.0))[:, None])
+    np.testing.assert_allclose(held, expected, atol=1e-12)
+    # Short of the stop by more than the play, both directions stay open.
+    free = perturbed_poses(mech, np.radians([[80.0]]), errors, stops=spec.stops)[:, 0]
+    np.testing.assert_allclose(free, face_poses(mech, (np.radians(80.0) + e)[:, None]), atol=1e-12)
+
+
+def test_stackup_command_reads_the_stops(tmp_path, capsys):
+    from foldsim.cli import main
+
+    path = tmp_path / "flap.mech.json"
+    path.write_text(json.dumps(_flap(90.0)))
+    assert main(["stackup", str(path), "--json", "--samples", "200"]) == 0
+    report = json.loads(capsys.readouterr().out)
+    np.testing.assert_allclose(report["stops_deg"], [90.0], atol=1e-12)
+
+
+def test_lantern_build_demo_passes_check(capsys):
+    # The demo of docs/build.md: the lantern in 1.5 mm panels with three bevel pairs.
+    from pathlib import Path
+
+    from foldsim.cli import main
+
+    path = Path(__file__).resolve().parent.parent / "assets" / "lantern-build.mech.json"
+    assert main(["check", str(path), "--json"]) == 0
+    report = json.loads(capsys.readouterr().out)
+    assert report["ok"] and report["collisions"] == []
+    bodies = report["build"]["gear_bodies"]
+    assert [b["kind"] for b in bodies] == ["bevel"] * 3
+    for body in bodies:
+        # d = m z (any gear handbook) with the ISO 54 module 0.5
+        np.testing.assert_allclose(body["pitch_diameters"], [0.5 * z for z in body["teeth"]], rtol=1e-12)
+        # side to base closes at 90 degrees, side to side at 60 (hexagonal prism,
+        # REFERENCES.md: (n - 2) 180 / n = 120 dihedral), so teeth 24:36 make the
+        # 60 / 90 ratio and the shaft angle is the carrier's 90-degree corner:
+        # tan(delta1) = z1 / z2 (ISO 23509, memory).
+        np.testing.assert_allclose(body["cone_angles_deg"][0], np.degrees(np.arctan(24 / 36)), atol=1e-9)
+    for row in report["gear_clearance"]:
+        assert row["min_clearance"] >= report["build"]["clearance"]
+    for row in report["sector_coverage"]:
+        assert row["runs_out_at_t"] is None and row["min_contact_ratio"] >= 1.2  # 1.2: common-practice floor
+    assert all(row["overrun_deg"] == 0 for row in report["stops"])
+    assert report["outer_closure"]["meets"]

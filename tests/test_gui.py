@@ -495,7 +495,8 @@ def test_thick_panels_are_drawn_from_the_build_and_toggle_off(window, tmp_path):
     assert window.show_solids.isEnabled() and window.show_solids.isChecked()
     assert window.view.solids and len(window.view.solids) == window.model.mech.n_faces
     window.set_t(0.0)
-    window._select_edges([])  # no gap labels: only panels are drawn
+    window._select_edges([])  # no gap labels and no numbers: only panels are drawn
+    window.view.set_numbers(False)
     window.view.set_view("front")
     # Edge-on: level with the sheet, looking at its centre.
     from foldsim.gui.view.camera import stage_transform

@@ -140,6 +140,50 @@ def _inset_polygon(poly, normal, shift):
     return np.where(parallel[:, None], poly + shift[:, None] * inward, out)
 
 
+def panel_rings(mech, spec, f, closing=None, erode=0.0, tol=DEFAULT):
+    """The cross-sections of one panel's prism, bottom first (flat frame).
+
+    Parameters
+    ----------
+    mech : Mechanism
+    spec : BuildSpec
+    f : int
+    closing : list of (k,) float, optional
+        From `edge_closing_angles`.
+    erode : float
+        As for `panel_solid`.
+
+    Returns
+    -------
+    list of (k, 3) float
+        Every level's outline (two or three levels): the bevels move each edge in.
+
+    Raises
+    ------
+    ModelError
+        When the bevels leave no panel.
+    """
+    closing = edge_closing_angles(mech) if closing is None else closing
+    poly = mech.flat_faces[f]
+    normal = geometry.newell_normals([poly])[0]
+    normal = normal / np.linalg.norm(normal)
+    half = np.tan(np.asarray(closing[f]) / 2.0)
+    levels = _levels(spec, f)
+    levels = levels + np.where(levels == levels.min(), erode, 0.0) - np.where(levels == levels.max(), erode, 0.0)
+    rings = []
+    d = np.roll(poly, -1, axis=0) - poly
+    for z in levels:
+        shift = np.maximum(0.0, -z * half) + erode
+        ring = _inset_polygon(poly, normal, shift) + z * normal
+        moved = np.roll(ring, -1, axis=0) - ring
+        if (np.einsum("ij,ij->i", moved, d) <= tol.coincident * mech.size * np.linalg.norm(d, axis=1)).any():
+            field = "build.thickness" if f not in spec.doc.faces else "build.faces"
+            raise ModelError(f"{field}: panel {f} is too thick for the bevels its edges need "
+                             f"(thickness {spec.thickness[f]:.6g} {mech.units})")
+        rings.append(ring)
+    return rings
+
+
 def panel_solid(mech, spec, f, closing, erode=0.0, tol=DEFAULT):
     """The prism of one panel.
 
@@ -164,22 +208,7 @@ def panel_solid(mech, spec, f, closing, erode=0.0, tol=DEFAULT):
         When the bevels leave no panel (``build.thickness`` too large for it).
     """
     poly = mech.flat_faces[f]
-    normal = geometry.newell_normals([poly])[0]
-    normal = normal / np.linalg.norm(normal)
-    half = np.tan(np.asarray(closing[f]) / 2.0)
-    levels = _levels(spec, f)
-    levels = levels + np.where(levels == levels.min(), erode, 0.0) - np.where(levels == levels.max(), erode, 0.0)
-    rings = []
-    d = np.roll(poly, -1, axis=0) - poly
-    for z in levels:
-        shift = np.maximum(0.0, -z * half) + erode
-        ring = _inset_polygon(poly, normal, shift) + z * normal
-        moved = np.roll(ring, -1, axis=0) - ring
-        if (np.einsum("ij,ij->i", moved, d) <= tol.coincident * mech.size * np.linalg.norm(d, axis=1)).any():
-            field = "build.thickness" if f not in spec.doc.faces else "build.faces"
-            raise ModelError(f"{field}: panel {f} is too thick for the bevels its edges need "
-                             f"(thickness {spec.thickness[f]:.6g} {mech.units})")
-        rings.append(ring)
+    rings = panel_rings(mech, spec, f, closing, erode, tol)
     caps = triangulate(poly)
     n = len(poly)
     tris = [rings[0][caps[:, ::-1]], rings[-1][caps]]

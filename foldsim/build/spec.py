@@ -8,7 +8,6 @@ allows) run in `build_spec`. Every problem is a `ModelError` naming the field an
 index, e.g. ``build.gears[1].module: must be a positive length, not -1``.
 """
 
-import json
 import math
 import weakref
 from dataclasses import dataclass
@@ -16,6 +15,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from ..errors import ModelError
+from ..limits import QUOTE_CHARS, quote, unknown_key
 from ..tolerances import DEFAULT
 
 KINDS = ("spur", "bevel", "remote")
@@ -59,34 +59,33 @@ class BuildDoc:
 
 def _number(value, field, positive=False, minimum=None):
     if isinstance(value, bool) or not isinstance(value, (int, float)) or not math.isfinite(value):
-        raise ModelError(f"{field}: must be a finite number, not {json.dumps(value)}")
+        raise ModelError(f"{field}: must be a finite number, not {quote(value)}")
     if positive and not value > 0:
-        raise ModelError(f"{field}: must be a positive length, not {json.dumps(value)}")
+        raise ModelError(f"{field}: must be a positive length, not {quote(value)}")
     if minimum is not None and value < minimum:
-        raise ModelError(f"{field}: must be at least {minimum}, not {json.dumps(value)}")
+        raise ModelError(f"{field}: must be at least {minimum}, not {quote(value)}")
     return float(value)
 
 
 def _index(value, field, count, what):
     if isinstance(value, bool) or not isinstance(value, int):
-        raise ModelError(f"{field}: must be an integer, not {json.dumps(value)}")
+        raise ModelError(f"{field}: must be an integer, not {quote(value)}")
     if not 0 <= value < count:
         raise ModelError(f"{field}: {what} {value} out of range (0..{count - 1})")
     return value
 
 
 def _object(value, field, allowed):
-    if not isinstance(value, dict):
-        raise ModelError(f"{field}: must be an object")
-    unknown = sorted(set(value) - allowed)
-    if unknown:
-        raise ModelError(f"{field}: unknown key {unknown[0]!r}")
+    key = unknown_key(value, field, allowed)
+    if key is not None:
+        shown = repr(key) if len(key) <= QUOTE_CHARS else quote(key)
+        raise ModelError(f"{field}: unknown key {shown}")
     return value
 
 
 def _choice(value, field, options):
     if value not in options:
-        raise ModelError(f"{field}: must be one of {', '.join(options)}, not {json.dumps(value)}")
+        raise ModelError(f"{field}: must be one of {', '.join(options)}, not {quote(value)}")
     return value
 
 
@@ -94,6 +93,25 @@ def _entries(value, field):
     if not isinstance(value, list):
         raise ModelError(f"{field}: must be a list")
     return value
+
+
+def _per_index(value, field, key, index_key, value_key, count):
+    """Yield ``(index, value, place)`` of every ``{index_key: i, value_key: v}`` entry of ``value[key]``.
+
+    Each index may appear once; ``place`` is the entry's field, e.g. ``build.stops[2]``.
+    """
+    seen = set()
+    for i, entry in enumerate(_entries(value.get(key, []), f"{field}.{key}")):
+        where = f"{field}.{key}[{i}]"
+        entry = _object(entry, where, {index_key, value_key})
+        for name in (index_key, value_key):
+            if name not in entry:
+                raise ModelError(f"{where}: missing \"{name}\"")
+        index = _index(entry[index_key], f"{where}.{index_key}", count, index_key)
+        if index in seen:
+            raise ModelError(f"{where}.{index_key}: {index_key} {index} is given twice")
+        seen.add(index)
+        yield index, entry[value_key], where
 
 
 def _gear(entry, field, n_couplings):
@@ -114,16 +132,16 @@ def _gear(entry, field, n_couplings):
         teeth = entry["teeth"]
         if (not isinstance(teeth, list) or len(teeth) != 2
                 or any(isinstance(z, bool) or not isinstance(z, int) or z < 1 for z in teeth)):
-            raise ModelError(f"{field}.teeth: must be two positive integers, not {json.dumps(teeth)}")
+            raise ModelError(f"{field}.teeth: must be two positive integers, not {quote(teeth)}")
         out["teeth"] = tuple(teeth)
     if "sector_deg" in entry:
         s = entry["sector_deg"]
         values = s if isinstance(s, list) else [s, s]
         if len(values) != 2:
-            raise ModelError(f"{field}.sector_deg: must be a number or two numbers, not {json.dumps(s)}")
+            raise ModelError(f"{field}.sector_deg: must be a number or two numbers, not {quote(s)}")
         values = tuple(_number(v, f"{field}.sector_deg") for v in values)
         if not all(0 < v <= 360 for v in values):
-            raise ModelError(f"{field}.sector_deg: must lie in (0, 360], not {json.dumps(s)}")
+            raise ModelError(f"{field}.sector_deg: must lie in (0, 360], not {quote(s)}")
         out["sector_deg"] = values
     return GearDoc(**out)
 
@@ -145,16 +163,8 @@ def parse_build(value, n_faces, n_hinges, n_couplings, field="build"):
     if "thickness" not in value:
         raise ModelError(f"{field}: missing \"thickness\"")
     thickness = _number(value["thickness"], f"{field}.thickness", positive=True)
-    faces = {}
-    for i, entry in enumerate(_entries(value.get("faces", []), f"{field}.faces")):
-        entry = _object(entry, f"{field}.faces[{i}]", {"face", "thickness"})
-        for key in ("face", "thickness"):
-            if key not in entry:
-                raise ModelError(f"{field}.faces[{i}]: missing \"{key}\"")
-        f = _index(entry["face"], f"{field}.faces[{i}].face", n_faces, "face")
-        if f in faces:
-            raise ModelError(f"{field}.faces[{i}].face: face {f} is given twice")
-        faces[f] = _number(entry["thickness"], f"{field}.faces[{i}].thickness", positive=True)
+    faces = {f: _number(v, f"{where}.thickness", positive=True)
+             for f, v, where in _per_index(value, field, "faces", "face", "thickness", n_faces)}
     material = _choice(value.get("material", "back"), f"{field}.material", MATERIAL)
     axis = _choice(value.get("axis", "surface"), f"{field}.axis", AXES)
     gears, seen = [], {}
@@ -166,17 +176,10 @@ def parse_build(value, n_faces, n_hinges, n_couplings, field="build"):
         seen[gear.coupling] = i
         gears.append(gear)
     stops = {}
-    for i, entry in enumerate(_entries(value.get("stops", []), f"{field}.stops")):
-        entry = _object(entry, f"{field}.stops[{i}]", {"hinge", "stop_deg"})
-        for key in ("hinge", "stop_deg"):
-            if key not in entry:
-                raise ModelError(f"{field}.stops[{i}]: missing \"{key}\"")
-        h = _index(entry["hinge"], f"{field}.stops[{i}].hinge", n_hinges, "hinge")
-        if h in stops:
-            raise ModelError(f"{field}.stops[{i}].hinge: hinge {h} is given twice")
-        stops[h] = _number(entry["stop_deg"], f"{field}.stops[{i}].stop_deg")
+    for h, v, where in _per_index(value, field, "stops", "hinge", "stop_deg", n_hinges):
+        stops[h] = _number(v, f"{where}.stop_deg")
         if not -180.0 <= stops[h] <= 180.0:
-            raise ModelError(f"{field}.stops[{i}].stop_deg: must lie in [-180, 180], not {stops[h]}")
+            raise ModelError(f"{where}.stop_deg: must lie in [-180, 180], not {stops[h]}")
     margin = _number(value.get("stop_margin_deg", DEFAULT_STOP_MARGIN_DEG), f"{field}.stop_margin_deg",
                      minimum=0.0)
     clearance = _number(value.get("clearance", 0.0), f"{field}.clearance", minimum=0.0)
@@ -261,8 +264,10 @@ def build_spec(mech, tol=DEFAULT):
     for h, deg in doc.stops.items():
         stops[h], given[h] = math.radians(deg), True
     spec = BuildSpec(thickness, doc.material, doc.axis, doc.gears, stops, given, doc.clearance, doc)
+    from .gears import gear_pairs
     from .prisms import panel_solids
 
     panel_solids(mech, spec, tol=tol)  # thickness the bevels cannot take fails here, on load
+    gear_pairs(mech, spec, tol=tol)  # so do gears the hinges cannot carry
     _CACHE[mech] = spec
     return spec

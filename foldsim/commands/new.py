@@ -39,6 +39,13 @@ def register(sub):
     new.add_argument("--clearance", type=float, default=0.0, metavar="C",
                      help="panels not in contact by design collide when nearer than this over the motion "
                           "(default 0), as for `foldsim check`")
+    new.add_argument("--thickness", type=float, default=None, metavar="LEN",
+                     help="panel thickness: write a build object (thick panels, docs/build.md)")
+    new.add_argument("--module", type=float, default=None, metavar="M",
+                     help="with --thickness: gear module; sizes every cone pair as large as the motion allows")
+    new.add_argument("--gear-clearance", type=float, default=0.0, metavar="LEN",
+                     help="with --module: least distance a gear body keeps from what it must not touch "
+                          "(default 0)")
     new.add_argument("--json", action="store_true", help="print the report as one JSON document")
     new.add_argument("-v", "--verbose", action="store_true",
                      help=f"list every gear pair (models with more than {LIST_UP_TO} pairs get a summary)")
@@ -97,6 +104,13 @@ def _format(report, verbose=False):
     lines.append(f"closure gap at t = 1: {report['closure_gap']:.3g} {units}")
     lines.append(_motion_line(report))
     lines.append(f"part types: {report['part_type_count']}")
+    if "gear_sizing" in report:
+        lines.append(f"thick panels: {report['build']['thickness']:g} {units}; gears sized "
+                     f"(clearance {report['build']['clearance']:g} {units}):")
+        for r in report["gear_sizing"]:
+            clear = "-" if r["min_clearance"] is None else f"{r['min_clearance']:.3g} {units}"
+            lines.append(f" coupling {r['coupling']} {r['kind']}: teeth {r['teeth'][0]}:{r['teeth'][1]}, "
+                         f"clearance {clear}{'' if r['passes'] else ' (too near)'}, limited by {r['limited_by']}")
     return "\n".join(lines)
 
 

@@ -52,6 +52,22 @@ def check_options(samples, process):
         raise FoldsimError(f"--process: unknown process {process!r} (known: {', '.join(PROCESSES)})")
 
 
+def _with_stops(mech, process):
+    """The play bounds, with the hinge stops of the file's ``build`` object (docs/build.md) when it has one."""
+    from dataclasses import replace
+
+    import numpy as np
+
+    from ..build.spec import build_spec
+    from ..stackup import play_spec
+
+    build = build_spec(mech)
+    if build is None:
+        return None, None
+    spec = replace(play_spec(mech, process), stops=build.stops)
+    return spec, [float(x) for x in np.degrees(build.stops)]
+
+
 def run(args):
     from ..io.mechanism_json import load
     from ..stackup import compare, format_comparison, format_report, stackup
@@ -59,9 +75,12 @@ def run(args):
     check_options(args.samples, args.process)
     times = _times(args.times)
     mech = load(args.model)
-    result = stackup(mech, process=args.process, samples=args.samples, seed=args.seed, dist=args.dist,
-                     times=times)
+    spec, stops = _with_stops(mech, args.process)
+    result = stackup(mech, spec=spec, process=args.process, samples=args.samples, seed=args.seed,
+                     dist=args.dist, times=times)
     report = result.to_dict()
+    if stops is not None:
+        report["stops_deg"] = stops
     if args.compare:
         mechs = [mech] + [load(path) for path in args.compare]
         names = [args.model] + list(args.compare)

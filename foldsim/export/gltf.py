@@ -21,6 +21,10 @@ every in-between pose exactly, provided two neighbouring keys are less than
 `keyframe_count` keeps every step at 90 degrees or less, so a handful of keys
 suffices whatever ``frames`` asks for; more keys add nothing but size.
 
+A file with a ``build`` object (docs/build.md) gives each face's mesh its
+tapered prism (material ``panel``) and the gear bodies it carries (material
+``gear body``), closed triangle lists in the same flat frame.
+
 Units and axes follow the glTF specification: metres, +Y up. Model lengths are
 scaled by `common.unit_scale` and the model's Z-up frame is turned to Y-up by
 (x, y, z) -> (x, z, -y) (`common.Z_UP_TO_Y_UP`); both are baked into the vertex
@@ -43,6 +47,7 @@ FLOAT, UNSIGNED_SHORT, UNSIGNED_INT = 5126, 5123, 5125
 ARRAY_BUFFER, ELEMENT_ARRAY_BUFFER = 34962, 34963
 PANEL_COLOUR = [0.93, 0.80, 0.55, 1.0]
 ROOT_COLOUR = [0.55, 0.68, 0.85, 1.0]
+GEAR_COLOUR = [0.72, 0.45, 0.20, 1.0]
 
 
 def quaternion(axis, angle):
@@ -123,6 +128,15 @@ class _Blob:
         return len(self.gltf.accessors) - 1
 
 
+def _build_solids(mech):
+    """The prisms and gear bodies of a file with a ``build`` object (flat frame), else None."""
+    from ..build.gears import build_solids
+    from ..build.spec import build_spec
+
+    spec = build_spec(mech)
+    return None if spec is None else build_solids(mech, spec)
+
+
 def build(mech, t_from=0.0, t_to=1.0, frames=None, seconds=4.0, t_rest=None, schedule=None):
     """The glTF document of a mechanism, its motion from ``t_from`` to ``t_to``.
 
@@ -166,7 +180,24 @@ def build(mech, t_from=0.0, t_to=1.0, frames=None, seconds=4.0, t_rest=None, sch
             baseColorFactor=ROOT_COLOUR, metallicFactor=0.0, roughnessFactor=0.8)),
     ]
     normals = common.face_normals(mech.flat_faces) @ turn.T
-    for f, poly in enumerate(mech.flat_faces):
+    solids = _build_solids(mech)
+    if solids is not None:
+        gltf.materials.append(pg.Material(name="gear body", pbrMetallicRoughness=pg.PbrMetallicRoughness(
+            baseColorFactor=GEAR_COLOUR, metallicFactor=0.0, roughnessFactor=0.6)))
+        for f in range(mech.n_faces):
+            primitives = []
+            for kind, material in (("panel", 1 if f == mech.root else 0), ("gear", 2)):
+                tris = [s.triangles for s in solids if s.face == f and (s.kind == "panel") == (kind == "panel")]
+                if not tris:
+                    continue
+                tris = np.concatenate(tris)
+                flat_normals = unit(np.cross(tris[:, 1] - tris[:, 0], tris[:, 2] - tris[:, 0])) @ turn.T
+                position = blob.add(to_gltf(tris.reshape(-1, 3)), FLOAT, "VEC3", ARRAY_BUFFER, bounds=True)
+                normal = blob.add(np.repeat(flat_normals, 3, axis=0), FLOAT, "VEC3", ARRAY_BUFFER)
+                primitives.append(pg.Primitive(attributes=pg.Attributes(POSITION=position, NORMAL=normal),
+                                               material=material))
+            gltf.meshes.append(pg.Mesh(name=f"panel {f}", primitives=primitives, extras={"face": f}))
+    for f, poly in enumerate(mech.flat_faces if solids is None else ()):
         try:
             tris = triangulate(poly)
         except ValueError as exc:

@@ -19,7 +19,14 @@ class         what                                        style
 ``hinge``     fold line (``id="hinge-H"``)                dashed blue 2 mm / 1 mm, 0.25 mm
 ``tab``       outline of a glue/registration tab          solid black, 0.25 mm
 ``tab-fold``  where a tab folds off its panel             dotted blue 0.5 / 0.5 mm
+``bevel``     with a ``build`` object: where each thick   dashed grey 1 / 0.5 mm
+              panel's bevelled sides meet its far face
+              (``id="bevel-F"``)
 ============  ==========================================  =========================
+
+With a ``build`` object (docs/build.md) the cut outline is the panel's outline
+on the side drawn, and the ``bevel`` line shows how far the tapered sides
+(Tachi 2011; Lang et al. 2018) run in across the thickness: the cut's bevel.
 
 Face numbers are drawn at each panel's centroid, ``hH`` at each hinge's
 midpoint, ``cE`` just inside each copy of cut edge E.
@@ -47,6 +54,7 @@ STYLE = {
     "hinge": "fill:none;stroke:#1f5fa8;stroke-width:{w25};stroke-dasharray:{d2} {d1}",
     "tab": "fill:#fbf7ee;stroke:#000000;stroke-width:{w25};stroke-linejoin:round",
     "tab-fold": "fill:none;stroke:#1f5fa8;stroke-width:{w25};stroke-dasharray:{d05} {d05}",
+    "bevel": "fill:none;stroke:#7f7f7f;stroke-width:{w25};stroke-dasharray:{d1} {d05}",
 }
 
 
@@ -224,6 +232,12 @@ def build(mech, seam_gap=0.0, tabs=0.0, labels=True):
             else:
                 groups["outline"].append(f'    <path class="outline" data-face="{f}" data-side="{k}" '
                                          f'd="{path(seg, False)}"/>')
+    bevels = _bevel_outlines(mech)
+    if bevels is not None:
+        out.append('  <g id="bevels">')
+        for f, ring in enumerate(bevels):
+            out.append(f'    <path id="bevel-{f}" class="bevel" data-face="{f}" d="{path(ring, True)}"/>')
+        out.append("  </g>")
     for name in ("outline", "cut", "hinge"):
         out.append(f'  <g id="{name}s">')
         out.extend(groups[name])
@@ -235,6 +249,25 @@ def build(mech, seam_gap=0.0, tabs=0.0, labels=True):
     out.extend(_scale_and_legend(mech, mm, margin, extent, font, width))
     out.append("</svg>")
     return "\n".join(out) + "\n"
+
+
+def _bevel_outlines(mech):
+    """Each thick panel's far-face outline in pattern coordinates, or None without a ``build`` object."""
+    from ..build.prisms import edge_closing_angles, panel_rings
+    from ..build.spec import build_spec
+
+    spec = build_spec(mech)
+    if spec is None:
+        return None
+    origin, u, v = common.plane_frame(mech)
+    closing = edge_closing_angles(mech)
+    out = []
+    for f, poly in enumerate(mech.flat_faces):
+        rings = panel_rings(mech, spec, f, closing)
+        # The level farthest from the file's polygon (the far face of the panel).
+        far = max(rings, key=lambda r: float(np.abs(np.linalg.norm(r - poly, axis=1)).max()))
+        out.append(np.column_stack([(far - origin) @ u, (far - origin) @ v]))
+    return out
 
 
 def _signed_area(poly):

@@ -13,7 +13,7 @@ import numpy as np
 
 from ..errors import ModelError
 from ..limits import DEFAULT_SAMPLES, DEFAULT_TIMES  # noqa: F401  (part of this module's interface)
-from ..limits import QUOTE_CHARS, as_float, quote
+from ..limits import QUOTE_CHARS, as_float, quote, unknown_key
 
 
 def _show(value, width=QUOTE_CHARS):
@@ -171,11 +171,9 @@ def _pair(value, field):
 
 
 def _object(value, field, allowed):
-    if not isinstance(value, dict):
-        raise ModelError(f"{field}: must be an object")
-    unknown = sorted(set(value) - allowed)
-    if unknown:
-        raise ModelError(f"{field}.{quote(unknown[0], 30)[1:-1]}: unknown key (known: {', '.join(sorted(allowed))})")
+    key = unknown_key(value, field, allowed)
+    if key is not None:
+        raise ModelError(f"{field}.{quote(key, 30)[1:-1]}: unknown key (known: {', '.join(sorted(allowed))})")
     return value
 
 
@@ -309,11 +307,16 @@ class PlaySpec:
         Half-range of the angular backlash at the driven gear of each coupling, rad.
     process : str or None
         Preset the values started from.
+    stops : (H,) float or None
+        Stop angle of every hinge (rad, on the side its closing angle lies; the
+        file's ``build.stops``): sampled play never takes a hinge past its stop,
+        so a hinge held against it takes play in one direction only.
     """
 
     hinge: np.ndarray
     mesh: np.ndarray
     process: object = None
+    stops: object = None
 
     @classmethod
     def zeros(cls, mech):

@@ -117,7 +117,7 @@ def _offsets(mech, errors, frames):
     return out
 
 
-def perturbed_poses(mech, angles, errors, tree=None, frames=None):
+def perturbed_poses(mech, angles, errors, tree=None, frames=None, stops=None):
     """Face poses of every sample at every set of ideal fold angles.
 
     Each hinge's transform becomes ``E @ R(theta + e)``: ``R`` the rotation about
@@ -135,6 +135,8 @@ def perturbed_poses(mech, angles, errors, tree=None, frames=None):
     tree : GearTree, optional
     frames : tuple, optional
         `hinge_frames(mech)`.
+    stops : (H,) float, optional
+        Stop angles (`PlaySpec.stops`): a hinge's error never takes it past its stop.
 
     Returns
     -------
@@ -156,12 +158,41 @@ def perturbed_poses(mech, angles, errors, tree=None, frames=None):
     """
     angles = np.atleast_2d(np.asarray(angles, dtype=float))
     out = np.empty((len(errors), len(angles), mech.n_faces, 4, 4))
-    for i, poses in enumerate(_pose_batches(mech, angles, errors, tree, frames)):
+    for i, poses in enumerate(_pose_batches(mech, angles, errors, tree, frames, stops)):
         out[:, i] = poses
     return out
 
 
-def _pose_batches(mech, angles, errors, tree=None, frames=None):
+def stopped_errors(theta, eps, stops):
+    """Angle errors cut where they would take a hinge past its stop (a one-sided bound).
+
+    Parameters
+    ----------
+    theta : (H,) float
+        Ideal fold angles.
+    eps : (N, H) float
+        Angle errors of N samples.
+    stops : (H,) float or None
+
+    Returns
+    -------
+    (N, H) float
+
+    Examples
+    --------
+    A hinge at 1.0 rad with its stop at 1.0 keeps only the errors toward less fold:
+
+    >>> stopped_errors(np.array([1.0]), np.array([[0.1], [-0.1]]), np.array([1.0])).tolist()
+    [[0.0], [-0.1]]
+    """
+    if stops is None:
+        return eps
+    side = np.where(stops >= 0, 1.0, -1.0)
+    room = np.maximum(side * (stops - theta), 0.0)
+    return side * np.minimum(side * eps, room)
+
+
+def _pose_batches(mech, angles, errors, tree=None, frames=None, stops=None):
     """Yield the (N, F, 4, 4) perturbed poses at each row of angles (T, H) in turn."""
     tree = gear_tree(mech) if tree is None else tree
     frames = hinge_frames(mech) if frames is None else frames
@@ -169,7 +200,7 @@ def _pose_batches(mech, angles, errors, tree=None, frames=None):
     eps = errors.hinge[..., 0] + transmitted_errors(tree, errors.mesh, mech.n_hinges)
     offsets = _offsets(mech, errors, frames)
     for theta in angles:
-        phi = theta[None] + eps
+        phi = theta[None] + stopped_errors(theta, eps, stops)
         local = (np.eye(4) + np.sin(phi)[..., None, None] * gen_a
                  + (2.0 * np.sin(0.5 * phi) ** 2)[..., None, None] * gen_b)
         if offsets is not None:
@@ -312,7 +343,7 @@ def monte_carlo(mech, spec, samples=DEFAULT_SAMPLES, seed=0, dist="uniform", tim
     rng = np.random.default_rng(seed)
     for sl in _chunks(samples, chunk):
         errors = draw_errors(spec, sl.stop - sl.start, rng, dist)
-        for i, poses in enumerate(_pose_batches(mech, angles, errors, tree, frames)):
+        for i, poses in enumerate(_pose_batches(mech, angles, errors, tree, frames, spec.stops)):
             gaps[sl, i] = cut_edge_gaps(mech, poses)
             tips[sl, i] = tip_deviations(poses, ideal_poses[i], padded)
         if progress is not None:

@@ -1,0 +1,144 @@
+"""Gear sizing: per pair, the largest gears the motion leaves room for.
+
+Bigger gears give less play (an angular backlash is the linear backlash over the
+pitch radius), but their size is limited by the point of the motion where they
+must pass other gears and panels. With the module fixed, a cone pair's size grows
+with its teeth: ``k`` times the pair's smallest tooth counts in its ratio. For
+every bevel and remote pair in turn, in coupling order, `size_gears` finds the
+largest ``k`` whose gear bodies keep ``clearance`` from every body they may not
+touch over the whole motion (`foldsim.build.sweep.gear_clearance`), with the pairs
+already sized at their chosen size and the rest at their smallest; the sweep is
+monotone enough in ``k`` for a bisection. The neighbour that stopped the next
+larger size is reported. A spur pair's size is fixed by the distance between its
+hinges (module ``2 a / (z_i + z_j)``); it is checked, not sized.
+"""
+
+import math
+from dataclasses import replace
+
+from ..errors import ModelError
+from ..tolerances import DEFAULT
+from .spec import build_spec
+from .sweep import gear_clearance
+
+SIZING_RESOLUTION = 5e-3
+"""Distance resolution of the sizing sweeps, relative to the model's size (coarser than the check's)."""
+MIN_TEETH = 12
+"""Fewest teeth on a sized gear (common practice for 20-degree gears with some profile shift)."""
+
+
+def _base_teeth(coupling):
+    from ..layout import teeth_pairs
+
+    zi, zj = coupling.teeth if coupling.teeth is not None else teeth_pairs(abs(coupling.ratio), 1, 60)[:2]
+    g = math.gcd(int(zi), int(zj))
+    return int(zi) // g, int(zj) // g
+
+
+def _with_build(mech, build):
+    return replace(mech, extras={**mech.extras, "build": build})
+
+
+def _clearance_of(mech, build, coupling, tol):
+    """The ``gear_clearance`` row of one coupling, or None when the build does not fit at all."""
+    trial = _with_build(mech, build)
+    try:
+        spec = build_spec(trial, tol=tol)
+    except ModelError as exc:
+        return {"min_clearance": -1.0, "with": str(exc).split(": ", 1)[-1], "at_t": None}
+    enough = max(2.0 * spec.clearance, spec.clearance + 2.0 * SIZING_RESOLUTION * trial.size)
+    rows = gear_clearance(trial, spec, tol=tol, only=[coupling], resolution=SIZING_RESOLUTION, enough=enough)
+    return next(r for r in rows if r["coupling"] == coupling)
+
+
+def size_gears(mech, thickness, module, clearance=0.0, max_teeth=200, tol=DEFAULT):
+    """Fill in a ``build`` object with the largest gears that pass.
+
+    Parameters
+    ----------
+    mech : Mechanism
+        With couplings.
+    thickness, module : float
+        Panel thickness and the gears' module (model units).
+    clearance : float
+        Least distance every gear body must keep (written to ``build.clearance``).
+    max_teeth : int
+        Most teeth on either gear.
+
+    Returns
+    -------
+    build : dict
+        The ``build`` object (docs/build.md).
+    rows : list of dict
+        Per coupling: ``coupling``, ``kind``, ``teeth``, ``module``,
+        ``min_clearance``, ``at_t``, ``limited_by`` (the solid the next larger
+        size came too near, or what else stopped it).
+    """
+    from ..layout import pair_geometry
+
+    build = {"thickness": float(thickness), "clearance": float(clearance), "gears": []}
+    kinds, base = {}, {}
+    for k, c in enumerate(mech.couplings):
+        i, j = c.hinges
+        kind = pair_geometry(mech, i, j, ratio=c.ratio, tol=tol).kind
+        if kind not in ("spur", "bevel", "remote-bevel"):
+            continue
+        kinds[k] = kind
+        base[k] = _base_teeth(c)
+    scale = {}
+    for k, (zi, zj) in base.items():
+        scale[k] = max(1, math.ceil(MIN_TEETH / min(zi, zj)))
+    entries = {}
+
+    def entry(k, s):
+        zi, zj = base[k]
+        if kinds[k] == "spur":
+            return {"coupling": k, "teeth": [zi * s, zj * s]}
+        return {"coupling": k, "module": float(module), "teeth": [zi * s, zj * s]}
+
+    for k in base:
+        entries[k] = entry(k, scale[k])
+    rows = []
+    for k in base:
+        zi, zj = base[k]
+        top = max(scale[k], max_teeth // max(zi, zj))
+
+        def trial(s):
+            entries[k] = entry(k, s)
+            build["gears"] = [entries[c] for c in sorted(entries)]
+            return _clearance_of(mech, dict(build), k, tol)
+
+        def passes(row):
+            d = row["min_clearance"]
+            return d is None or d >= max(clearance, 1e-12)
+
+        lo = scale[k]
+        row_lo = trial(lo)
+        limited = None
+        if kinds[k] != "spur" and passes(row_lo):
+            hi = top
+            row_hi = trial(hi)
+            if passes(row_hi):
+                lo, row_lo, limited = hi, row_hi, f"at most {max_teeth} teeth"
+            else:
+                limited = row_hi["with"]
+                while hi - lo > 1:
+                    mid = (lo + hi) // 2
+                    row = trial(mid)
+                    if passes(row):
+                        lo, row_lo = mid, row
+                    else:
+                        hi, limited = mid, row["with"]
+        elif kinds[k] == "spur":
+            limited = "the distance between its hinges"
+        else:
+            limited = row_lo["with"]
+        entries[k] = entry(k, lo)
+        build["gears"] = [entries[c] for c in sorted(entries)]
+        z = [base[k][0] * lo, base[k][1] * lo]
+        spec_module = float(module) if kinds[k] != "spur" else None
+        rows.append({"coupling": k, "kind": {"remote-bevel": "remote"}.get(kinds[k], kinds[k]), "teeth": z,
+                     "module": spec_module, "min_clearance": row_lo["min_clearance"], "at_t": row_lo["at_t"],
+                     "passes": passes(row_lo), "limited_by": limited})
+    build["gears"] = [entries[c] for c in sorted(entries)]
+    return build, rows
