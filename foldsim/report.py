@@ -112,6 +112,35 @@ def check(mech, t_from=0.0, t_to=1.0, gap_tol=None, clearance=0.0, sheet=False, 
     }
 
 
+def build_checks(mech, schedule=None, t_from=0.0, t_to=1.0, gap_tol=None, tol=DEFAULT):
+    """The build's checks alone (docs/build.md), as `check` reports them.
+
+    Parameters
+    ----------
+    mech : Mechanism
+    schedule : Schedule, optional
+    t_from, t_to : float
+        Range of the drive swept for stops, sector coverage and gear clearance.
+    gap_tol : float, optional
+        As for `check`.
+    tol : Tolerances
+
+    Returns
+    -------
+    keys : dict
+        ``build``, ``stops``, ``sector_coverage``, ``gear_clearance`` and
+        ``outer_closure``; empty for a file without a ``build`` object.
+    problems : list of str
+        One sentence per failure.
+    """
+    schedule = fold_schedule(mech, tol) if schedule is None else schedule
+    tolerance = tol.gap * mech.size if gap_tol is None else float(gap_tol)
+    end = poses_at(mech, schedule, np.array([1.0]))
+    problems = []
+    keys = _build_part(mech, schedule, t_from, t_to, problems, tol, tolerance, end)
+    return keys, problems
+
+
 def _build_part(mech, schedule, t_from, t_to, problems, tol, tolerance, end):
     """The ``build``, ``stops``, ``sector_coverage``, ``gear_clearance`` and ``outer_closure`` keys, for a file with a ``build`` object (docs/build.md)."""
     from dataclasses import replace

@@ -23,6 +23,7 @@ from PySide6 import QtCore, QtGui, QtWidgets  # noqa: E402
 from foldsim import cli  # noqa: E402
 from foldsim.analysis.collision import colliding_pairs  # noqa: E402
 from foldsim.gui.view import palette  # noqa: E402
+from foldsim.gui.view.legend import legend_entries  # noqa: E402
 from foldsim.gui.window.app import DEMO, MainWindow  # noqa: E402
 from foldsim.gui.panels.side import step_playback  # noqa: E402
 from foldsim.kinematics import poses_at  # noqa: E402
@@ -519,3 +520,48 @@ def test_thick_panels_are_drawn_from_the_build_and_toggle_off(window, tmp_path):
     assert drawn() == thick
     assert window.open_path(DEMO)
     assert not window.show_solids.isEnabled() and window.view.solids is None
+
+
+def test_hinge_table_shows_the_stop_its_overrun_and_sector_coverage(window, tmp_path, qtbot):
+    # Hand case (as in tests/test_build.py): a two-panel flap closing at 90° with its
+    # stop at 80° passes the stop by 10° from t = 80/90 = 0.889.
+    doc = {"schema": "foldsim.mechanism/1", "state": "flat",
+           "vertices": [[0, 0, 0], [40, 0, 0], [40, 40, 0], [0, 40, 0], [80, 0, 0], [80, 40, 0]],
+           "faces": [[0, 1, 2, 3], [1, 4, 5, 2]], "hinges": [{"faces": [0, 1], "closed_angle_deg": 90}],
+           "build": {"thickness": 2, "stops": [{"hinge": 0, "stop_deg": 80}]}}
+    assert window.open_path(write_doc(tmp_path, doc, "flap.mech.json"))
+    model = window.hinge_model
+    qtbot.waitUntil(lambda: "Stop" in model.headers, timeout=60000)
+    columns = {name: k for k, name in enumerate(model.headers)}
+    assert model.text(0, columns["Stop"]) == "80.00°"
+    assert model.text(0, columns["Overrun"]) == "10.00° from t = 0.889"
+    assert model.text(0, columns["Sector"]) == "–"  # no gears on this flap
+    assert "pass their stop" in window.statusBar().currentMessage()
+    # A file without a build keeps the plain columns.
+    assert window.open_path(DEMO)
+    assert "Stop" not in window.hinge_model.headers
+
+
+def test_gear_bodies_are_drawn_with_the_thick_panels_and_toggle(window, qtbot):
+    # The lantern demo with its build: three bevel pairs, so six gear bodies besides
+    # the eight prisms (assets/lantern-build.mech.json); the legend names them only
+    # while they are drawn. Its gears stay in mesh: every sector's least contact
+    # ratio is above 1 (docs/build.md; Dudley's transverse contact ratio).
+    assert window.open_path(ROOT / "assets" / "lantern-build.mech.json")
+    view = window.view
+    kinds = sorted(s.kind for s in view.solids)
+    assert kinds.count("panel") == window.model.mech.n_faces and kinds.count("gear") == 6
+    assert "gear-body" in [e.key for e in legend_entries(view)]
+    with_gears = frame(window)
+    window.show_gears.trigger()
+    assert all(s.kind == "panel" for s in view.solids)
+    assert "gear-body" not in [e.key for e in legend_entries(view)]
+    assert not np.array_equal(frame(window), with_gears)
+    window.show_gears.trigger()
+    assert np.array_equal(frame(window), with_gears)
+    model = window.hinge_model
+    qtbot.waitUntil(lambda: "Sector" in model.headers, timeout=120000)
+    sector = model.headers.index("Sector")
+    texts = [model.text(r, sector) for r in range(model.rowCount())]
+    geared = [t for t in texts if t != "–"]
+    assert geared and all(t.startswith("ε ≥ ") and float(t[4:]) > 1.0 for t in geared)

@@ -8,6 +8,7 @@ import numpy as np
 import pyqtgraph as pg
 from PySide6 import QtCore, QtGui, QtWidgets
 
+from ..record.caption import t_text
 from ..view import palette
 
 SLIDER_STEPS = 1000
@@ -408,6 +409,7 @@ class HingeModel(_TableModel):
 
     def set_table(self, table, mech, schedule):
         """Fill from `foldsim.report.hinge_table` rows and the schedule."""
+        self.headers, self.tips = type(self).headers, type(self).tips
         drive_rate = schedule.rates[mech.drive]
         rows = []
         for row in table:
@@ -431,6 +433,56 @@ class HingeModel(_TableModel):
         """Angles (H,) at the current t, in degrees."""
         self.now = np.asarray(degrees, dtype=float)
         self.column_changed(self.NOW)
+
+    BUILD_HEADERS = ("Stop", "Overrun", "Sector")
+    BUILD_TIPS = ("The hinge's stop angle (build.stops, or closing plus the margin)",
+                  "How far the hinge passes its stop over t 0..1, and from which t",
+                  "Least effective contact ratio of its gears over t 0..1 (sector gears), "
+                  "and the t where a sector runs out of teeth")
+
+    def set_build(self, stops, coverage, mech):
+        """Add the build's columns from a check report's ``stops`` and ``sector_coverage``.
+
+        Parameters
+        ----------
+        stops : list of dict
+            ``hinge``, ``stop_deg``, ``overrun_deg``, ``at_t``.
+        coverage : list of dict
+            ``coupling``, ``min_contact_ratio``, ``runs_out_at_t``.
+        mech : Mechanism
+            For the hinges of each coupling.
+        """
+        if not self.rows:
+            return
+        base = len(type(self).headers)
+        by_hinge = {}
+        for row in coverage:
+            for h in dict.fromkeys(int(h) for h in mech.couplings[row["coupling"]].hinges):
+                by_hinge.setdefault(h, []).append(row)
+        stop_of = {row["hinge"]: row for row in stops}
+        rows = []
+        for cells in self.rows:
+            h = cells[0]
+            stop = stop_of.get(h)
+            extra = ["–", "–", "–"]
+            if stop is not None:
+                extra[0] = f"{stop['stop_deg']:.2f}°"
+                if stop["overrun_deg"] > 0:
+                    extra[1] = f"{stop['overrun_deg']:.2f}° from {t_text(stop['at_t'])}"
+                else:
+                    extra[1] = "none"
+            mine = by_hinge.get(h, [])
+            if mine:
+                worst = min(mine, key=lambda r: r["min_contact_ratio"])
+                out = [r["runs_out_at_t"] for r in mine if r["runs_out_at_t"] is not None]
+                extra[2] = (f"runs out at {t_text(min(out))}" if out
+                            else f"ε ≥ {worst['min_contact_ratio']:.2f}")
+            # Before the long Gears column, so they show without scrolling.
+            rows.append(list(cells[:base - 1]) + extra + list(cells[base - 1:base]))
+        head, tips = type(self).headers, type(self).tips
+        self.headers = head[:-1] + self.BUILD_HEADERS + head[-1:]
+        self.tips = tips[:-1] + self.BUILD_TIPS + tips[-1:]
+        self.set_rows(rows)
 
     def text(self, row, column):
         if column == self.NOW:

@@ -1,7 +1,7 @@
 """The key in the 3D view's corner: what each mark on screen means.
 
 `legend_entries` lists only the marks the view shows now — colliding panels,
-where they cut each other, open gaps, the selection, the sampled-build outlines,
+where they cut each other, open gaps, the selection, gear bodies, the sampled-build outlines,
 the part-type colours and the kinds of number — and `draw_legend` paints them in
 a pale box in the view's bottom-left corner. The main window can hide it
 (View ▸ Legend).
@@ -26,7 +26,7 @@ class Entry:
     ----------
     key : str
         What it explains: ``collision``, ``crossing``, ``gap``, ``selection``,
-        ``envelope``, ``part-type``, ``face``, ``hinge``, ``edge`` or ``more``.
+        ``envelope``, ``gear-body``, ``part-type``, ``face``, ``hinge``, ``edge`` or ``more``.
     text : str
     color : tuple
         0-255 RGB of the swatch (or of the tag's ink for numbers).
@@ -58,6 +58,8 @@ def legend_entries(view, max_rows=None):
     if view._face_mark.visible() or view._hinge_mark.visible():
         what = [w for w, item in (("panel", view._face_mark), ("hinge", view._hinge_mark)) if item.visible()]
         out.append(Entry("selection", "selected " + " and ".join(what), palette.HIGHLIGHT, "line"))
+    if view.solids and any(s.kind != "panel" for s in view.solids):
+        out.append(Entry("gear-body", "gear body (build)", palette.GEAR_BODY, "panel"))
     if view._envelope is not None and view._envelope.visible():
         out.append(Entry("envelope", "sampled builds (play and backlash)", view.envelope_color, "line"))
     numbers = [Entry(kind, LEGEND_TEXT[kind], palette.LABEL_TEXT, "tag")

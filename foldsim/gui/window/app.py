@@ -239,6 +239,11 @@ class MainWindow(FileHandling, Jobs, StatusBar, HelpMenu, QtWidgets.QMainWindow)
         self.show_solids.setCheckable(True)
         self.show_solids.setChecked(True)
         self.show_solids.setEnabled(False)
+        self.show_gears = self._action(view, "G&ear bodies", lambda: self.apply_solids(), None,
+                                       "Draw the build's gear bodies with the thick panels")
+        self.show_gears.setCheckable(True)
+        self.show_gears.setChecked(True)
+        self.show_gears.setEnabled(False)
         view.addSeparator()
         dock = self.stackup_dock.toggleViewAction()
         dock.setText("&Play and backlash")
@@ -319,10 +324,12 @@ class MainWindow(FileHandling, Jobs, StatusBar, HelpMenu, QtWidgets.QMainWindow)
         model = self.model
         built = model is not None and model.has_build()
         self.show_solids.setEnabled(built)
+        self.show_gears.setEnabled(built and self.show_solids.isChecked())
         if model is None:
             return
         try:
-            solids = model.solids() if built and self.show_solids.isChecked() else None
+            solids = (model.solids(gears=self.show_gears.isChecked())
+                      if built and self.show_solids.isChecked() else None)
         except FoldsimError as exc:
             self.statusBar().showMessage(error_line(exc), 10000)
             solids = None
@@ -369,7 +376,7 @@ class MainWindow(FileHandling, Jobs, StatusBar, HelpMenu, QtWidgets.QMainWindow)
         self.set_t(self.drive.t)
         self._size_columns()
         QtCore.QTimer.singleShot(0, self.share_side_height)
-        if model.labels is None:
+        if model.labels is None or model.has_build():
             self.start_report()
         self.start_sweep()
     def _part_types_ready(self, model):

@@ -210,6 +210,14 @@ class Jobs:
             return
         model.labels = part_labels(report.get("part_types"), model.mech.n_faces)
         self._part_types_ready(model)
+        if "stops" in report:
+            self.hinge_model.set_build(report.get("stops", []), report.get("sector_coverage", []),
+                                       model.mech)
+            self._size_columns()
+            if report.get("build_problems"):
+                problems = report["build_problems"]
+                self.statusBar().showMessage(f"build: {problems[0]}" + (f" (and {len(problems) - 1} more)"
+                                                                         if len(problems) > 1 else ""), 15000)
 
     # ------------------------------------------------------------------ sweep
 

@@ -155,57 +155,17 @@ class Model:
         """Whether the file describes its printed parts (a ``build`` object, docs/build.md)."""
         return self.mech.extras.get("build") is not None
 
-    def solids(self):
+    def solids(self, gears=True):
         """The build's solids, each carried by one face (list of `Solid`; made once).
 
-        Thick panels as the build's prisms (`foldsim.build.prisms.panel_solids`).
-        Empty for a file without a ``build`` object.
+        Thick panels as the build's prisms, then the gear bodies
+        (`foldsim.build.gears.build_solids`); ``gears=False`` leaves the gear
+        bodies out. Empty for a file without a ``build`` object.
         """
         if self._solids is None:
-            from ...build.prisms import panel_solids
+            from ...build.gears import build_solids
             from ...build.spec import build_spec
 
             spec = build_spec(self.mech)
-            self._solids = [] if spec is None else panel_solids(self.mech, spec)
-        return self._solids
-
-    @classmethod
-    def from_shape(cls, recipe, mech=None):
-        """A model made from a built-in solid or a mesh file as `foldsim new` makes it.
-
-        Parameters
-        ----------
-        recipe : argparse.Namespace
-            `foldsim.design.shape_args`.
-        mech : Mechanism, optional
-            Already made from the recipe.
-        """
-        from ...design import build
-
-        report = None
-        if mech is None:
-            mech, report = build(recipe)
-        shape = Path(recipe.shape)
-        model = cls(mech=mech, recipe=recipe, source=shape if is_mesh(shape) or shape.is_file() else None)
-        model.build_report = report
-        if report is not None:
-            model.labels = part_labels(report.get("part_types"), mech.n_faces)
-        return model
-
-    def name(self):
-        """What the window calls the model."""
-        if self.mech.name:
-            return self.mech.name
-        return self.source.name if self.source is not None else "new model"
-
-    def default_stem(self):
-        """A file name (no suffix) for saving or exporting the model."""
-        if self.path is not None:
-            return file_stem(self.path)
-        if self.source is not None:
-            return file_stem(self.source)
-        return "".join(c if c.isalnum() or c in "-_" else "-" for c in self.name()) or "model"
-
-    def folder(self):
-        """The folder of the model's file, or the current one."""
-        return self.source.parent if self.source is not None else Path.cwd()
+            self._solids = [] if spec is None else build_solids(self.mech, spec)
+        return [s for s in self._solids if gears or s.kind == "panel"]

@@ -23,7 +23,7 @@ from PySide6 import QtCore
 from ...analysis.collision import collision_intervals
 from ...errors import FoldsimError
 from ...io.mechanism_json import share_like_target
-from ...report import check
+from ...report import build_checks, check
 from ...tolerances import DEFAULT
 
 
@@ -134,6 +134,10 @@ class ReportSignals(QtCore.QObject):
 class ReportTask(QtCore.QRunnable):
     """`foldsim.report.check` over no drive range (the sweep covers collisions).
 
+    For a file with a ``build`` object the build's checks (stops, sector coverage,
+    gear clearance) run over t 0..1, as `foldsim check` runs them; their problems
+    are under ``build_problems``.
+
     Parameters
     ----------
     mech : Mechanism
@@ -149,6 +153,9 @@ class ReportTask(QtCore.QRunnable):
     def run(self):
         try:
             report = check(self.mech, t_from=0.0, t_to=0.0, tol=self.tol)
+            if "build" in report:
+                keys, problems = build_checks(self.mech, t_from=0.0, t_to=1.0, tol=self.tol)
+                report.update(keys, build_problems=problems)
         except FoldsimError as exc:
             self.signals.failed.emit(str(exc))
             return
