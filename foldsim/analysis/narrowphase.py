@@ -17,42 +17,12 @@ Arrays are (n, 3, 3) as in `triangles`: pair ``k`` is ``a[k]`` against ``b[k]``.
 
 import numpy as np
 
-from ..geometry import transform_points, unit
+from ..geometry import unit
 from . import triangles
 from .panels import _in_sorted, _keys, triangle_pairs
 
 CHUNK = 4096
 """Triangle pairs per block of work."""
-
-
-def _side_rejects(a, b, band):
-    """(n,) bool: every vertex of `a` lies beyond ``band`` on one side of the plane of `b`."""
-    e1 = b[:, 1] - b[:, 0]
-    e2 = b[:, 2] - b[:, 0]
-    normal = np.cross(e1, e2)
-    length = np.sqrt((normal * normal).sum(axis=1))
-    d = ((a - b[:, None, 0]) * normal[:, None, :]).sum(axis=2)
-    limit = band * length
-    return (d > limit[:, None]).all(axis=1) | (d < -limit[:, None]).all(axis=1)
-
-
-def crossing_overlap(a, b, eps=triangles.DEFAULT_EPS):
-    """`triangles.crossing_overlap` with a cheap rejection first (same values).
-
-    Pairs rejected by the plane-side test get ``-inf``, which is what the reference
-    gives them: a triangle that does not reach within ``eps`` of the other's plane
-    neither strictly crosses it nor is coplanar with it.
-    """
-    a = np.asarray(a, dtype=float)
-    b = np.asarray(b, dtype=float)
-    out = np.full(len(a), -np.inf)
-    for k in range(0, len(a), CHUNK):
-        ca, cb = a[k:k + CHUNK], b[k:k + CHUNK]
-        keep = ~(_side_rejects(ca, cb, 2.0 * eps) | _side_rejects(cb, ca, 2.0 * eps))
-        if keep.any():
-            rows = np.flatnonzero(keep)
-            out[k + rows] = triangles.crossing_overlap(ca[rows], cb[rows], eps)
-    return out
 
 
 def _dot(u, v):
@@ -89,12 +59,36 @@ def _inside(p, t0, v0, v1, d00, d01, d11, denom, ok):
     return foot, inside
 
 
-def _distance_block(a, b):
-    """Squared distance (n,) for one block; see `triangle_distance`."""
-    av = [tuple(a[:, i, j] for j in range(3)) for i in range(3)]
-    bv = [tuple(b[:, i, j] for j in range(3)) for i in range(3)]
-    best = np.full(len(a), np.inf)
-    meet = np.zeros(len(a), bool)
+def _soa(t):
+    """Triangles (n, 3, 3) as 3 vertices of 3 coordinate arrays (n,)."""
+    return [tuple(t[:, i, j] for j in range(3)) for i in range(3)]
+
+
+def _block(av, bv, eps, distance=True):
+    """Squared distance and whether the reference crossing test must look, for one block.
+
+    ``av``, ``bv``: triangles as `_soa` gives them. Returns ``(dist2, maybe)``:
+    ``dist2`` (n,) squared distances (None without ``distance``); ``maybe`` (n,)
+    bool, False where some triangle lies beyond ``2 eps`` on one side of the
+    other's plane, so that `triangles.crossing_overlap` is ``-inf`` there.
+    """
+    n = len(av[0][0])
+    maybe = np.ones(n, bool)
+    planes = []
+    for p_tri, t_tri in ((av, bv), (bv, av)):
+        t0 = t_tri[0]
+        v0, v1 = _sub(t_tri[1], t0), _sub(t_tri[2], t0)
+        normal = (v0[1] * v1[2] - v0[2] * v1[1], v0[2] * v1[0] - v0[0] * v1[2],
+                  v0[0] * v1[1] - v0[1] * v1[0])
+        height = [_dot(_sub(p, t0), normal) for p in p_tri]
+        limit = 2.0 * eps * np.sqrt(_dot(normal, normal))
+        maybe &= ~(((height[0] > limit) & (height[1] > limit) & (height[2] > limit))
+                   | ((height[0] < -limit) & (height[1] < -limit) & (height[2] < -limit)))
+        planes.append((p_tri, t0, v0, v1, height))
+    if not distance:
+        return None, maybe
+    best = np.full(n, np.inf)
+    meet = np.zeros(n, bool)
     edges = {}
     for name, tri in (("a", av), ("b", bv)):
         dirs = [_sub(tri[(i + 1) % 3], tri[i]) for i in range(3)]
@@ -123,15 +117,10 @@ def _distance_block(a, b):
             z = r[2] + s * d1[2] - t * d2[2]
             np.minimum(best, np.where(interior, x * x + y * y + z * z, np.inf), out=best)
     # Vertex over the other face (6) and edges meeting the other face (6).
-    for p_tri, t_tri, t_edges in ((av, bv, edges["b"]), (bv, av, edges["a"])):
-        t0 = t_tri[0]
-        v0, v1 = _sub(t_tri[1], t0), _sub(t_tri[2], t0)
+    for p_tri, t0, v0, v1, height in planes:
         d00, d01, d11 = _dot(v0, v0), _dot(v0, v1), _dot(v1, v1)
         denom = d00 * d11 - d01 * d01
         ok = denom > 1e-12 * d00 * d11
-        normal = (v0[1] * v1[2] - v0[2] * v1[1], v0[2] * v1[0] - v0[0] * v1[2],
-                  v0[0] * v1[1] - v0[1] * v1[0])
-        height = [_dot(_sub(p, t0), normal) for p in p_tri]
         for i, p in enumerate(p_tri):
             foot, inside = _inside(p, t0, v0, v1, d00, d01, d11, denom, ok)
             if inside.any():
@@ -149,7 +138,34 @@ def _distance_block(a, b):
             _, hit = _inside(point, t0, v0, v1, d00, d01, d11, denom, ok)
             meet |= meets & hit
     best[meet] = 0.0
-    return best
+    return best, maybe
+
+
+def _check(a, b):
+    a = np.asarray(a, dtype=float)
+    b = np.asarray(b, dtype=float)
+    if a.shape != b.shape or a.ndim != 3 or a.shape[1:] != (3, 3):
+        raise ValueError(f"a and b must both have shape (n, 3, 3), got {a.shape}, {b.shape}")
+    return a, b
+
+
+def crossing_overlap(a, b, eps=triangles.DEFAULT_EPS):
+    """`triangles.crossing_overlap` with a cheap rejection first (same values).
+
+    Pairs in which a triangle lies beyond ``2 eps`` on one side of the other's plane
+    get ``-inf`` at once, which is the reference's value for them: such a triangle
+    neither strictly crosses the other's plane nor is coplanar with it. The rest go
+    through the reference.
+    """
+    a, b = _check(a, b)
+    out = np.full(len(a), -np.inf)
+    for k in range(0, len(a), CHUNK):
+        ca, cb = a[k:k + CHUNK], b[k:k + CHUNK]
+        _, maybe = _block(_soa(ca), _soa(cb), eps, distance=False)
+        if maybe.any():
+            rows = np.flatnonzero(maybe)
+            out[k + rows] = triangles.crossing_overlap(ca[rows], cb[rows], eps)
+    return out
 
 
 def triangle_distance(a, b):
@@ -166,24 +182,53 @@ def triangle_distance(a, b):
         Zero where the triangles intersect or touch, otherwise the least of the
         vertex-face and edge-edge distances.
     """
-    a = np.asarray(a, dtype=float)
-    b = np.asarray(b, dtype=float)
-    if a.shape != b.shape or a.shape[1:] != (3, 3):
-        raise ValueError(f"a and b must both have shape (n, 3, 3), got {a.shape}, {b.shape}")
+    a, b = _check(a, b)
     out = np.empty(len(a))
     for k in range(0, len(a), CHUNK):
-        out[k:k + CHUNK] = _distance_block(a[k:k + CHUNK], b[k:k + CHUNK])
+        out[k:k + CHUNK], _ = _block(_soa(a[k:k + CHUNK]), _soa(b[k:k + CHUNK]), 0.0)
     return np.sqrt(out)
 
 
-def posed_pairs(pan, poses, frame, ia, ib):
-    """Triangles ia, ib (n,) posed at pose sets ``poses[frame]``: two (n, 3, 3) arrays."""
-    if len(poses) * len(pan.tri_face) < len(frame):
-        posed = transform_points(poses[:, pan.tri_face][:, :, None], pan.tri_points[None])
-        return posed[frame, ia], posed[frame, ib]
-    ta = transform_points(poses[frame, pan.tri_face[ia]][:, None], pan.tri_points[ia])
-    tb = transform_points(poses[frame, pan.tri_face[ib]][:, None], pan.tri_points[ib])
-    return ta, tb
+def _posed_soa(poses, frame, face, points):
+    """Flat-frame triangles ``points`` (n, 3, 3) moved by ``poses[frame, face]``, as `_soa`."""
+    m = poses[frame, face]
+    r = [[m[:, i, j] for j in range(4)] for i in range(3)]
+    out = []
+    for v in range(3):
+        x, y, z = points[:, v, 0], points[:, v, 1], points[:, v, 2]
+        out.append(tuple(r[i][0] * x + r[i][1] * y + r[i][2] * z + r[i][3] for i in range(3)))
+    return out
+
+
+def _stack(tri, rows):
+    """(m, 3, 3) array of the `_soa` triangles at ``rows``."""
+    return np.stack([np.stack([c[rows] for c in v], axis=1) for v in tri], axis=1)
+
+
+def triangle_states(pan, poses, frame, ia, ib, eps, distance):
+    """Crossing overlap and distance of triangle pairs ia, ib (n,) at ``poses[frame]``.
+
+    Returns
+    -------
+    overlap : (n,) float
+        `triangles.crossing_overlap` of each pair (``-inf`` where cheaply rejected).
+    dist : (n,) float or None
+        Exact distances; None without ``distance``.
+    """
+    n = len(ia)
+    overlap = np.full(n, -np.inf)
+    dist = np.empty(n) if distance else None
+    for k in range(0, n, CHUNK):
+        sl = slice(k, k + CHUNK)
+        av = _posed_soa(poses, frame[sl], pan.tri_face[ia[sl]], pan.tri_points[ia[sl]])
+        bv = _posed_soa(poses, frame[sl], pan.tri_face[ib[sl]], pan.tri_points[ib[sl]])
+        d2, maybe = _block(av, bv, eps, distance)
+        if distance:
+            dist[sl] = np.sqrt(d2)
+        if maybe.any():
+            rows = np.flatnonzero(maybe)
+            overlap[k + rows] = triangles.crossing_overlap(_stack(av, rows), _stack(bv, rows), eps)
+    return overlap, dist
 
 
 def _arc_distance(p, a1, a2):
@@ -246,17 +291,24 @@ def pair_state(mech, pan, poses, frame, pairs, clearance, eps, separation=True):
     hit : (n,) bool
     """
     ia, ib, row = triangle_pairs(pan, pairs)
-    ta, tb = posed_pairs(pan, poses, frame[row], ia, ib)
-    overlap = crossing_overlap(ta, tb, eps)
-    hit = np.zeros(len(pairs), bool)
-    np.logical_or.at(hit, row, overlap > eps)
     keys = _keys(pairs, mech.n_faces)
     is_pivot, pos = _in_sorted(keys, pan.pivot_keys)
+    measure = separation or clearance > 0
+    overlap, dist = triangle_states(pan, poses, frame[row], ia, ib, eps, measure)
+    single = len(row) == len(pairs)  # one triangle per face: row is 0, 1, 2, ...
+    if single:
+        hit = overlap > eps
+    else:
+        hit = np.zeros(len(pairs), bool)
+        np.logical_or.at(hit, row, overlap > eps)
     sep = np.full(len(pairs), np.inf)
-    if not (separation or clearance > 0):
+    if not measure:
         return sep, hit
     measured = ~is_pivot[row] & ~hit[row]
-    np.minimum.at(sep, row[measured], triangle_distance(ta[measured], tb[measured]))
+    if single:
+        sep[measured] = dist[measured]
+    else:
+        np.minimum.at(sep, row[measured], dist[measured])
     if clearance > 0:
         touching, _ = _in_sorted(keys, pan.touch_keys)
         hit |= ~touching & ~is_pivot & (sep < clearance)
