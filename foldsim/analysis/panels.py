@@ -124,13 +124,14 @@ def panels(mech, tol=DEFAULT):
             i, j, a, b = j, i, b, a
         path = chain[a] ^ chain[b]
         axes = mech.axes[path]
-        d = np.cross(axes[:, 1] - axes[:, 0], flat_pts[i] - axes[:, 0])
-        if (np.linalg.norm(d, axis=1) <= eps * np.linalg.norm(axes[:, 1] - axes[:, 0], axis=1)).all():
+        u, w = (axes[:, 1] - axes[:, 0]).T, (flat_pts[i] - axes[:, 0]).T
+        d2 = ((u[1] * w[2] - u[2] * w[1]) ** 2 + (u[2] * w[0] - u[0] * w[2]) ** 2
+              + (u[0] * w[1] - u[1] * w[0]) ** 2)
+        if (d2 <= eps * eps * (u * u).sum(axis=0)).all():
             shared.setdefault((a, b), []).append((pt_local[i], pt_local[j], path))
     skip = set(hinged)
     pivots = []
-    normals = [np.cross(p[1] - p[0], p[2] - p[0]) for p in mech.flat_faces]
-    convex = [len(p) == 3 or _is_convex(p, nrm) for p, nrm in zip(mech.flat_faces, normals)]
+    convex = [len(p) == 3 or _is_convex(p, np.cross(p[1] - p[0], p[2] - p[0])) for p in mech.flat_faces]
     for (a, b), points in shared.items():
         if len(points) > 1:
             skip.add((a, b))
