@@ -66,13 +66,22 @@ def _block_pairs(lo, hi, frame, cell, origin):
     keep &= home == key[i]
     ia, ib = ia[keep], ib[keep]
     rows = [np.column_stack([ia, ib])]
-    for g in np.flatnonzero(big):
-        others = np.flatnonzero(frame == frame[g])
-        others = others[others != g]
-        # A pair of two big boxes is reported by the smaller index only.
-        others = others[~big[others] | (others > g)]
-        hit = (np.maximum(lo[others], lo[g]) <= np.minimum(hi[others], hi[g])).all(axis=1)
-        rows.append(np.column_stack([np.full(hit.sum(), g), others[hit]]))
+    # Big boxes against every box of their frame (frames are contiguous runs).
+    bigs = np.flatnonzero(big)
+    if len(bigs):
+        frame_start = np.searchsorted(frame, frame[bigs], side="left")
+        frame_end = np.searchsorted(frame, frame[bigs], side="right")
+        per = frame_end - frame_start
+        block = max(1, ROW_BUDGET // max(1, int(per.max())))
+        for k in range(0, len(bigs), block):
+            g, fs, cnt = bigs[k:k + block], frame_start[k:k + block], per[k:k + block]
+            first = np.repeat(g, cnt)
+            other = np.repeat(fs, cnt) + (np.arange(cnt.sum()) - np.repeat(np.cumsum(cnt) - cnt, cnt))
+            # A pair of two big boxes is reported by the smaller index only.
+            keep = (other != first) & (~big[other] | (other > first))
+            first, other = first[keep], other[keep]
+            hit = (np.maximum(lo[other], lo[first]) <= np.minimum(hi[other], hi[first])).all(axis=1)
+            rows.append(np.column_stack([first[hit], other[hit]]))
     return np.concatenate(rows)
 
 
