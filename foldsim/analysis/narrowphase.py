@@ -205,15 +205,23 @@ def _stack(tri, rows):
     return np.stack([np.stack([c[rows] for c in v], axis=1) for v in tri], axis=1)
 
 
-def triangle_states(pan, poses, frame, ia, ib, eps, distance):
+def triangle_states(pan, poses, frame, ia, ib, eps, distance, enough=None):
     """Crossing overlap and distance of triangle pairs ia, ib (n,) at ``poses[frame]``.
+
+    Parameters
+    ----------
+    enough : (n,) float, optional
+        Lazy distances: where the two triangles' bounding spheres are at least this
+        far apart, the gap between the spheres is returned as the distance (a lower
+        bound) and neither test runs; spheres apart also rule out crossing.
 
     Returns
     -------
     overlap : (n,) float
-        `triangles.crossing_overlap` of each pair (``-inf`` where cheaply rejected).
+        `triangles.crossing_overlap` of each pair (``-inf`` where ruled out cheaply).
     dist : (n,) float or None
-        Exact distances; None without ``distance``.
+        Distances (exact, or a lower bound of at least ``enough``); None without
+        ``distance``.
     """
     n = len(ia)
     overlap = np.full(n, -np.inf)
@@ -222,13 +230,37 @@ def triangle_states(pan, poses, frame, ia, ib, eps, distance):
         sl = slice(k, k + CHUNK)
         av = _posed_soa(poses, frame[sl], pan.tri_face[ia[sl]], pan.tri_points[ia[sl]])
         bv = _posed_soa(poses, frame[sl], pan.tri_face[ib[sl]], pan.tri_points[ib[sl]])
+        if enough is not None:
+            gap = _sphere_gap(av, bv)
+            work = np.flatnonzero(~(gap >= np.maximum(enough[sl], 0.0)) | ~(gap > 0))
+            if distance:
+                dist[sl] = gap
+            if not len(work):
+                continue
+            if len(work) < len(gap):
+                av = [tuple(c[work] for c in v) for v in av]
+                bv = [tuple(c[work] for c in v) for v in bv]
+        else:
+            work = np.arange(len(av[0][0]))
         d2, maybe = _block(av, bv, eps, distance)
         if distance:
-            dist[sl] = np.sqrt(d2)
+            dist[k + work] = np.sqrt(d2)
         if maybe.any():
             rows = np.flatnonzero(maybe)
-            overlap[k + rows] = triangles.crossing_overlap(_stack(av, rows), _stack(bv, rows), eps)
+            overlap[k + work[rows]] = triangles.crossing_overlap(_stack(av, rows), _stack(bv, rows), eps)
     return overlap, dist
+
+
+def _sphere_gap(av, bv):
+    """Gap (n,) between spheres about the triangles' centroids through their farthest corners."""
+    out = []
+    for tri in (av, bv):
+        c = tuple((tri[0][j] + tri[1][j] + tri[2][j]) / 3.0 for j in range(3))
+        r2 = np.maximum.reduce([_dot(_sub(v, c), _sub(v, c)) for v in tri])
+        out.append((c, np.sqrt(r2)))
+    (ca, ra), (cb, rb) = out
+    d = _sub(ca, cb)
+    return np.sqrt(_dot(d, d)) - ra - rb
 
 
 def _arc_distance(p, a1, a2):
@@ -266,7 +298,7 @@ def _wedge_separation(a, b):
 
 
 
-def pair_state(mech, pan, poses, frame, pairs, clearance, eps, separation=True):
+def pair_state(mech, pan, poses, frame, pairs, clearance, eps, separation=True, need=None):
     """Separation and collision flag of face pairs (the fast kernels of this module).
 
     Parameters
@@ -282,6 +314,11 @@ def pair_state(mech, pan, poses, frame, pairs, clearance, eps, separation=True):
     separation : bool
         Compute ``sep``; without it (and with no clearance) only ``hit`` is
         meaningful and ``sep`` is all inf.
+    need : (n,) float, optional
+        Separation each pair must reach to be of no further interest. Where given,
+        triangle pairs whose bounding spheres are further apart than that are not
+        tested, and ``sep`` is a lower bound where it is at least ``need`` (exact
+        below it); ``hit`` stays exact.
 
     Returns
     -------
@@ -294,7 +331,12 @@ def pair_state(mech, pan, poses, frame, pairs, clearance, eps, separation=True):
     keys = _keys(pairs, mech.n_faces)
     is_pivot, pos = _in_sorted(keys, pan.pivot_keys)
     measure = separation or clearance > 0
-    overlap, dist = triangle_states(pan, poses, frame[row], ia, ib, eps, measure)
+    enough = None
+    if need is not None and len(row) > len(pairs):
+        # Pivoting pairs take their separation from the wedges: their triangles only
+        # need the crossing test (spheres apart cannot cross).
+        enough = np.where(is_pivot, 0.0, np.asarray(need, float) + clearance)[row]
+    overlap, dist = triangle_states(pan, poses, frame[row], ia, ib, eps, measure, enough)
     single = len(row) == len(pairs)  # one triangle per face: row is 0, 1, 2, ...
     if single:
         hit = overlap > eps

@@ -79,10 +79,10 @@ class Evaluator:
         d = centre[frame, pairs[:, 0]] - centre[frame, pairs[:, 1]]
         return (np.sqrt((d * d).sum(axis=1)) - self.pan.radius[pairs].sum(axis=1) - self.clearance)
 
-    def state(self, poses, frame, pairs):
-        """Exact separation and collision flag of pairs at ``poses[frame]``."""
+    def state(self, poses, frame, pairs, need):
+        """Separation (exact below ``need``) and collision flag of pairs at ``poses[frame]``."""
         self.stats["pair_tests"] += len(pairs)
-        return pair_state(self.mech, self.pan, poses, frame, pairs, self.clearance, self.eps)
+        return pair_state(self.mech, self.pan, poses, frame, pairs, self.clearance, self.eps, need=need)
 
     def evaluate(self, t, pairs, need, pivot):
         """Separation (n,) and collision flag (n,) of face pairs (n, 2) at t (n,).
@@ -109,7 +109,7 @@ class Evaluator:
             sep[rows[far]] = gap[far]
             near = rows[~far]
             if len(near):
-                sep[near], hit[near] = self.state(poses, frame[~far], pairs[near])
+                sep[near], hit[near] = self.state(poses, frame[~far], pairs[near], need[near])
         return sep, hit
 
 
@@ -235,6 +235,8 @@ def _node_states(ev, grid, centre, start, end, pairs, need, pivot):
     if not len(node_keys):
         return sep0, hit0, sep1, hit1
     uniq, back = np.unique(node_keys, return_inverse=True)
+    u_need = np.full(len(uniq), -np.inf)
+    np.maximum.at(u_need, back, np.concatenate([need[rows] for _, rows in ends]))
     node = uniq // (f * f)
     node_pairs = np.column_stack([(uniq // f) % f, uniq % f])
     u_sep, u_hit = np.empty(len(uniq)), np.zeros(len(uniq), bool)
@@ -244,7 +246,8 @@ def _node_states(ev, grid, centre, start, end, pairs, need, pivot):
             continue
         values = np.unique(node[s:e])
         poses = ev.poses(grid[values])
-        u_sep[s:e], u_hit[s:e] = ev.state(poses, np.searchsorted(values, node[s:e]), node_pairs[s:e])
+        u_sep[s:e], u_hit[s:e] = ev.state(poses, np.searchsorted(values, node[s:e]), node_pairs[s:e],
+                                            u_need[s:e])
     offset = 0
     for side, rows in ends:
         part = back[offset:offset + len(rows)]
