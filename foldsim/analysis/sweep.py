@@ -39,6 +39,9 @@ from .panels import _face_boxes, _in_sorted, _keys, panels
 MAX_STEPS = 4096
 """Most start-grid steps over the swept range."""
 
+MAX_FACE_STEPS = 1_000_000
+"""Most fine-grid steps times faces: the grid's boxes and centres stay below ~100 MB."""
+
 POSE_BUDGET = 2_000_000
 """Pose matrix entries (4 x 4 per face per t) held at once."""
 
@@ -118,7 +121,7 @@ def _grid(mech, pan, speed, lo_t, hi_t):
 
     k is the least for which a typical panel (speed at the 75th percentile) moves no
     more than its own size (median bounding diameter) in one fine step, and the fine
-    grid has at most `MAX_STEPS` steps.
+    grid has at most `MAX_STEPS` steps and `MAX_FACE_STEPS` steps times faces.
 
     Returns
     -------
@@ -131,8 +134,9 @@ def _grid(mech, pan, speed, lo_t, hi_t):
                                        [x for x in (-1.0, 0.0, 1.0) if lo_t < x < hi_t]]))
     size = float(np.median(2.0 * pan.radius)) or mech.size
     typical = float(np.quantile(speed, 0.75))
+    most = min(MAX_STEPS, max(len(coarse) - 1, MAX_FACE_STEPS // mech.n_faces))
     k = 0
-    while (len(coarse) - 1) * 2 ** (k + 1) <= MAX_STEPS and span * typical / (n_steps * 2 ** k) > size:
+    while (len(coarse) - 1) * 2 ** (k + 1) <= most and span * typical / (n_steps * 2 ** k) > size:
         k += 1
     parts = 2 ** k
     frac = np.arange(parts) / parts
