@@ -268,6 +268,8 @@ def touching(mech, objects, poses, pair, eps):
     pb = geometry.transform_points(poses[b], mech.flat_faces[b])
     if np.linalg.norm(pa[:, None] - pb[None], axis=-1).min() <= eps:
         return "vertex"
+    for f in (a, b):  # the objects still hold the last frame's poses: set this frame's
+        objects[f].setTransform(fcl.Transform(poses[f][:3, :3], poses[f][:3, 3]))
     distance = fcl.distance(objects[a], objects[b], fcl.DistanceRequest(), fcl.DistanceResult())
     if abs(distance) > eps:
         return "no"
@@ -388,8 +390,22 @@ def per_frame_table(models, n_frames, rng):
     return problems
 
 
+# Peak memory is each child's VmHWM (/proc/self/status): the high-water mark of its own
+# address space, which a child does not inherit from its parent (ru_maxrss does).
+CHECK = """
+import runpy, sys
+sys.path.insert(0, {root!r})
+sys.argv = ["foldsim", "check", {path!r}]
+try:
+    runpy.run_module("foldsim", run_name="__main__")
+finally:
+    with open("/proc/self/status") as status:
+        peak = [int(line.split()[1]) * 1024 for line in status if line.startswith("VmHWM:")]
+    sys.stderr.write(f"PEAK {{peak[0]}}\\n")
+"""
+
 CHILD = """
-import json, resource, sys, time
+import json, sys, time
 sys.path.insert(0, {root!r})
 from foldsim.io.mechanism_json import load
 from foldsim.gearing import fold_schedule
@@ -401,19 +417,17 @@ built = time.perf_counter() - start
 start = time.perf_counter()
 found = collision.collision_intervals(mech, fold_schedule(mech), pan=pan)
 sweep = time.perf_counter() - start
-print(json.dumps({{"panels": built, "sweep": sweep, "found": len(found),
-                   "rss": resource.getrusage(resource.RUSAGE_SELF).ru_maxrss * 1024}}))
+with open("/proc/self/status") as status:
+    peak = [int(line.split()[1]) * 1024 for line in status if line.startswith("VmHWM:")]
+print(json.dumps({{"panels": built, "sweep": sweep, "found": len(found), "rss": peak[0]}}))
 """
 
 
 def _child(argv):
-    """Run a command; wall time, peak resident memory (bytes) and stdout."""
+    """Run a command; wall time, stdout, stderr and exit code."""
     start = time.perf_counter()
-    proc = subprocess.Popen(argv, stdout=subprocess.PIPE, stderr=subprocess.DEVNULL, text=True)
-    out = proc.stdout.read()
-    _, status, usage = os.wait4(proc.pid, 0)
-    proc.returncode = os.waitstatus_to_exitcode(status)
-    return time.perf_counter() - start, usage.ru_maxrss * 1024, out, proc.returncode
+    done = subprocess.run(argv, capture_output=True, text=True)
+    return time.perf_counter() - start, done.stdout, done.stderr, done.returncode
 
 
 def _slope(x, y):
@@ -429,8 +443,9 @@ def scaling_table(levels):
             path = str(Path(tmp) / f"g{k}.mech.json")
             subprocess.run([sys.executable, "-m", "foldsim", "new", f"geodesic:{k}", "-o", path],
                            check=True, stdout=subprocess.DEVNULL, cwd=root)
-            wall, rss, _, code = _child([sys.executable, "-m", "foldsim", "check", path])
-            _, _, out, _ = _child([sys.executable, "-c", CHILD.format(root=root, path=path)])
+            wall, _, err, code = _child([sys.executable, "-c", CHECK.format(root=root, path=path)])
+            rss = int(err.rsplit("PEAK ", 1)[1].split()[0])
+            _, out, _, _ = _child([sys.executable, "-c", CHILD.format(root=root, path=path)])
             child = json.loads(out)
             rows.append((20 * 4 ** k, wall, rss, code, child))
     print("\n== (f) scaling: `foldsim check` on `foldsim new geodesic:K` (min-diameter net, gears), "
