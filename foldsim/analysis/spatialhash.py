@@ -18,8 +18,8 @@ import numpy as np
 MAX_CELLS = 27
 """Cells a box may cover before it is tested directly."""
 
-ROW_BUDGET = 2_000_000
-"""About how many (box, cell) entries one block of frames may make."""
+ROW_BUDGET = 100_000
+"""About how many (box, cell) entries one block of frames may make (bounds memory)."""
 
 
 def _cell_size(lo, hi):

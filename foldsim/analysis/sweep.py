@@ -39,6 +39,9 @@ from .panels import _face_boxes, _in_sorted, _keys, panels
 MAX_STEPS = 4096
 """Most start-grid steps over the swept range."""
 
+ROW_CHUNK = 250_000
+"""Candidate rows expanded to fine steps at once."""
+
 MAX_FACE_STEPS = 1_000_000
 """Most fine-grid steps times faces: the grid's boxes and centres stay below ~100 MB."""
 
@@ -55,7 +58,10 @@ class Evaluator:
         self.eps = tol.contact * mech.size
         self.profile = speed_profile(mech, schedule.rates)
         self.speed = self.profile[:, 0]
-        self.pivot_rate = pan.pivot_path.astype(float) @ np.abs(schedule.rates)
+        speeds = np.abs(schedule.rates)
+        self.pivot_rate = np.concatenate(
+            [pan.pivot_path[k:k + 1024] @ speeds for k in range(0, len(pan.pivot_path), 1024)]
+            or [np.zeros(0)])
         self.chunk = max(1, POSE_BUDGET // (16 * mech.n_faces))
         self.stats = stats if stats is not None else {}
         self.stats.setdefault("t_values", 0)
@@ -210,11 +216,15 @@ def _candidates(ev, grid, lo, hi, k):
     skip, _ = _in_sorted(_keys(rows[:, 1:], ev.mech.n_faces), ev.pan.skip_keys)
     rows = rows[~skip]
     if block > 1:
-        step = (rows[:, :1] * block + np.arange(block)[None, :]).ravel()
-        a, b = np.repeat(rows[:, 1], block), np.repeat(rows[:, 2], block)
-        meet = (np.maximum(swept_lo[step, a], swept_lo[step, b])
-                <= np.minimum(swept_hi[step, a], swept_hi[step, b])).all(axis=1)
-        rows = np.column_stack([step[meet], a[meet], b[meet]])
+        out = []
+        for k in range(0, len(rows), ROW_CHUNK):
+            part = rows[k:k + ROW_CHUNK]
+            step = (part[:, :1] * block + np.arange(block)[None, :]).ravel()
+            a, b = np.repeat(part[:, 1], block), np.repeat(part[:, 2], block)
+            meet = (np.maximum(swept_lo[step, a], swept_lo[step, b])
+                    <= np.minimum(swept_hi[step, a], swept_hi[step, b])).all(axis=1)
+            out.append(np.column_stack([step[meet], a[meet], b[meet]]))
+        rows = np.concatenate(out) if out else np.zeros((0, 3), dtype=int)
     return rows
 
 
