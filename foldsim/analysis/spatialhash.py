@@ -6,7 +6,8 @@ Detection", 2005, section 7.1). Every box is entered into each grid cell it
 overlaps; two boxes can overlap only if they share a cell. A pair is reported only
 from the one cell that holds the lower corner of the two boxes' intersection, so it
 is found once, without deduplication. Boxes that would cover more than `MAX_CELLS`
-cells are set apart and tested against every box of their frame directly.
+cells find their partners on a grid of `COARSE` times larger cells, and the few too
+large even for that are tested against every box of their frame directly.
 
 The answers are those of `broadphase.overlapping_boxes` (closed boxes: touching
 boxes overlap; a box with ``lo > hi`` on some axis is empty), which stays the
@@ -16,7 +17,7 @@ reference. Everything is vectorised over boxes and over frames.
 import numpy as np
 
 MAX_CELLS = 27
-"""Cells a box may cover before it is tested directly."""
+"""Cells a box may cover before it goes to the coarser grid."""
 
 ROW_BUDGET = 100_000
 """About how many (box, cell) entries one block of frames may make (bounds memory)."""
@@ -66,23 +67,75 @@ def _block_pairs(lo, hi, frame, cell, origin):
     keep &= home == key[i]
     ia, ib = ia[keep], ib[keep]
     rows = [np.column_stack([ia, ib])]
-    # Big boxes against every box of their frame (frames are contiguous runs).
-    bigs = np.flatnonzero(big)
-    if len(bigs):
-        frame_start = np.searchsorted(frame, frame[bigs], side="left")
-        frame_end = np.searchsorted(frame, frame[bigs], side="right")
-        per = frame_end - frame_start
-        block = max(1, ROW_BUDGET // max(1, int(per.max())))
-        for k in range(0, len(bigs), block):
-            g, fs, cnt = bigs[k:k + block], frame_start[k:k + block], per[k:k + block]
-            first = np.repeat(g, cnt)
-            other = np.repeat(fs, cnt) + (np.arange(cnt.sum()) - np.repeat(np.cumsum(cnt) - cnt, cnt))
-            # A pair of two big boxes is reported by the smaller index only.
-            keep = (other != first) & (~big[other] | (other > first))
-            first, other = first[keep], other[keep]
-            hit = (np.maximum(lo[other], lo[first]) <= np.minimum(hi[other], hi[first])).all(axis=1)
-            rows.append(np.column_stack([first[hit], other[hit]]))
+    if big.any():
+        rows.append(_big_pairs(lo, hi, frame, big, cell * COARSE, origin))
     return np.concatenate(rows)
+
+
+COARSE = 8
+"""How much larger the cells are on which big boxes find their partners."""
+
+
+def _big_pairs(lo, hi, frame, big, cell, origin):
+    """Pairs (p, 2) with at least one big box, found on a grid of larger cells.
+
+    Every box that fits is entered into the coarse grid; each big box is paired with
+    the entries of its cells, a pair being kept in the one cell that holds the lower
+    corner of the boxes' intersection. Boxes too large even there are tested against
+    every box of their frame (frames are contiguous runs).
+    """
+    first = np.floor((lo - origin) / cell).astype(np.int64)
+    last = np.floor((hi - origin) / cell).astype(np.int64)
+    span = last - first + 1
+    n_cells = span.prod(axis=1)
+    huge = n_cells > MAX_CELLS
+    dims = last.max(axis=0) + 1
+    fits = np.flatnonzero(~huge)
+    counts = n_cells[fits]
+    owner = np.repeat(fits, counts)
+    local = np.arange(counts.sum()) - np.repeat(np.cumsum(counts) - counts, counts)
+    sy, sz = span[owner, 1], span[owner, 2]
+    cx = first[owner, 0] + local // (sy * sz)
+    cy = first[owner, 1] + (local // sz) % sy
+    cz = first[owner, 2] + local % sz
+    key = ((frame[owner] * dims[0] + cx) * dims[1] + cy) * dims[2] + cz
+    order = np.argsort(key, kind="stable")
+    key, owner = key[order], owner[order]
+    run_start = np.searchsorted(key, key, side="left")
+    run_end = np.searchsorted(key, key, side="right")
+    rows = []
+    seeds = np.flatnonzero(big[owner])
+    per = run_end[seeds] - run_start[seeds]
+    step = max(1, ROW_BUDGET // max(1, int(per.max()) if len(per) else 1))
+    for k in range(0, len(seeds), step):
+        s, cnt = seeds[k:k + step], per[k:k + step]
+        i = np.repeat(s, cnt)
+        j = np.repeat(run_start[s], cnt) + (np.arange(cnt.sum()) - np.repeat(np.cumsum(cnt) - cnt, cnt))
+        a, b = owner[i], owner[j]
+        # A pair of two big boxes comes from both; keep it from the smaller index.
+        keep = (a != b) & (~big[b] | (b > a))
+        i, a, b = i[keep], a[keep], b[keep]
+        low = np.maximum(lo[a], lo[b])
+        meet = (low <= np.minimum(hi[a], hi[b])).all(axis=1)
+        home_cell = np.floor((low - origin) / cell).astype(np.int64)
+        home = ((frame[a] * dims[0] + home_cell[:, 0]) * dims[1] + home_cell[:, 1]) * dims[2] + home_cell[:, 2]
+        meet &= home == key[i]
+        rows.append(np.column_stack([a[meet], b[meet]]))
+    huges = np.flatnonzero(huge)
+    if len(huges):
+        frame_start = np.searchsorted(frame, frame[huges], side="left")
+        per = np.searchsorted(frame, frame[huges], side="right") - frame_start
+        step = max(1, ROW_BUDGET // max(1, int(per.max())))
+        for k in range(0, len(huges), step):
+            g, fs, cnt = huges[k:k + step], frame_start[k:k + step], per[k:k + step]
+            a = np.repeat(g, cnt)
+            b = np.repeat(fs, cnt) + (np.arange(cnt.sum()) - np.repeat(np.cumsum(cnt) - cnt, cnt))
+            # A pair of two huge boxes is reported by the smaller index only.
+            keep = (b != a) & (~huge[b] | (b > a))
+            a, b = a[keep], b[keep]
+            meet = (np.maximum(lo[b], lo[a]) <= np.minimum(hi[b], hi[a])).all(axis=1)
+            rows.append(np.column_stack([a[meet], b[meet]]))
+    return np.concatenate(rows) if rows else np.zeros((0, 2), dtype=np.int64)
 
 
 def box_pairs_batched(lo, hi):
