@@ -227,17 +227,25 @@ def test_sweep_matches_reference_with_clearance():
                        reference.collision_intervals(mech, schedule, clearance=clearance))
 
 
-def test_first_only_stops_at_a_real_collision():
-    # Reference: the full sweep; the early exit returns some of its intervals, and
-    # nothing when the full sweep finds nothing.
-    mech = mechanism_from_solid(solids.cube())
+@pytest.mark.parametrize("shape", ["cube", "prism:5", "prism:6", "antiprism:4", "cuboctahedron"])
+def test_first_only_finds_the_earliest_collision_of_the_full_sweep(shape):
+    # Reference: the full sweep; the early exit must report its earliest interval
+    # (smallest first_t, ties to the smallest pair) exactly, and nothing when the
+    # full sweep finds nothing.
+    mech = mechanism_from_solid(solids.builtin(shape))
     schedule = fold_schedule(mech)
-    full = collision.collision_intervals(mech, schedule, 0.0, 1.4)
-    early = collision.collision_intervals(mech, schedule, 0.0, 1.4, first_only=True)
-    assert full and early
-    assert {tuple(c["faces"]) for c in early} <= {tuple(c["faces"]) for c in full}
-    clean = collision.collision_intervals(mech, schedule, 0.0, 1.0, first_only=True)
-    assert clean == collision.collision_intervals(mech, schedule, 0.0, 1.0) == []
+    for t_to in (1.0, 1.4):
+        full = collision.collision_intervals(mech, schedule, 0.0, t_to)
+        stats_full, stats_early = {}, {}
+        collision.collision_intervals(mech, schedule, 0.0, t_to, stats=stats_full)
+        early = collision.collision_intervals(mech, schedule, 0.0, t_to, first_only=True, stats=stats_early)
+        if not full:
+            assert early == []
+            continue
+        key = lambda c: (c["first_t"], c["faces"])  # noqa: E731
+        first, got = min(full, key=key), min(early, key=key)
+        assert (got["faces"], got["first_t"]) == (first["faces"], first["first_t"])
+        assert stats_early["pair_tests"] <= stats_full["pair_tests"]
 
 
 def test_stats_count_the_work():

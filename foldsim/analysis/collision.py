@@ -39,6 +39,9 @@ from . import narrowphase, spatialhash
 from .narrowphase import pair_state
 from .panels import Panels, _in_sorted, _keys, panels, triangle_pairs
 from .sweep import collision_intervals as _sweep
+# The earlier sweep's private helpers, for callers written against them (they run the
+# reference path; `collision_intervals(..., first_only=True)` is the fast early exit).
+from .reference import _Evaluator, _swept_candidates  # noqa: F401
 
 __all__ = ["Panels", "panels", "triangle_pairs", "pair_state", "collision_intervals",
            "colliding_pairs", "flat_overlaps"]
@@ -65,9 +68,13 @@ def collision_intervals(mech, schedule, t_from=0.0, t_to=1.0, clearance=0.0, tol
         share in [0, 1] of the candidate stretches of t already settled. It may
         raise to abandon the sweep; the exception propagates to the caller.
     first_only : bool, optional
-        Stop early: return after the refinement round in which the first collision
-        is found, with the intervals found up to then (at least one). Without any
-        collision the whole sweep runs and the result is [].
+        Early exit for callers that need only the earliest collision: once one is
+        found, every stretch of t that starts after the earliest collision found so
+        far is dropped (it cannot hold an earlier one) and the rest is refined as in
+        the full sweep. The result then holds the full sweep's earliest interval,
+        with the same ``faces`` and ``first_t`` (``min(result, key=lambda c:
+        (c["first_t"], c["faces"]))``); other entries and ``last_t`` may be cut
+        short. Without any collision the whole sweep runs and the result is [].
     stats : dict, optional
         Filled with work counts: ``t_values`` (drive values posed), ``pair_tests``
         (exact face-pair tests), ``candidates`` (candidate stretches from the broad

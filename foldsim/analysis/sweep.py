@@ -278,9 +278,9 @@ def collision_intervals(mech, schedule, t_from=0.0, t_to=1.0, clearance=0.0, tol
     """Every colliding face pair over the motion, with its first and last t.
 
     See `foldsim.analysis.collision.collision_intervals` for the parameters and the
-    result. ``first_only`` returns after the refinement round that finds the first
-    collision, with the intervals found so far (at least one; [] when there is no
-    collision, after the whole sweep). ``stats``, a dict, receives the counts
+    result. ``first_only``: once a collision is found, stretches that start after
+    the earliest one found are dropped, so the sweep ends as soon as the earliest
+    collision is known; ``stats``, a dict, receives the counts
     ``t_values`` (drive values posed), ``pair_tests`` (exact face-pair tests),
     ``candidates`` (swept-box candidate stretches) and ``grid_steps``.
     """
@@ -302,6 +302,7 @@ def collision_intervals(mech, schedule, t_from=0.0, t_to=1.0, clearance=0.0, tol
     sep0, hit0, sep1, hit1 = _node_states(ev, grid, centre, start, end, pairs, rate * (t1 - t0), pivot)
     del centre, cand
     found = []
+    earliest = None
     resolution = tol.t_resolution / 2
     total = float((t1 - t0).sum()) or 1.0
     while len(pairs):
@@ -310,11 +311,10 @@ def collision_intervals(mech, schedule, t_from=0.0, t_to=1.0, clearance=0.0, tol
         for hit, t in ((hit0 & ~hit1, t0), (hit1 & ~hit0, t1)):
             found.append(np.column_stack([pairs[hit], t[hit], t[hit]]))
         if first_only:
-            merged = _merge(np.concatenate(found))
-            if merged:
-                if progress is not None:
-                    progress(1.0)
-                return merged
+            rows = np.concatenate(found)
+            starts = rows[:, 2][~((rows[:, 2] == 0.0) & (rows[:, 3] == 0.0))]
+            if len(starts):
+                earliest = float(starts.min())
         # The parts of [t0, t1] within reach of an end's separation are clear; what
         # is left, [u0, u1], is where a contact could still be.
         with np.errstate(divide="ignore", invalid="ignore"):
@@ -322,6 +322,10 @@ def collision_intervals(mech, schedule, t_from=0.0, t_to=1.0, clearance=0.0, tol
             u0 = np.where(moving, t0 + sep0 / rate, t0)
             u1 = np.where(moving, t1 - sep1 / rate, t1)
         open_ = ~both & (sep0 + sep1 <= rate * (t1 - t0)) & (u1 - u0 > resolution)
+        if earliest is not None:
+            # A stretch that starts after the earliest collision found cannot hold an
+            # earlier one; every other stretch is refined as in the full sweep.
+            open_ &= t0 <= earliest
         pairs, t0, t1, rate, pivot = pairs[open_], t0[open_], t1[open_], rate[open_], pivot[open_]
         u0, u1 = u0[open_], u1[open_]
         sep0, hit0, sep1, hit1 = sep0[open_], hit0[open_], sep1[open_], hit1[open_]
