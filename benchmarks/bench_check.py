@@ -31,10 +31,13 @@ Stages:
 
 import argparse
 import datetime
+import json
 import math
 import os
 import platform
+import subprocess
 import sys
+import tempfile
 import time
 from pathlib import Path
 
@@ -46,12 +49,12 @@ sys.path.insert(0, str(Path(__file__).resolve().parent.parent))
 import fcl  # noqa: E402
 
 from foldsim import geometry  # noqa: E402
-from foldsim.analysis import collision  # noqa: E402
+from foldsim.analysis import collision, reference  # noqa: E402
 from foldsim.analysis.closure import cut_edge_gaps  # noqa: E402
 from foldsim.gearing import fold_angles, fold_schedule  # noqa: E402
 from foldsim.kinematics import face_poses  # noqa: E402
 from foldsim.model import build_mechanism  # noqa: E402
-from foldsim.solids import geodesic  # noqa: E402
+from foldsim.solids import geodesic, icosahedron, prism  # noqa: E402
 from foldsim.tolerances import DEFAULT  # noqa: E402
 
 RADIUS = 100.0  # mm
@@ -61,7 +64,11 @@ SAMPLE = 200    # fcl-only pairs verified per model
 def sphere_mechanism(level):
     """Geodesic sphere with a BFS spanning tree of its face adjacency as hinges."""
     solid = geodesic(level, radius=RADIUS)
-    faces = [f.tolist() for f in solid.faces]
+    return bfs_mechanism(solid.vertices, [f.tolist() for f in solid.faces], f"geodesic({level})")
+
+
+def bfs_mechanism(vertices, faces, name):
+    """A closed solid with a BFS spanning tree of its face adjacency (from face 0) as hinges."""
     owners = {}
     for f, face in enumerate(faces):
         for k in range(len(face)):
@@ -71,7 +78,40 @@ def sphere_mechanism(level):
     graph.add_nodes_from(range(len(faces)))
     graph.add_edges_from(tuple(pair) for pair in owners.values() if len(pair) == 2)
     hinges = [list(e) for e in nx.bfs_edges(graph, 0, sort_neighbors=sorted)]
-    return build_mechanism(solid.vertices, faces, hinges, name=f"geodesic({level})")
+    return build_mechanism(vertices, faces, hinges, name=name)
+
+
+def frequency_sphere(n):
+    """Class I geodesic sphere: every icosahedron face cut into n * n triangles, the
+    vertices pushed out onto the sphere (20 n^2 triangles; n = 22 gives 9,680)."""
+    ico = icosahedron()
+    unit_v = ico.vertices / np.linalg.norm(ico.vertices, axis=1, keepdims=True)
+    index, vertices, faces = {}, [], []
+
+    def vid(p):
+        p = p / np.linalg.norm(p)
+        key = tuple(np.round(p * 1e9).astype(np.int64))
+        if key not in index:
+            index[key] = len(vertices)
+            vertices.append(p * RADIUS)
+        return index[key]
+
+    for i, j, k in ico.faces:
+        a, b, c = unit_v[i], unit_v[j], unit_v[k]
+        ids = {(x, y): vid(a + (b - a) * x / n + (c - a) * y / n)
+               for x in range(n + 1) for y in range(n + 1 - x)}
+        for x in range(n):
+            for y in range(n - x):
+                faces.append([ids[x, y], ids[x + 1, y], ids[x, y + 1]])
+                if x + y + 2 <= n:
+                    faces.append([ids[x + 1, y], ids[x + 1, y + 1], ids[x, y + 1]])
+    return bfs_mechanism(np.array(vertices), faces, f"sphere frequency {n}")
+
+
+def prism_mechanism(n):
+    """prism:n (two n-gons and n squares, edge 20 mm) with a BFS net."""
+    solid = prism(n, edge=20.0)
+    return bfs_mechanism(solid.vertices, [list(f) for f in solid.faces], f"prism:{n}")
 
 
 def best_of(repeat, fn):
@@ -134,29 +174,23 @@ def stage_gaps(mech, t, poses, rows):
 
 
 def stage_sweep(mech, schedule, pan, rows):
-    """(c): the full collision sweep, counting posed drive values and tested pairs."""
-    counts = {"t": 0, "pairs": 0}
-    poses_fn, state_fn = collision.face_poses, collision.pair_state
-
-    def counting_poses(m, angles):
-        counts["t"] += len(angles)
-        return poses_fn(m, angles)
-
-    def counting_state(*args, **kwargs):
-        counts["pairs"] += len(kwargs["pairs"] if "pairs" in kwargs else args[4])
-        return state_fn(*args, **kwargs)
-
-    collision.face_poses, collision.pair_state = counting_poses, counting_state
-    try:
-        start = time.perf_counter()
-        found = collision.collision_intervals(mech, schedule, pan=pan)
-        elapsed = time.perf_counter() - start
-    finally:
-        collision.face_poses, collision.pair_state = poses_fn, state_fn
+    """(c): the full collision sweep, with its own counts of posed drive values and tested pairs."""
+    counts = {}
+    start = time.perf_counter()
+    found = collision.collision_intervals(mech, schedule, pan=pan, stats=counts)
+    elapsed = time.perf_counter() - start
+    start = time.perf_counter()
+    ref_found = reference.collision_intervals(mech, schedule, pan=pan)
+    ref_elapsed = time.perf_counter() - start
+    same = [c["faces"] for c in found] == [c["faces"] for c in ref_found]
     rows.append(("(c) collision sweep, t in [0, 1]", f"{elapsed:.2f} s",
-                 f"{counts['t']} drive values posed, {elapsed / counts['t'] * 1e3:.2f} ms each; "
-                 f"{counts['pairs']} face-pair tests; {len(found)} collision interval(s)"))
-    return found, elapsed, counts
+                 f"{counts['t_values']} drive values posed, {elapsed / counts['t_values'] * 1e3:.2f} ms each; "
+                 f"{counts['pair_tests']} face-pair tests; {counts['candidates']} candidate stretches on "
+                 f"{counts['grid_steps']} steps; {len(found)} collision interval(s)"))
+    rows.append(("(c) collision sweep, reference", f"{ref_elapsed:.2f} s",
+                 f"analysis/reference.py; reference / fast = {ref_elapsed / elapsed:.1f}; "
+                 f"same colliding pairs: {same}"))
+    return found, elapsed, counts, same
 
 
 def fcl_world(mech):
@@ -234,6 +268,8 @@ def touching(mech, objects, poses, pair, eps):
     pb = geometry.transform_points(poses[b], mech.flat_faces[b])
     if np.linalg.norm(pa[:, None] - pb[None], axis=-1).min() <= eps:
         return "vertex"
+    for f in (a, b):  # the objects still hold the last frame's poses: set this frame's
+        objects[f].setTransform(fcl.Transform(poses[f][:3, :3], poses[f][:3, 3]))
     distance = fcl.distance(objects[a], objects[b], fcl.DistanceRequest(), fcl.DistanceResult())
     if abs(distance) > eps:
         return "no"
@@ -308,7 +344,7 @@ def run(level, n_t, n_frames, rng):
     t, poses, error = stage_poses(mech, schedule, n_t, rows)
     stage_gaps(mech, t, poses, rows)
     del poses
-    found, _, _ = stage_sweep(mech, schedule, pan, rows)
+    found, _, _, same = stage_sweep(mech, schedule, pan, rows)
     frames = stage_frames(mech, schedule, pan, n_frames, rows, rng)
     width = max(len(r[0]) for r in rows)
     print(f"\n== geodesic({level}): {mech.n_faces} faces ==")
@@ -319,6 +355,8 @@ def run(level, n_t, n_frames, rng):
         problems.append(f"batched and reference poses differ by {error:.1e}")
     if frames["only_ours"]:
         problems.append(f"foldsim-only pairs (t, pair): {frames['only_ours'][:10]}")
+    if not same:
+        problems.append("fast and reference sweeps report different colliding pairs")
     if frames["untouched"]:
         problems.append(f"fcl-only pairs that do not touch (t, pair): {frames['untouched'][:10]}")
     if found:
@@ -326,13 +364,118 @@ def run(level, n_t, n_frames, rng):
     return problems
 
 
+def per_frame_table(models, n_frames, rng):
+    """(e): colliding_pairs against python-fcl on several models; rows and problems."""
+    out, problems = [], []
+    for mech in models:
+        schedule = fold_schedule(mech)
+        start = time.perf_counter()
+        pan = collision.panels(mech)
+        built = time.perf_counter() - start
+        rows = []
+        frames = stage_frames(mech, schedule, pan, n_frames, rows, rng)
+        out.append((mech.name, mech.n_faces, len(pan.tri_face), built, frames))
+        if frames["only_ours"]:
+            problems.append(f"{mech.name}: foldsim-only pairs (t, pair): {frames['only_ours'][:10]}")
+        if frames["untouched"]:
+            problems.append(f"{mech.name}: fcl-only pairs that do not touch: {frames['untouched'][:10]}")
+    print("\n== (e) per-frame collision query against python-fcl ==")
+    print(f"{'model':<22} {'panels':>7} {'triangles':>9} {'panels()':>9} {'foldsim':>9} {'fcl':>9} "
+          f"{'foldsim/fcl':>11}  pairs both / only fcl (sampled: touching) / only foldsim")
+    for name, faces, tris, built, f in out:
+        v = f["verdicts"]
+        print(f"{name:<22} {faces:>7} {tris:>9} {built:>8.2f}s {f['t_ours'] * 1e3:>7.1f}ms "
+              f"{f['t_fcl'] * 1e3:>7.1f}ms {f['t_ours'] / f['t_fcl']:>11.2f}  {f['both']} / {f['only_fcl']} "
+              f"({v['vertex'] + v['depth'] + v['edge']} of {sum(v.values())}) / {len(f['only_ours'])}")
+    return problems
+
+
+# Peak memory is each child's VmHWM (/proc/self/status): the high-water mark of its own
+# address space, which a child does not inherit from its parent (ru_maxrss does).
+CHECK = """
+import runpy, sys
+sys.path.insert(0, {root!r})
+sys.argv = ["foldsim", "check", {path!r}]
+try:
+    runpy.run_module("foldsim", run_name="__main__")
+finally:
+    with open("/proc/self/status") as status:
+        peak = [int(line.split()[1]) * 1024 for line in status if line.startswith("VmHWM:")]
+    sys.stderr.write(f"PEAK {{peak[0]}}\\n")
+"""
+
+CHILD = """
+import json, sys, time
+sys.path.insert(0, {root!r})
+from foldsim.io.mechanism_json import load
+from foldsim.gearing import fold_schedule
+from foldsim.analysis import collision
+mech = load({path!r})
+start = time.perf_counter()
+pan = collision.panels(mech)
+built = time.perf_counter() - start
+start = time.perf_counter()
+found = collision.collision_intervals(mech, fold_schedule(mech), pan=pan)
+sweep = time.perf_counter() - start
+with open("/proc/self/status") as status:
+    peak = [int(line.split()[1]) * 1024 for line in status if line.startswith("VmHWM:")]
+print(json.dumps({{"panels": built, "sweep": sweep, "found": len(found), "rss": peak[0]}}))
+"""
+
+
+def _child(argv):
+    """Run a command; wall time, stdout, stderr and exit code."""
+    start = time.perf_counter()
+    done = subprocess.run(argv, capture_output=True, text=True)
+    return time.perf_counter() - start, done.stdout, done.stderr, done.returncode
+
+
+def _slope(x, y):
+    return float(np.polyfit(np.log(x), np.log(y), 1)[0])
+
+
+def scaling_table(levels):
+    """(f): `foldsim check` and the sweep alone on `foldsim new geodesic:K` designs, fresh processes."""
+    root = str(Path(__file__).resolve().parent.parent)
+    rows = []
+    with tempfile.TemporaryDirectory() as tmp:
+        for k in levels:
+            path = str(Path(tmp) / f"g{k}.mech.json")
+            subprocess.run([sys.executable, "-m", "foldsim", "new", f"geodesic:{k}", "-o", path],
+                           check=True, stdout=subprocess.DEVNULL, cwd=root)
+            wall, _, err, code = _child([sys.executable, "-c", CHECK.format(root=root, path=path)])
+            rss = int(err.rsplit("PEAK ", 1)[1].split()[0])
+            _, out, _, _ = _child([sys.executable, "-c", CHILD.format(root=root, path=path)])
+            child = json.loads(out)
+            rows.append((20 * 4 ** k, wall, rss, code, child))
+    print("\n== (f) scaling: `foldsim check` on `foldsim new geodesic:K` (min-diameter net, gears), "
+          "fresh process each ==")
+    print(f"{'panels':>7} {'check wall':>11} {'check peak':>11} {'exit':>5} {'sweep':>8} {'sweep peak':>11} "
+          f"{'panels()':>9} {'collisions':>10}")
+    for n, wall, rss, code, c in rows:
+        print(f"{n:>7} {wall:>10.2f}s {rss / 2 ** 30:>9.2f}GB {code:>5} {c['sweep']:>7.2f}s "
+              f"{c['rss'] / 2 ** 30:>9.2f}GB {c['panels']:>8.2f}s {c['found']:>10}")
+    big = [r for r in rows if r[0] >= 320]
+    if len(big) >= 2:
+        n = [r[0] for r in big]
+        print(f"fitted exponent (least squares of log time on log panels, {n[0]} to {n[-1]} panels): "
+              f"check {_slope(n, [r[1] for r in big]):.2f}, sweep {_slope(n, [r[4]['sweep'] for r in big]):.2f}")
+    last = {r[0]: r for r in rows}
+    if 1280 in last and 5120 in last:
+        a, b = last[1280], last[5120]
+        print(f"slope 1,280 -> 5,120 panels: check {math.log(b[1] / a[1]) / math.log(4):.2f}, "
+              f"sweep {math.log(b[4]['sweep'] / a[4]['sweep']) / math.log(4):.2f}")
+    return [f"geodesic:{int(round(math.log(r[0] / 20, 4)))}: check exit {r[3]}" for r in rows
+            if r[3] not in (0, 1)]
+
+
 def main(argv=None):
     parser = argparse.ArgumentParser(description=__doc__.split("\n")[0])
     parser.add_argument("--quick", action="store_true",
-                        help="geodesic(2) only, 100 t values, 10 frames")
+                        help="geodesic(2) only, 100 t values, 10 frames, small tables")
     parser.add_argument("--seed", type=int, default=1, help="seed of the fcl-only pair sample")
     args = parser.parse_args(argv)
-    levels, n_t, n_frames = ([2], 100, 10) if args.quick else ([3, 2], 1000, 50)
+    levels, n_t, n_frames = ([2], 100, 10) if args.quick else ([3], 1000, 50)
     rng = np.random.default_rng(args.seed)
     print(f"foldsim check benchmark, {datetime.date.today()}, {platform.machine()} "
           f"{platform.processor() or platform.system()}, {os.cpu_count()} cores, "
@@ -340,8 +483,13 @@ def main(argv=None):
     problems = []
     for level in levels:
         problems += [f"geodesic({level}): {p}" for p in run(level, n_t, n_frames, rng)]
+    models = ([sphere_mechanism(3), prism_mechanism(100)] if args.quick else
+              [sphere_mechanism(3), sphere_mechanism(4), frequency_sphere(22), prism_mechanism(500)])
+    problems += per_frame_table(models, 5 if args.quick else 20, rng)
+    problems += scaling_table(range(0, 4) if args.quick else range(0, 5))
     print("\nsummary: " + ("agreement: batched poses match the reference; fcl reports every pair "
-                           "foldsim reports; every sampled fcl-only pair is touching, not crossing"
+                           "foldsim reports; every sampled fcl-only pair is touching, not crossing; "
+                           "fast and reference sweeps report the same pairs"
                            if not problems else "DISAGREEMENT\n  " + "\n  ".join(problems)))
     return 1 if problems else 0
 

@@ -118,6 +118,97 @@ def triangulate(polygon, *, eps=DEFAULT_EPS):
     return np.array(triangles, dtype=int)
 
 
+EARCUT_MIN = 16
+"""Polygons with at least this many vertices go to the earcut library first."""
+
+
+def polygon_area(polygon):
+    """Area of a planar polygon (k, 3): half the length of its Newell normal (shoelace)."""
+    return 0.5 * float(np.linalg.norm(newell_normal(polygon)))
+
+
+def triangulate_polygon(polygon, *, eps=DEFAULT_EPS):
+    """Split a simple planar polygon into k - 2 triangles, fast for large k.
+
+    A triangle is returned as it is; polygons with fewer than `EARCUT_MIN` vertices
+    go to `triangulate` (ear clipping, best-shaped ear first); larger strictly convex
+    ones are split by halving their vertex range (`_halving`, O(k)); larger
+    non-convex ones go to the mapbox earcut library (V. Agafonkin, github.com/mapbox/earcut, through the
+    ``mapbox_earcut`` package; about O(k log k) with its z-order hashing). Earcut's
+    answer is kept only if it has k - 2 triangles, each turning counter-clockwise,
+    whose areas add up to the polygon's (shoelace) area; otherwise, or if the
+    package is missing, ear clipping decides.
+
+    Parameters and return value as for `triangulate`.
+    """
+    p = np.asarray(polygon, dtype=float)
+    if p.ndim == 2 and p.shape == (3, 3):
+        return np.array([[0, 1, 2]], dtype=int)
+    if p.ndim == 2 and p.shape[1] == 3 and len(p) >= EARCUT_MIN:
+        out = _halving(p) if _strictly_convex(p) else None
+        if out is None:
+            out = _earcut(p)
+        if out is not None:
+            return out
+    return triangulate(p, eps=eps)
+
+
+def _strictly_convex(p):
+    """Whether every corner of polygon p (k, 3) turns the same way, none straight."""
+    normal = newell_normal(p)
+    edge = np.roll(p, -1, axis=0) - p
+    turn = np.cross(edge, np.roll(edge, -1, axis=0)) @ normal
+    return bool((turn > 1e-9 * np.abs(turn).max()).all())
+
+
+def _halving(p):
+    """Triangles of a strictly convex polygon by halving its vertex range: (i, m, j)
+    with m midway between i and j, then each half. Any diagonal of a convex polygon
+    lies inside it, so this is a triangulation, in O(k); unlike a fan or earcut's
+    sequence of ears, its triangles shrink toward the rim instead of all reaching
+    across the polygon, which keeps their bounding boxes small for the broad phase.
+    """
+    k = len(p)
+    out = []
+    stack = [(0, k - 1)]
+    while stack:
+        i, j = stack.pop()
+        if j - i < 2:
+            continue
+        m = (i + j) // 2
+        out.append((i, m, j))
+        stack.append((i, m))
+        stack.append((m, j))
+    return np.array(out, dtype=int)
+
+
+def _earcut(p):
+    """Earcut's triangles of polygon p (k, 3) in the plane's basis, or None if unfit."""
+    try:
+        import mapbox_earcut
+    except ImportError:  # pragma: no cover - the package is a dependency
+        return None
+    normal = newell_normal(p)
+    length = np.linalg.norm(normal)
+    if length == 0.0:
+        return None
+    u, v = _plane_basis(normal / length)
+    centred = p - p.mean(axis=0)
+    q = np.ascontiguousarray(np.stack([centred @ u, centred @ v], axis=1))
+    idx = mapbox_earcut.triangulate_float64(q, np.array([len(q)], dtype=np.uint32))
+    tri = np.asarray(idx, dtype=int).reshape(-1, 3)
+    if len(tri) != len(p) - 2:
+        return None
+    twice = _turn(q[tri[:, 0]], q[tri[:, 1]], q[tri[:, 2]])
+    if (twice < 0).sum() > len(tri) // 2:
+        tri = tri[:, ::-1]
+        twice = -twice
+    area = 0.5 * twice.sum()
+    if (twice <= 0).any() or abs(area - 0.5 * length) > 1e-9 * 0.5 * length:
+        return None
+    return tri
+
+
 def _turn(o, s, t):
     """Twice the signed area of 2D triangles (o, s, t), points (..., 2) -> (...,)."""
     return (s[..., 0] - o[..., 0]) * (t[..., 1] - o[..., 1]) - (s[..., 1] - o[..., 1]) * (

@@ -1,0 +1,201 @@
+"""Panels as triangles, and the classes of face pairs the collision tests need.
+
+Panels are zero-thickness planar polygons, triangulated once in the flat frame
+(`triangles.triangulate_polygon`: the mapbox earcut library for large polygons, ear
+clipping for small ones and as the fallback). Faces joined by a hinge, or sharing a
+whole edge at every t, are never tested; pairs that share a point when flat or when
+closed touch by design (the clearance does not apply to them); convex pairs that
+share a point at every t pivot about it (their separation is an angle, see
+`narrowphase.pair_state`).
+"""
+
+from dataclasses import dataclass
+
+import numpy as np
+from scipy.spatial import cKDTree
+
+from ..geometry import transform_points
+from ..kinematics import face_poses
+from ..tolerances import DEFAULT
+from . import triangles
+
+
+@dataclass(frozen=True)
+class Panels:
+    """Triangulated panels and the pair classes the collision tests need.
+
+    Attributes
+    ----------
+    tri_face : (K,) int
+        Face of each triangle.
+    tri_points : (K, 3, 3) float
+        Triangle corners in the flat frame.
+    start, count : (F,) int
+        Each face's run of triangles.
+    skip_keys : (n,) int
+        Sorted keys ``a * F + b`` (a < b) of pairs never tested: hinged faces and
+        faces that share a whole edge at every t.
+    touch_keys : (n,) int
+        Sorted keys of pairs that share a point when flat or when ideally closed
+        (the clearance does not apply to them).
+    pivot_keys : (P,) int
+        Sorted keys of convex pairs that share a point at every t.
+    pivot_dirs : (P, 2, 2, 3) float
+        Flat-frame directions of the two edges leaving the shared point, per face.
+    pivot_path : (P, H) bool
+        Hinges on the tree path between the pair's faces.
+    centre, radius : (F, 3) float, (F,) float
+        A sphere around each face (flat frame): vertex centroid and reach.
+    """
+
+    tri_face: np.ndarray
+    tri_points: np.ndarray
+    start: np.ndarray
+    count: np.ndarray
+    skip_keys: np.ndarray
+    touch_keys: np.ndarray
+    pivot_keys: np.ndarray
+    pivot_dirs: np.ndarray
+    pivot_path: np.ndarray
+    centre: np.ndarray
+    radius: np.ndarray
+
+
+def _keys(pairs, n_faces):
+    pairs = np.sort(np.asarray(pairs, np.int64).reshape(-1, 2), axis=1)
+    return pairs[:, 0] * n_faces + pairs[:, 1]
+
+
+def _is_convex(poly, normal):
+    turn = np.cross(np.roll(poly, -1, 0) - poly, np.roll(poly, -2, 0) - np.roll(poly, -1, 0)) @ normal
+    return bool((turn > -1e-12 * np.abs(turn).max()).all())
+
+
+def _chains(mech):
+    """(F, H) bool: the hinges on each face's path from the root."""
+    chain = np.zeros((mech.n_faces, mech.n_hinges), bool)
+    for level in mech.levels:
+        chain[mech.child[level]] = chain[mech.parent[level]]
+        chain[mech.child[level], level] = True
+    return chain
+
+
+def _face_starts(mech):
+    sizes = np.array([len(p) for p in mech.flat_faces])
+    return np.concatenate([[0], np.cumsum(sizes)[:-1]])
+
+
+def panels(mech, tol=DEFAULT):
+    """Triangulate a mechanism's panels and classify its face pairs.
+
+    Returns
+    -------
+    Panels
+    """
+    n = mech.n_faces
+    tris, owner = [], []
+    for f, poly in enumerate(mech.flat_faces):
+        idx = triangles.triangulate_polygon(poly)
+        tris.append(poly[idx])
+        owner.append(np.full(len(idx), f))
+    count = np.array([len(t) for t in tris])
+    start = np.concatenate([[0], np.cumsum(count)[:-1]])
+    eps = tol.coincident * mech.size
+    closed = face_poses(mech, mech.closed_angles[None])[0]
+    flat_pts = np.concatenate(mech.flat_faces)
+    pt_face = np.concatenate([np.full(len(p), f) for f, p in enumerate(mech.flat_faces)])
+    pt_local = np.concatenate([np.arange(len(p)) for p in mech.flat_faces])
+    closed_pts = transform_points(closed[pt_face], flat_pts)
+    touch = []
+    for pts in (flat_pts, closed_pts):
+        ij = cKDTree(pts).query_pairs(eps, output_type="ndarray")
+        fa, fb = pt_face[ij[:, 0]], pt_face[ij[:, 1]]
+        touch.append(_keys(np.column_stack([fa, fb])[fa != fb], n))
+    hinged = {tuple(sorted(p)) for p in mech.hinge_faces.tolist()}
+    hinged_keys = np.unique(_keys(mech.hinge_faces, n))
+    chain = _chains(mech)
+    shared = {}
+    ij = cKDTree(flat_pts).query_pairs(eps, output_type="ndarray")
+    fa, fb = pt_face[ij[:, 0]], pt_face[ij[:, 1]]
+    ij = ij[(fa != fb) & ~_in_sorted(_keys(np.column_stack([fa, fb]), n), hinged_keys)[0]]
+    for i, j in ij.tolist():
+        a, b = pt_face[i], pt_face[j]
+        if a > b:
+            i, j, a, b = j, i, b, a
+        path = chain[a] ^ chain[b]
+        axes = mech.axes[path]
+        u, w = (axes[:, 1] - axes[:, 0]).T, (flat_pts[i] - axes[:, 0]).T
+        d2 = ((u[1] * w[2] - u[2] * w[1]) ** 2 + (u[2] * w[0] - u[0] * w[2]) ** 2
+              + (u[0] * w[1] - u[1] * w[0]) ** 2)
+        if (d2 <= eps * eps * (u * u).sum(axis=0)).all():
+            shared.setdefault((a, b), []).append((pt_local[i], pt_local[j], path))
+    skip = set(hinged)
+    pivots = []
+    convex = [len(p) == 3 or _is_convex(p, np.cross(p[1] - p[0], p[2] - p[0])) for p in mech.flat_faces]
+    for (a, b), points in shared.items():
+        if len(points) > 1:
+            skip.add((a, b))
+            continue
+        la, lb, path = points[0]
+        if not (convex[a] and convex[b]):
+            continue
+        dirs = []
+        for f, k in ((a, la), (b, lb)):
+            poly = mech.flat_faces[f]
+            dirs.append([poly[(k + 1) % len(poly)] - poly[k], poly[k - 1] - poly[k]])
+        pivots.append(((a, b), dirs, path))
+    pivots.sort(key=lambda p: p[0][0] * n + p[0][1])
+    centre = np.add.reduceat(flat_pts, _face_starts(mech)) / np.bincount(pt_face)[:, None]
+    radius = np.maximum.reduceat(np.linalg.norm(flat_pts - centre[pt_face], axis=1), _face_starts(mech))
+    return Panels(
+        tri_face=np.concatenate(owner), tri_points=np.concatenate(tris), start=start, count=count,
+        skip_keys=np.unique(_keys(list(skip), n)), touch_keys=np.unique(np.concatenate(touch)),
+        pivot_keys=_keys([p[0] for p in pivots], n),
+        pivot_dirs=np.array([p[1] for p in pivots], float).reshape(-1, 2, 2, 3),
+        pivot_path=np.array([p[2] for p in pivots], bool).reshape(-1, mech.n_hinges),
+        centre=centre, radius=radius)
+
+
+def _in_sorted(keys, table):
+    if len(table) == 0:
+        return np.zeros(len(keys), bool), np.zeros(len(keys), np.int64)
+    pos = np.clip(np.searchsorted(table, keys), 0, len(table) - 1)
+    return table[pos] == keys, pos
+
+
+def triangle_pairs(pan, pairs):
+    """Expand face pairs into the pairs of their triangles.
+
+    Parameters
+    ----------
+    pan : Panels
+    pairs : (n, 2) int
+        Face pairs.
+
+    Returns
+    -------
+    ia, ib, row : (m,) int
+        Triangle indices into ``pan.tri_points`` and the face pair each came from.
+    """
+    ca, cb = pan.count[pairs[:, 0]], pan.count[pairs[:, 1]]
+    per = ca * cb
+    row = np.repeat(np.arange(len(pairs)), per)
+    local = np.arange(per.sum()) - np.repeat(np.cumsum(per) - per, per)
+    ia = pan.start[pairs[row, 0]] + local // cb[row]
+    ib = pan.start[pairs[row, 1]] + local % cb[row]
+    return ia, ib, row
+
+
+def _posed_triangles(pan, poses):
+    """(T, K, 3, 3) every triangle at every pose set (T, F, 4, 4)."""
+    return transform_points(poses[:, pan.tri_face][:, :, None], pan.tri_points[None])
+
+
+def _face_boxes(pan, poses):
+    """Bounding boxes (T, F, 3) lo and hi of every face at every pose set (T, F, 4, 4)."""
+    pts = _posed_triangles(pan, poses)
+    lo = np.minimum.reduceat(pts.min(axis=2), pan.start, axis=1)
+    hi = np.maximum.reduceat(pts.max(axis=2), pan.start, axis=1)
+    return lo, hi
+
+

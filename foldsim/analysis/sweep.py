@@ -1,0 +1,372 @@
+"""The collision sweep over the motion: conservative advancement on a fine grid.
+
+The method is the one `reference.collision_intervals` implements (see
+`foldsim.analysis.collision` and docs/cli.md): for every candidate pair and stretch
+[t0, t1] of t, a separation s >= 0 at both ends and a bound L on its rate; a
+stretch with s(t0) + s(t1) > L (t1 - t0) cannot hold a contact, any other is
+halved until it is shorter than half the reporting resolution. What differs is how
+little work it takes to get there:
+
+- The start grid is the reference's, halved until a typical panel moves about its
+  own size in one step (at most `MAX_STEPS` steps). Swept boxes then stay close to
+  the panels, so the candidates are about the pairs of neighbours, not every pair
+  that some long stretch of motion brings near.
+- Candidates come from a 3-axis spatial hash of the swept boxes
+  (`spatialhash.box_pairs_batched`), all stretches at once, in blocks of bounded
+  memory.
+- The boxes and the bounding-sphere centres at the grid values are computed once
+  and reused by every stretch that ends there; each (grid value, pair) is evaluated
+  once, though two stretches share it.
+- Distances are lazy: a stretch whose sphere gaps at both ends are positive and add
+  up to more than L (t1 - t0) is settled without any triangle test; the exact test
+  runs only at the ends of the others, and only where the sphere gap is below the
+  stretch's need, as in the reference.
+- Poses and triangle temporaries are made in blocks (`POSE_BUDGET`,
+  `narrowphase.CHUNK`), so peak memory grows with the model, not with the number
+  of drive values.
+"""
+
+import numpy as np
+
+from ..gearing import fold_angles
+from ..geometry import transform_points
+from ..kinematics import common_depth, face_poses, speed_profile
+from ..tolerances import DEFAULT
+from . import spatialhash
+from .narrowphase import pair_state
+from .panels import _face_boxes, _in_sorted, _keys, panels
+
+MAX_STEPS = 4096
+"""Most start-grid steps over the swept range."""
+
+ROW_CHUNK = 250_000
+"""Candidate rows expanded to fine steps at once."""
+
+MAX_FACE_STEPS = 1_000_000
+"""Most fine-grid steps times faces: the grid's boxes and centres stay below ~100 MB."""
+
+POSE_BUDGET = 2_000_000
+"""Pose matrix entries (4 x 4 per face per t) held at once."""
+
+
+class Evaluator:
+    """Separation and collision state of face pairs at drive values, in bounded blocks."""
+
+    def __init__(self, mech, schedule, pan, clearance, tol, stats=None):
+        self.mech, self.schedule, self.pan = mech, schedule, pan
+        self.clearance = clearance
+        self.eps = tol.contact * mech.size
+        self.profile = speed_profile(mech, schedule.rates)
+        self.speed = self.profile[:, 0]
+        speeds = np.abs(schedule.rates)
+        self.pivot_rate = np.concatenate(
+            [pan.pivot_path[k:k + 1024] @ speeds for k in range(0, len(pan.pivot_path), 1024)]
+            or [np.zeros(0)])
+        self.chunk = max(1, POSE_BUDGET // (16 * mech.n_faces))
+        self.stats = stats if stats is not None else {}
+        self.stats.setdefault("t_values", 0)
+        self.stats.setdefault("pair_tests", 0)
+
+    def poses(self, t):
+        """(T, F, 4, 4) poses at drive values t (T,)."""
+        self.stats["t_values"] += len(t)
+        return face_poses(self.mech, fold_angles(self.schedule, t))
+
+    def rates(self, pairs):
+        """(n,) bound on d(separation)/dt for face pairs (n, 2)."""
+        keys, first, back = np.unique(_keys(pairs, self.mech.n_faces), return_index=True,
+                                      return_inverse=True)
+        unique_pairs = np.sort(pairs[first], axis=1)
+        depth = common_depth(self.mech, unique_pairs)
+        linear = (self.profile[unique_pairs[:, 0], depth] + self.profile[unique_pairs[:, 1], depth])
+        is_pivot, pos = _in_sorted(keys, self.pan.pivot_keys)
+        out = np.where(is_pivot, self.pivot_rate[pos] if len(self.pivot_rate) else 0.0, linear)
+        return out[back], is_pivot[back]
+
+    def gap(self, centre, pairs, frame):
+        """Sphere gap (less the clearance) of pairs at the centres ``centre[frame]``."""
+        d = centre[frame, pairs[:, 0]] - centre[frame, pairs[:, 1]]
+        return (np.sqrt((d * d).sum(axis=1)) - self.pan.radius[pairs].sum(axis=1) - self.clearance)
+
+    def state(self, poses, frame, pairs, need):
+        """Separation (exact below ``need``) and collision flag of pairs at ``poses[frame]``."""
+        self.stats["pair_tests"] += len(pairs)
+        return pair_state(self.mech, self.pan, poses, frame, pairs, self.clearance, self.eps, need=need)
+
+    def evaluate(self, t, pairs, need, pivot):
+        """Separation (n,) and collision flag (n,) of face pairs (n, 2) at t (n,).
+
+        Where the panels' bounding spheres are already ``need`` (n,) apart, that gap
+        is the separation (a lower bound is all the advancement needs) and the exact
+        test is skipped; pivoting pairs (``pivot``) always take the exact test.
+        """
+        times, t_index = np.unique(t, return_inverse=True)
+        sep = np.empty(len(pairs))
+        hit = np.zeros(len(pairs), bool)
+        order = np.argsort(t_index, kind="stable")
+        bounds = np.searchsorted(t_index[order], np.arange(0, len(times) + self.chunk, self.chunk))
+        for k, (s, e) in enumerate(zip(bounds[:-1], bounds[1:])):
+            if s == e:
+                continue
+            rows = order[s:e]
+            poses = self.poses(times[k * self.chunk:(k + 1) * self.chunk])
+            frame = t_index[rows] - k * self.chunk
+            centre = transform_points(poses[frame[:, None], pairs[rows]], self.pan.centre[pairs[rows]])
+            d = centre[:, 0] - centre[:, 1]
+            gap = np.sqrt((d * d).sum(axis=1)) - self.pan.radius[pairs[rows]].sum(axis=1) - self.clearance
+            far = (gap >= need[rows]) & ~pivot[rows]
+            sep[rows[far]] = gap[far]
+            near = rows[~far]
+            if len(near):
+                sep[near], hit[near] = self.state(poses, frame[~far], pairs[near], need[near])
+        return sep, hit
+
+
+def _grid(mech, pan, speed, lo_t, hi_t):
+    """The reference's start grid and a finer one that splits each of its steps in 2**k.
+
+    k is the least for which a typical panel (speed at the 75th percentile) moves no
+    more than its own size (median bounding diameter) in one fine step, and the fine
+    grid has at most `MAX_STEPS` steps and `MAX_FACE_STEPS` steps times faces.
+
+    Returns
+    -------
+    fine : (n * 2**k + 1,) float
+    k : int
+    """
+    span = hi_t - lo_t
+    n_steps = int(np.clip(np.ceil(span * speed.max() / (0.25 * mech.size)), 16, 1024))
+    coarse = np.unique(np.concatenate([np.linspace(lo_t, hi_t, n_steps + 1),
+                                       [x for x in (-1.0, 0.0, 1.0) if lo_t < x < hi_t]]))
+    size = float(np.median(2.0 * pan.radius)) or mech.size
+    typical = float(np.quantile(speed, 0.75))
+    most = min(MAX_STEPS, max(len(coarse) - 1, MAX_FACE_STEPS // mech.n_faces))
+    k = 0
+    while (len(coarse) - 1) * 2 ** (k + 1) <= most and span * typical / (n_steps * 2 ** k) > size:
+        k += 1
+    parts = 2 ** k
+    frac = np.arange(parts) / parts
+    fine = (coarse[:-1, None] + frac[None, :] * np.diff(coarse)[:, None]).ravel()
+    return np.append(fine, coarse[-1]), k
+
+
+def _merge_runs(cand, k, n_faces):
+    """Join candidate fine steps into the coarse steps they fill, bottom up.
+
+    ``cand`` rows (fine step, a, b). Two sibling stretches (fine-step blocks 2j and
+    2j + 1 of one level) that are both candidates for a pair become their parent
+    stretch, up to the reference's steps (level k). A pair near all along is then
+    tested at the coarse grid's values, and the advancement halves only where it has
+    to; a pair near only briefly keeps its short stretches.
+
+    Returns
+    -------
+    start : (n,) int
+        First fine step of each stretch.
+    level : (n,) int
+        The stretch is 2**level fine steps long.
+    pairs : (n, 2) int
+    """
+    key = cand[:, 1] * n_faces + cand[:, 2]
+    order = np.lexsort((cand[:, 0], key))
+    key, block = key[order], cand[order, 0]
+    level = np.zeros(len(key), np.int64)
+    for lev in range(1, k + 1):
+        if len(key) < 2:
+            break
+        same = (key[:-1] == key[1:]) & (level[:-1] == lev - 1) & (level[1:] == lev - 1)
+        join = same & (block[:-1] % 2 == 0) & (block[1:] == block[:-1] + 1)
+        first = np.flatnonzero(join)
+        level[first] = lev
+        block[first] //= 2
+        keep = np.ones(len(key), bool)
+        keep[first + 1] = False
+        key, block, level = key[keep], block[keep], level[keep]
+    start = block << level
+    return start, level, np.column_stack([key // n_faces, key % n_faces])
+
+
+def _grid_geometry(ev, grid):
+    """Face boxes lo, hi (T, F, 3) and sphere centres (T, F, 3) at every grid value."""
+    n, f = len(grid), ev.mech.n_faces
+    lo, hi, centre = np.empty((n, f, 3)), np.empty((n, f, 3)), np.empty((n, f, 3))
+    step = max(1, ev.chunk // max(1, int(np.ceil(len(ev.pan.tri_face) / f))))
+    for k in range(0, n, step):
+        poses = ev.poses(grid[k:k + step])
+        lo[k:k + step], hi[k:k + step] = _face_boxes(ev.pan, poses)
+        centre[k:k + step] = np.einsum("tfij,fj->tfi", poses[..., :3, :3], ev.pan.centre) + poses[..., :3, 3]
+    return lo, hi, centre
+
+
+def _candidates(ev, grid, lo, hi, k):
+    """Candidate (fine step, a, b) rows: swept boxes that overlap, grown by half the clearance.
+
+    The spatial hash runs once per block of ``2**min(k, 2)`` fine steps, on the union
+    of the block's swept boxes; each pair it finds is then checked against the
+    swept boxes of the block's fine steps directly. The blocks' pairs hold every
+    fine step's pairs, so nothing is lost, and the hash is built a quarter as often.
+    """
+    grow = (ev.speed[None, :] * np.diff(grid)[:, None] / 2 + ev.clearance / 2)[..., None]
+    swept_lo = np.minimum(lo[:-1], lo[1:]) - grow
+    swept_hi = np.maximum(hi[:-1], hi[1:]) + grow
+    steps, f = swept_lo.shape[:2]
+    block = 2 ** min(k, 2)
+    rows = spatialhash.box_pairs_batched(swept_lo.reshape(-1, block, f, 3).min(axis=1),
+                                         swept_hi.reshape(-1, block, f, 3).max(axis=1))
+    skip, _ = _in_sorted(_keys(rows[:, 1:], ev.mech.n_faces), ev.pan.skip_keys)
+    rows = rows[~skip]
+    if block > 1:
+        out = []
+        for k in range(0, len(rows), ROW_CHUNK):
+            part = rows[k:k + ROW_CHUNK]
+            step = (part[:, :1] * block + np.arange(block)[None, :]).ravel()
+            a, b = np.repeat(part[:, 1], block), np.repeat(part[:, 2], block)
+            meet = (np.maximum(swept_lo[step, a], swept_lo[step, b])
+                    <= np.minimum(swept_hi[step, a], swept_hi[step, b])).all(axis=1)
+            out.append(np.column_stack([step[meet], a[meet], b[meet]]))
+        rows = np.concatenate(out) if out else np.zeros((0, 3), dtype=int)
+    return rows
+
+
+def _node_states(ev, grid, centre, start, end, pairs, need, pivot):
+    """Separations and flags at both ends of every candidate stretch, each node once.
+
+    Returns sep0, hit0, sep1, hit1 (n,) for the stretches from grid value ``start``
+    to ``end`` (n,) of face pairs (n, 2).
+    """
+    n = len(pairs)
+    g0 = np.where(pivot, -np.inf, ev.gap(centre, pairs, start))
+    g1 = np.where(pivot, -np.inf, ev.gap(centre, pairs, end))
+    sep0, sep1 = g0.copy(), g1.copy()
+    hit0, hit1 = np.zeros(n, bool), np.zeros(n, bool)
+    settled = (g0 > 0) & (g1 > 0) & (g0 + g1 > need)
+    # Nodes that need the exact test: an end of an unsettled stretch whose sphere gap
+    # is below the stretch's need.
+    ends = [(0, np.flatnonzero(~settled & (g0 < need))), (1, np.flatnonzero(~settled & (g1 < need)))]
+    f = ev.mech.n_faces
+    node_keys = np.concatenate([np.where(side, end, start)[rows] * f * f + pairs[rows, 0] * f + pairs[rows, 1]
+                                for side, rows in ends])
+    if not len(node_keys):
+        return sep0, hit0, sep1, hit1
+    uniq, back = np.unique(node_keys, return_inverse=True)
+    u_need = np.full(len(uniq), -np.inf)
+    np.maximum.at(u_need, back, np.concatenate([need[rows] for _, rows in ends]))
+    node = uniq // (f * f)
+    node_pairs = np.column_stack([(uniq // f) % f, uniq % f])
+    u_sep, u_hit = np.empty(len(uniq)), np.zeros(len(uniq), bool)
+    bounds = np.searchsorted(node, np.arange(0, len(grid) + ev.chunk, ev.chunk))
+    for k, (s, e) in enumerate(zip(bounds[:-1], bounds[1:])):
+        if s == e:
+            continue
+        values = np.unique(node[s:e])
+        poses = ev.poses(grid[values])
+        u_sep[s:e], u_hit[s:e] = ev.state(poses, np.searchsorted(values, node[s:e]), node_pairs[s:e],
+                                            u_need[s:e])
+    offset = 0
+    for side, rows in ends:
+        part = back[offset:offset + len(rows)]
+        offset += len(rows)
+        if side == 0:
+            sep0[rows], hit0[rows] = u_sep[part], u_hit[part]
+        else:
+            sep1[rows], hit1[rows] = u_sep[part], u_hit[part]
+    return sep0, hit0, sep1, hit1
+
+
+def collision_intervals(mech, schedule, t_from=0.0, t_to=1.0, clearance=0.0, tol=DEFAULT, pan=None,
+                        progress=None, first_only=False, stats=None):
+    """Every colliding face pair over the motion, with its first and last t.
+
+    See `foldsim.analysis.collision.collision_intervals` for the parameters and the
+    result. ``first_only``: once a collision is found, stretches that start after
+    the earliest one found are dropped, so the sweep ends as soon as the earliest
+    collision is known; ``stats``, a dict, receives the counts
+    ``t_values`` (drive values posed), ``pair_tests`` (exact face-pair tests),
+    ``candidates`` (swept-box candidate stretches) and ``grid_steps``.
+    """
+    pan = pan or panels(mech, tol)
+    ev = Evaluator(mech, schedule, pan, clearance, tol, stats)
+    lo_t, hi_t = sorted((float(t_from), float(t_to)))
+    if hi_t - lo_t == 0:
+        return []
+    grid, k = _grid(mech, pan, ev.speed, lo_t, hi_t)
+    lo, hi, centre = _grid_geometry(ev, grid)
+    cand = _candidates(ev, grid, lo, hi, k)
+    del lo, hi
+    ev.stats["candidates"] = len(cand)
+    ev.stats["grid_steps"] = len(grid) - 1
+    start, level, pairs = _merge_runs(cand, k, mech.n_faces)
+    end = start + (1 << level)
+    t0, t1 = grid[start], grid[end]
+    rate, pivot = ev.rates(pairs) if len(pairs) else (np.zeros(0), np.zeros(0, bool))
+    sep0, hit0, sep1, hit1 = _node_states(ev, grid, centre, start, end, pairs, rate * (t1 - t0), pivot)
+    del centre, cand
+    found = []
+    earliest = None
+    resolution = tol.t_resolution / 2
+    total = float((t1 - t0).sum()) or 1.0
+    while len(pairs):
+        both = hit0 & hit1
+        found.append(np.column_stack([pairs[both], t0[both], t1[both]]))
+        for hit, t in ((hit0 & ~hit1, t0), (hit1 & ~hit0, t1)):
+            found.append(np.column_stack([pairs[hit], t[hit], t[hit]]))
+        if first_only:
+            rows = np.concatenate(found)
+            starts = rows[:, 2][~((rows[:, 2] == 0.0) & (rows[:, 3] == 0.0))]
+            if len(starts):
+                earliest = float(starts.min())
+        # The parts of [t0, t1] within reach of an end's separation are clear; what
+        # is left, [u0, u1], is where a contact could still be.
+        with np.errstate(divide="ignore", invalid="ignore"):
+            moving = rate > 0
+            u0 = np.where(moving, t0 + sep0 / rate, t0)
+            u1 = np.where(moving, t1 - sep1 / rate, t1)
+        open_ = ~both & (sep0 + sep1 <= rate * (t1 - t0)) & (u1 - u0 > resolution)
+        if earliest is not None:
+            # A stretch that starts after the earliest collision found cannot hold an
+            # earlier one; every other stretch is refined as in the full sweep.
+            open_ &= t0 <= earliest
+        pairs, t0, t1, rate, pivot = pairs[open_], t0[open_], t1[open_], rate[open_], pivot[open_]
+        u0, u1 = u0[open_], u1[open_]
+        sep0, hit0, sep1, hit1 = sep0[open_], hit0[open_], sep1[open_], hit1[open_]
+        if progress is not None:
+            progress(1.0 - float((t1 - t0).sum()) / total)
+        if not len(pairs):
+            break
+        mid = _dyadic_split(u0, u1, lo_t, hi_t - lo_t)
+        sep_m, hit_m = ev.evaluate(mid, pairs, rate * np.maximum(mid - t0, t1 - mid), pivot)
+        pairs, rate = np.concatenate([pairs, pairs]), np.concatenate([rate, rate])
+        pivot = np.concatenate([pivot, pivot])
+        t0, t1 = np.concatenate([t0, mid]), np.concatenate([mid, t1])
+        sep0, sep1 = np.concatenate([sep0, sep_m]), np.concatenate([sep_m, sep1])
+        hit0, hit1 = np.concatenate([hit0, hit_m]), np.concatenate([hit_m, hit1])
+    if progress is not None:
+        progress(1.0)
+    return _merge(np.concatenate(found) if found else np.zeros((0, 4)))
+
+
+def _dyadic_split(u0, u1, origin, span):
+    """A point inside each open stretch (u0, u1) near its middle, on a dyadic grid.
+
+    The point is ``origin + span * j / 2**m`` with the coarsest ``2**-m`` no more
+    than half the stretch, so it lies within the stretch's middle half, and
+    pairs refined in the same round share drive values (their poses are computed
+    once per value).
+    """
+    width = (u1 - u0) / span
+    step = np.exp2(np.floor(np.log2(width / 2)))
+    centre = (0.5 * (u0 + u1) - origin) / span
+    return origin + span * np.round(centre / step) * step
+
+
+def _merge(rows):
+    """Merge (a, b, first, last) rows of one pair that touch into intervals."""
+    out = []
+    rows = rows[np.lexsort((rows[:, 2], rows[:, 1], rows[:, 0]))]
+    for row in rows:
+        a, b, first, last = int(row[0]), int(row[1]), float(row[2]), float(row[3])
+        if out and out[-1]["faces"] == [a, b] and first <= out[-1]["last_t"] + 1e-12:
+            out[-1]["last_t"] = max(out[-1]["last_t"], last)
+        else:
+            out.append({"faces": [a, b], "first_t": first, "last_t": last})
+    return [c for c in out if not (c["first_t"] == 0.0 and c["last_t"] == 0.0)]
