@@ -39,9 +39,6 @@ from . import narrowphase, spatialhash
 from .narrowphase import pair_state
 from .panels import Panels, _in_sorted, _keys, panels, triangle_pairs
 from .sweep import collision_intervals as _sweep
-# The earlier sweep's private helpers, for callers written against them (they run the
-# reference path; `collision_intervals(..., first_only=True)` is the fast early exit).
-from .reference import _Evaluator, _swept_candidates  # noqa: F401
 
 __all__ = ["Panels", "panels", "triangle_pairs", "pair_state", "collision_intervals",
            "colliding_pairs", "flat_overlaps"]
