@@ -31,8 +31,28 @@ def newell_normals(polygons):
     out = np.empty((len(polygons), 3))
     for i, p in enumerate(polygons):
         q = np.roll(p, -1, axis=0)
-        out[i] = 0.5 * np.cross(p, q).sum(axis=0)
+        out[i] = 0.5 * cross(p, q).sum(axis=0)
     return out
+
+
+def cross(a, b):
+    """Cross products of (..., 3) arrays, broadcast like numpy's.
+
+    The same values as ``numpy.cross`` for 3-vectors, without its axis handling,
+    which dominates its cost on the small arrays of the collision sweep's rounds.
+
+    Examples
+    --------
+    >>> cross([1.0, 0.0, 0.0], [0.0, 1.0, 0.0]).tolist()
+    [0.0, 0.0, 1.0]
+    >>> cross(np.ones((2, 1, 3)), np.eye(3)).shape
+    (2, 3, 3)
+    """
+    a = np.asarray(a, dtype=float)
+    b = np.asarray(b, dtype=float)
+    a0, a1, a2 = a[..., 0], a[..., 1], a[..., 2]
+    b0, b1, b2 = b[..., 0], b[..., 1], b[..., 2]
+    return np.stack([a1 * b2 - a2 * b1, a2 * b0 - a0 * b2, a0 * b1 - a1 * b0], axis=-1)
 
 
 def unit(vectors):
@@ -131,7 +151,7 @@ def signed_angle(u, v, axis):
     90.0
     """
     axis = unit(axis)
-    return np.arctan2(np.einsum("...i,...i", axis, np.cross(u, v)), np.einsum("...i,...i", u, v))
+    return np.arctan2(np.einsum("...i,...i", axis, cross(u, v)), np.einsum("...i,...i", u, v))
 
 
 def _segment_distances(p, q, r, s):

@@ -49,6 +49,7 @@ from scipy.sparse.csgraph import shortest_path
 
 from .analysis.closure import cut_edge_gaps
 from .errors import ModelError
+from .geometry import cross as cross3
 from .gearing import fold_schedule
 from .kinematics import poses_at
 from .model import Coupling
@@ -272,7 +273,7 @@ def pair_geometry(mech, i, j, ratio=None, tol=DEFAULT):
     aj, bj = pts[kj], pts[(kj + 1) % n]
     di = (bi - ai) / np.linalg.norm(bi - ai)
     dj = (bj - aj) / np.linalg.norm(bj - aj)
-    cross = np.cross(di, dj)
+    cross = cross3(di, dj)
     sine = float(np.linalg.norm(cross))
     base = GearPair((int(i), int(j)), int(f), "", ratio)
     if sine <= tol.coincident:

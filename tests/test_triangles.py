@@ -421,3 +421,13 @@ def test_distance_not_above_any_sampled_point_pair(x):
     w = np.random.default_rng(0).dirichlet([1, 1, 1], size=(64, 2))
     samples = np.linalg.norm(w[:, 0] @ a - w[:, 1] @ b, axis=1)
     assert triangle_distance(x[:1], x[1:])[0] <= samples.min() + 1e-12
+
+
+def test_fast_cross_product_equals_numpy():
+    # Reference: numpy.cross, on random arrays with broadcasting.
+    from foldsim.geometry import cross
+
+    rng = np.random.default_rng(3)
+    a, b = rng.normal(size=(50, 1, 3)), rng.normal(size=(7, 3))
+    np.testing.assert_array_equal(cross(a, b), np.cross(a, b))
+    np.testing.assert_array_equal(cross(a[0, 0], b[0]), np.cross(a[0, 0], b[0]))

@@ -17,7 +17,7 @@ Arrays are (n, 3, 3) as in `triangles`: pair ``k`` is ``a[k]`` against ``b[k]``.
 
 import numpy as np
 
-from ..geometry import unit
+from ..geometry import cross, unit
 from . import triangles
 from .panels import _in_sorted, _keys, triangle_pairs
 
@@ -265,36 +265,36 @@ def _sphere_gap(av, bv):
 
 def _arc_distance(p, a1, a2):
     """Angle from unit vectors p (n, 3) to the great-circle arcs a1-a2 (n, 3)."""
-    nrm = unit(np.cross(a1, a2))
+    nrm = unit(cross(a1, a2))
     h = np.einsum("ij,ij->i", p, nrm)
     foot = p - h[:, None] * nrm
-    inside = (np.einsum("ij,ij->i", np.cross(a1, foot), nrm) >= 0) & (
-        np.einsum("ij,ij->i", np.cross(foot, a2), nrm) >= 0)
+    inside = (np.einsum("ij,ij->i", cross(a1, foot), nrm) >= 0) & (
+        np.einsum("ij,ij->i", cross(foot, a2), nrm) >= 0)
     ends = np.minimum(_angle(p, a1), _angle(p, a2))
     return np.where(inside, np.arcsin(np.clip(np.abs(h), 0, 1)), ends)
 
 
 def _angle(u, v):
-    return np.arctan2(np.linalg.norm(np.cross(u, v), axis=1), np.einsum("ij,ij->i", u, v))
+    return np.arctan2(np.linalg.norm(cross(u, v), axis=1), np.einsum("ij,ij->i", u, v))
 
 
 def _wedge_separation(a, b):
     """Angular distance between wedges a, b (n, 2, 3) of unit edge directions."""
-    na, nb = np.cross(a[:, 0], a[:, 1]), np.cross(b[:, 0], b[:, 1])
+    na, nb = cross(a[:, 0], a[:, 1]), cross(b[:, 0], b[:, 1])
     sa = np.einsum("nkj,nj->nk", a, nb)
     sb = np.einsum("nkj,nj->nk", b, na)
-    line = np.cross(na, nb)
+    line = cross(na, nb)
     length = np.linalg.norm(line, axis=1)
     skew = length > 1e-12 * np.linalg.norm(na, axis=1) * np.linalg.norm(nb, axis=1)
     x = line / np.where(skew, length, 1.0)[:, None]
     x = np.where((np.einsum("ij,ij->i", x, a.sum(axis=1)) < 0)[:, None], -x, x)
     # Coplanar wedges (skew False) overlap exactly when an end of one lies in the
     # other, which the end-to-arc distances below already give as 0.
-    cross = skew & (sa[:, 0] * sa[:, 1] <= 0) & (sb[:, 0] * sb[:, 1] <= 0) & (
+    crossed = skew & (sa[:, 0] * sa[:, 1] <= 0) & (sb[:, 0] * sb[:, 1] <= 0) & (
         np.einsum("ij,ij->i", x, b.sum(axis=1)) >= 0)
     d = np.minimum.reduce([_arc_distance(a[:, 0], b[:, 0], b[:, 1]), _arc_distance(a[:, 1], b[:, 0], b[:, 1]),
                            _arc_distance(b[:, 0], a[:, 0], a[:, 1]), _arc_distance(b[:, 1], a[:, 0], a[:, 1])])
-    return np.where(cross, 0.0, d)
+    return np.where(crossed, 0.0, d)
 
 
 

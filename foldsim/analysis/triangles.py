@@ -13,6 +13,7 @@ one passes through the other by more than a tolerance ``eps`` (a length).
 
 import numpy as np
 
+from foldsim.geometry import cross
 from foldsim.tolerances import DEFAULT as _DEFAULT_TOLERANCES
 
 DEFAULT_EPS = _DEFAULT_TOLERANCES.contact
@@ -44,7 +45,7 @@ def newell_normal(polygon):
         counter-clockwise about it.
     """
     p = np.asarray(polygon, dtype=float)
-    return np.cross(p, _next(p)).sum(axis=0)
+    return cross(p, _next(p)).sum(axis=0)
 
 
 def triangulate(polygon, *, eps=DEFAULT_EPS):
@@ -157,7 +158,7 @@ def _strictly_convex(p):
     """Whether every corner of polygon p (k, 3) turns the same way, none straight."""
     normal = newell_normal(p)
     edge = np.roll(p, -1, axis=0) - p
-    turn = np.cross(edge, np.roll(edge, -1, axis=0)) @ normal
+    turn = cross(edge, np.roll(edge, -1, axis=0)) @ normal
     return bool((turn > 1e-9 * np.abs(turn).max()).all())
 
 
@@ -220,9 +221,9 @@ def _plane_basis(normal):
     """Orthonormal (u, v) with u x v = normal, for a unit (3,) normal."""
     helper = np.zeros(3)
     helper[np.argmin(np.abs(normal))] = 1.0
-    u = np.cross(helper, normal)
+    u = cross(helper, normal)
     u /= np.linalg.norm(u)
-    return u, np.cross(normal, u)
+    return u, cross(normal, u)
 
 
 def _unit_normals(t, eps):
@@ -231,7 +232,7 @@ def _unit_normals(t, eps):
     A triangle is degenerate when its smallest altitude is at most `eps`; its
     normal is then set to zero.
     """
-    raw = np.cross(t[:, 1] - t[:, 0], t[:, 2] - t[:, 0])
+    raw = cross(t[:, 1] - t[:, 0], t[:, 2] - t[:, 0])
     twice_area = np.linalg.norm(raw, axis=1)
     longest = np.linalg.norm(_next(t) - t, axis=2).max(axis=1)
     degenerate = ~(twice_area > eps * longest)
@@ -264,7 +265,7 @@ def _chord(t, d, origin, direction):
 def _coplanar_overlap(a, b, normal):
     """Smallest overlap of projections over the 6 in-plane edge normals, (n,)."""
     edges = np.concatenate([_next(a) - a, _next(b) - b], axis=1)
-    axes = np.cross(normal[:, None, :], edges)
+    axes = cross(normal[:, None, :], edges)
     axes /= np.linalg.norm(axes, axis=2, keepdims=True)
     origin = a[:, :1, :]
     pa = np.einsum("nkj,nmj->nmk", a - origin, axes)
@@ -313,7 +314,7 @@ def crossing_overlap(a, b, eps=DEFAULT_EPS):
 
     out = np.full(len(a), -np.inf)
     if crossing.any():
-        line = np.cross(na[crossing], nb[crossing])
+        line = cross(na[crossing], nb[crossing])
         length = np.linalg.norm(line, axis=1, keepdims=True)
         line = np.where(length > 0.0, line / np.where(length > 0.0, length, 1.0), 0.0)
         origin = a[crossing, 0]
@@ -448,7 +449,7 @@ def point_triangle_distance(p, t):
 
 def _edges_meet_triangle(a, b):
     """(n,) bool: some edge of `a` (n, 3, 3) crosses or touches the plane of `b` inside `b`."""
-    normal = np.cross(b[:, 1] - b[:, 0], b[:, 2] - b[:, 0])
+    normal = cross(b[:, 1] - b[:, 0], b[:, 2] - b[:, 0])
     d = _dot(a - b[:, None, 0], normal[:, None, :])
     d_next = np.roll(d, -1, axis=-1)
     meets = (np.minimum(d, d_next) <= 0.0) & (np.maximum(d, d_next) >= 0.0) & (d != d_next)
