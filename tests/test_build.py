@@ -236,3 +236,33 @@ def test_lantern_build_demo_passes_check(capsys):
         assert row["runs_out_at_t"] is None and row["min_contact_ratio"] >= 1.2  # 1.2: common-practice floor
     assert all(row["overrun_deg"] == 0 for row in report["stops"])
     assert report["outer_closure"]["meets"]
+
+
+def test_text_report_shows_the_build(tmp_path, capsys):
+    # The text summary says what --json says: the hand-case flap (stop 80°, closing
+    # 90°) passes its stop by 10° from t = 80/90, and the lantern demo's sectors and
+    # gear clearances are listed per coupling with the JSON's numbers.
+    from pathlib import Path
+
+    from foldsim.cli import main
+
+    doc = {"schema": "foldsim.mechanism/1", "state": "flat",
+           "vertices": [[0, 0, 0], [40, 0, 0], [40, 40, 0], [0, 40, 0], [80, 0, 0], [80, 40, 0]],
+           "faces": [[0, 1, 2, 3], [1, 4, 5, 2]], "hinges": [{"faces": [0, 1], "closed_angle_deg": 90}],
+           "build": {"thickness": 2, "stops": [{"hinge": 0, "stop_deg": 80}]}}
+    path = tmp_path / "flap.mech.json"
+    path.write_text(json.dumps(doc))
+    assert main(["check", str(path)]) == 1
+    out = capsys.readouterr().out
+    assert "build: panels 2 mm thick, 0 gear pair(s) as solids" in out
+    assert "stops: hinge 0 passes 80.00° by 10° from t = 0.8889" in out
+    lantern = Path(__file__).resolve().parent.parent / "assets" / "lantern-build.mech.json"
+    assert main(["check", str(lantern), "--json"]) == 0
+    report = json.loads(capsys.readouterr().out)
+    assert main(["check", str(lantern)]) == 0
+    out = capsys.readouterr().out
+    for row in report["sector_coverage"]:
+        assert f"coupling {row['coupling']}: contact ratio down to {row['min_contact_ratio']:.3g}" in out
+    for row in report["gear_clearance"]:
+        assert f"coupling {row['coupling']}: nearest {row['min_clearance']:.4g} mm" in out
+    assert "outer surface at t = 1: largest gap" in out and "-> meets" in out

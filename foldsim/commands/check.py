@@ -75,6 +75,8 @@ def _format_check(report):
         lines.append(f"flat layout overlaps itself: pairs {report['flat_overlap_pairs']}")
     else:
         lines.append("flat layout: no overlap")
+    if "build" in report:
+        lines.extend(_format_build(report))
     if "play" in report:
         play = report["play"]
         lines.append(f"play stack-up ({play['process'] or 'file values'}, {play['samples']} samples): "
@@ -83,6 +85,36 @@ def _format_check(report):
     lines.append("")
     lines.append("OK" if report["ok"] else "PROBLEMS: " + "; ".join(report["problems"]))
     return "\n".join(lines)
+
+
+def _format_build(report):
+    """The build's lines of the text report (docs/build.md)."""
+    units = report["units"]
+    build = report["build"]
+    thick = sorted(set(build.get("thickness") or []))
+    lines = [f"build: panels {', '.join(f'{x:g}' for x in thick)} {units} thick, "
+             f"{len(build.get('gear_bodies') or [])} gear pair(s) as solids"]
+    passed = [s for s in report["stops"] if s["overrun_deg"] > 0]
+    lines.append("stops: every hinge stays short of its stop" if not passed else
+                 "stops: " + "; ".join(f"hinge {s['hinge']} passes {s['stop_deg']:.2f}° by "
+                                       f"{s['overrun_deg']:.3g}° from t = {s['at_t']:.4g}" for s in passed))
+    if report["sector_coverage"]:
+        lines.append("sector coverage (contact ratio along t):")
+    for row in report["sector_coverage"]:
+        out = row["runs_out_at_t"]
+        lines.append(f"  coupling {row['coupling']}: contact ratio down to {row['min_contact_ratio']:.3g}"
+                     + (f", a sector runs out from t = {out:.4g}" if out is not None else ", teeth in mesh all along"))
+    if any(row["min_clearance"] is not None for row in report["gear_clearance"]):
+        lines.append("gear clearance (nearest approach of each pair's gear bodies):")
+    for row in report["gear_clearance"]:
+        if row["min_clearance"] is None:
+            continue
+        lines.append(f"  coupling {row['coupling']}: nearest {row['min_clearance']:.4g} {units} "
+                     f"({row['body']} to {row['with']}, t = {row['at_t']:.4g})")
+    outer = report["outer_closure"]
+    lines.append(f"outer surface at t = 1: largest gap {outer['max_gap']:.4g} {units} -> "
+                 f"{'meets' if outer['meets'] else 'OPEN'}")
+    return lines
 
 
 def run(args):
