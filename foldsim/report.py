@@ -128,8 +128,8 @@ def build_checks(mech, schedule=None, t_from=0.0, t_to=1.0, gap_tol=None, tol=DE
     Returns
     -------
     keys : dict
-        ``build``, ``stops``, ``sector_coverage``, ``gear_clearance`` and
-        ``outer_closure``; empty for a file without a ``build`` object.
+        ``build``, ``stops``, ``sector_coverage``, ``gear_clearance``,
+        ``panel_clashes`` and ``outer_closure``; empty for a file without a ``build`` object.
     problems : list of str
         One sentence per failure.
     """
@@ -150,7 +150,7 @@ def _build_part(mech, schedule, t_from, t_to, problems, tol, tolerance, end):
     from .build.sectors import sector_coverage
     from .build.spec import build_spec
     from .build.stops import stop_overruns
-    from .build.sweep import RESOLUTION, gear_clearance
+    from .build.sweep import RESOLUTION, gear_clearance, panel_clashes
 
     spec = build_spec(mech, tol=tol)
     if spec is None:
@@ -176,6 +176,11 @@ def _build_part(mech, schedule, t_from, t_to, problems, tol, tolerance, end):
             problems.append(f"coupling {row['coupling']}: its {row['body'].split(' ', 2)[2]} comes within "
                             f"{d:.4g} {mech.units} of {row['with']} at t = {row['at_t']:.4g} "
                             f"(clearance {spec.clearance:g})")
+    clashes = panel_clashes(mech, spec, schedule, t_from, t_to, tol=tol)
+    if clashes:
+        first = clashes[0]
+        problems.append(f"{len(clashes)} pair(s) of thick panels run into each other (first faces "
+                        f"{first['faces'][0]} and {first['faces'][1]} from t = {first['first_t']:.4g})")
     outer = replace(mech, cut_points=outer_surface_points(mech, spec))
     outer_closure = closure_summary(mech, cut_edge_gaps(outer, end)[0], tolerance)
     if not outer_closure["meets"]:
@@ -185,4 +190,4 @@ def _build_part(mech, schedule, t_from, t_to, problems, tol, tolerance, end):
     report = spec.report()
     report["gear_bodies"] = [p.report() for p in pairs]
     return {"build": report, "stops": stops, "sector_coverage": coverage, "gear_clearance": clearance,
-            "outer_closure": outer_closure}
+            "panel_clashes": clashes, "outer_closure": outer_closure}

@@ -210,16 +210,20 @@ def test_stackup_command_reads_the_stops(tmp_path, capsys):
     np.testing.assert_allclose(report["stops_deg"], [90.0], atol=1e-12)
 
 
-def test_lantern_build_demo_passes_check(capsys):
+def test_lantern_build_demo_passes_every_build_check_but_one_clash(capsys):
     # The demo of docs/build.md: the lantern in 1.5 mm panels with three bevel pairs.
+    # Its gears, sectors, stops and outer surface pass; its thick top and side 6 run
+    # into each other just before closing (see test_panel_clashes_agree_with_fcl).
     from pathlib import Path
 
     from foldsim.cli import main
 
     path = Path(__file__).resolve().parent.parent / "assets" / "lantern-build.mech.json"
-    assert main(["check", str(path), "--json"]) == 0
+    assert main(["check", str(path), "--json"]) == 1
     report = json.loads(capsys.readouterr().out)
-    assert report["ok"] and report["collisions"] == []
+    assert report["collisions"] == [] and [c["faces"] for c in report["panel_clashes"]] == [[6, 7]]
+    assert report["problems"] == [p for p in report["problems"] if "thick panels run into each other" in p]
+    assert len(report["problems"]) == 1
     bodies = report["build"]["gear_bodies"]
     assert [b["kind"] for b in bodies] == ["bevel"] * 3
     for body in bodies:
@@ -257,12 +261,65 @@ def test_text_report_shows_the_build(tmp_path, capsys):
     assert "build: panels 2 mm thick, 0 gear pair(s) as solids" in out
     assert "stops: hinge 0 passes 80.00° by 10° from t = 0.8889" in out
     lantern = Path(__file__).resolve().parent.parent / "assets" / "lantern-build.mech.json"
-    assert main(["check", str(lantern), "--json"]) == 0
+    assert main(["check", str(lantern), "--json"]) == 1
     report = json.loads(capsys.readouterr().out)
-    assert main(["check", str(lantern)]) == 0
+    assert main(["check", str(lantern)]) == 1
     out = capsys.readouterr().out
     for row in report["sector_coverage"]:
         assert f"coupling {row['coupling']}: contact ratio down to {row['min_contact_ratio']:.3g}" in out
     for row in report["gear_clearance"]:
         assert f"coupling {row['coupling']}: nearest {row['min_clearance']:.4g} mm" in out
     assert "outer surface at t = 1: largest gap" in out and "-> meets" in out
+    assert "thick panels run into each other: faces 6 and 7 from t = 0.98" in out
+
+
+def _fcl_crossing(fcl, tri_a, pose_a, tri_b, pose_b):
+    objects = []
+    for tri, pose in ((tri_a, pose_a), (tri_b, pose_b)):
+        t = tri @ pose[:3, :3].T + pose[:3, 3]
+        model = fcl.BVHModel()
+        model.beginModel(3 * len(t), len(t))
+        model.addSubModel(t.reshape(-1, 3), np.arange(3 * len(t)).reshape(-1, 3))
+        model.endModel()
+        objects.append(fcl.CollisionObject(model, fcl.Transform()))
+    return fcl.collide(objects[0], objects[1], fcl.CollisionRequest(), fcl.CollisionResult())
+
+
+@pytest.mark.parametrize("name, thickness", [("lantern-build", None), ("gift-box", 2.0)])
+def test_panel_clashes_agree_with_fcl(name, thickness):
+    # Reference: python-fcl's collide on the same shrunk prisms of every pair that is
+    # not a hinge's own two panels, at 201 drive values from 0.9 to 1 and 41 from 0
+    # to 0.9 (the clash of the lantern lasts about 0.012 in t). The first t of each
+    # clash must agree to the grid step.
+    fcl = pytest.importorskip("fcl")
+    from pathlib import Path
+
+    from foldsim.build.prisms import panel_solids
+    from foldsim.build.sweep import ERODE, panel_clashes
+    from foldsim.gearing import fold_schedule
+    from foldsim.io.mechanism_json import loads
+    from foldsim.kinematics import poses_at
+
+    doc = json.loads((Path(__file__).resolve().parent.parent / "assets" / f"{name}.mech.json").read_text())
+    if thickness is not None:
+        doc["build"] = {"thickness": thickness}
+    mech = loads(json.dumps(doc), source=name)
+    spec = build_spec(mech)
+    schedule = fold_schedule(mech)
+    got = {tuple(c["faces"]): c["first_t"] for c in panel_clashes(mech, spec, schedule)}
+    solids = panel_solids(mech, spec, erode=ERODE * mech.size)
+    hinged = {tuple(sorted(h)) for h in mech.hinge_faces.tolist()}
+    ts = np.unique(np.concatenate([np.linspace(0.0, 0.9, 41), np.linspace(0.9, 1.0, 201)]))
+    poses = poses_at(mech, schedule, ts)
+    want = {}
+    for a in range(mech.n_faces):
+        for b in range(a + 1, mech.n_faces):
+            if (a, b) in hinged:
+                continue
+            hits = [t for t, p in zip(ts, poses)
+                    if _fcl_crossing(fcl, solids[a].triangles, p[a], solids[b].triangles, p[b])]
+            if hits:
+                want[(a, b)] = min(hits)
+    assert set(got) == set(want)
+    for pair, first in want.items():
+        assert got[pair] == pytest.approx(first, abs=1e-3)

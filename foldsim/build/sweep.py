@@ -294,3 +294,88 @@ def gear_clearance(mech, spec, schedule=None, t_from=0.0, t_to=1.0, pairs=None, 
                 row.update(min_clearance=float(lows[k]), at_t=float(ts[k]), body=s.label,
                            **{"with": other.label})
     return list(rows.values())
+
+
+ERODE = 1e-4
+"""Prisms are shrunk by this share of the model's size before the clash sweep, so
+panels that only touch by design (flush bevels at closure, corners shared when
+flat) are apart and only real overlaps count."""
+
+
+def panel_clashes(mech, spec, schedule=None, t_from=0.0, t_to=1.0, tol=DEFAULT):
+    """Thick panels that run into each other over the motion (the ``panel_clashes`` key).
+
+    Every pair of prisms is swept except a hinge's own two panels: the tapered
+    bevels make those clear each other for fold angles between flat and closing
+    (Tachi 2011; module `foldsim.build.prisms`), and a hinge past closing is the
+    stop check's to report. The prisms are first shrunk by ``ERODE * mech.size``
+    (`panel_solid`'s ``erode``), so contact by design is not a clash. The sweep is
+    conservative advancement on exact mesh distances, as for the gear bodies: a
+    stretch of t is cleared once the bound from its end distances and the pair's
+    speed bound stays above zero, and a clash lasting longer than
+    ``tol.t_resolution`` is found, with its first t to that resolution.
+
+    Returns
+    -------
+    list of dict
+        ``{"faces": [a, b], "first_t": float}`` per clashing pair, sorted by
+        ``first_t``.
+    """
+    schedule = schedule or fold_schedule(mech, tol)
+    lo_t, hi_t = sorted((float(t_from), float(t_to)))
+    if hi_t == lo_t or mech.n_faces < 2:
+        return []
+    solids = panel_solids(mech, spec, erode=ERODE * mech.size, tol=tol)
+    n = mech.n_faces
+    hinged = {tuple(sorted(h)) for h in mech.hinge_faces.tolist()}
+    a, b = np.triu_indices(n, 1)
+    keep = np.array([(int(x), int(y)) not in hinged for x, y in zip(a, b)], bool)
+    pairs = np.column_stack([a[keep], b[keep]])
+    if not len(pairs):
+        return []
+    profile = body_speed_profile(mech, schedule.rates, solids)
+    rate = profile[pairs[:, 0], common_depth(mech, pairs)] + profile[pairs[:, 1], common_depth(mech, pairs)]
+    faces = np.arange(n)
+    grid = np.linspace(lo_t, hi_t, INITIAL_STEPS + 1)
+    grid_poses = poses_at(mech, schedule, grid)
+    centre, radius = _spheres(solids)
+    posed = np.einsum("tfij,fj->tfi", grid_poses[:, :, :3, :3], centre) + grid_poses[:, :, :3, 3]
+    lows = np.maximum(np.linalg.norm(posed[:, pairs[:, 0]] - posed[:, pairs[:, 1]], axis=2)
+                      - radius[pairs[:, 0]] - radius[pairs[:, 1]], 0.0).T      # (P, G)
+    span = np.diff(grid)
+    near = (0.5 * (lows[:, :-1] + lows[:, 1:] - rate[:, None] * span) <= 0).any(axis=1)
+    shortest = tol.t_resolution
+    found = []
+    for k in np.flatnonzero(near):
+        pair, lip = pairs[k], rate[k]
+        ts, low = grid.copy(), lows[k].copy()
+        exact = np.zeros(len(ts), bool)
+        first = None
+        while True:
+            order = np.argsort(ts)
+            ts, low, exact = ts[order], low[order], exact[order]
+            gaps = np.diff(ts)
+            bound = 0.5 * (low[:-1] + low[1:] - lip * gaps)
+            active = (bound <= 0) & (gaps > shortest)
+            if first is not None:
+                active &= ts[:-1] < first
+            ends = np.zeros(len(ts), bool)
+            ends[:-1] |= active
+            ends[1:] |= active
+            todo = np.flatnonzero(ends & ~exact)
+            if len(todo):
+                d = solid_distances(mech, solids, pair, poses_at(mech, schedule, ts[todo]))
+                low[todo], exact[todo] = d, True
+                hit = ts[todo][d <= 0]
+                if len(hit):
+                    first = float(hit.min()) if first is None else min(first, float(hit.min()))
+                continue
+            if not active.any():
+                break
+            mid = 0.5 * (ts[:-1][active] + ts[1:][active])
+            ts = np.concatenate([ts, mid])
+            low = np.concatenate([low, _sphere_bounds(centre, radius, pair, faces, poses_at(mech, schedule, mid))])
+            exact = np.concatenate([exact, np.zeros(len(mid), bool)])
+        if first is not None:
+            found.append({"faces": [int(pair[0]), int(pair[1])], "first_t": first})
+    return sorted(found, key=lambda row: (row["first_t"], row["faces"]))

@@ -111,6 +111,10 @@ def _format_build(report):
             continue
         lines.append(f"  coupling {row['coupling']}: nearest {row['min_clearance']:.4g} {units} "
                      f"({row['body']} to {row['with']}, t = {row['at_t']:.4g})")
+    clashes = report.get("panel_clashes", [])
+    lines.append("thick panels: none run into another over the motion" if not clashes else
+                 "thick panels run into each other: " + "; ".join(
+                     f"faces {c['faces'][0]} and {c['faces'][1]} from t = {c['first_t']:.4g}" for c in clashes))
     outer = report["outer_closure"]
     lines.append(f"outer surface at t = 1: largest gap {outer['max_gap']:.4g} {units} -> "
                  f"{'meets' if outer['meets'] else 'OPEN'}")

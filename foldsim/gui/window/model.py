@@ -169,3 +169,44 @@ class Model:
             spec = build_spec(self.mech)
             self._solids = [] if spec is None else build_solids(self.mech, spec)
         return [s for s in self._solids if gears or s.kind == "panel"]
+
+    @classmethod
+    def from_shape(cls, recipe, mech=None):
+        """A model made from a built-in solid or a mesh file as `foldsim new` makes it.
+
+        Parameters
+        ----------
+        recipe : argparse.Namespace
+            `foldsim.design.shape_args`.
+        mech : Mechanism, optional
+            Already made from the recipe.
+        """
+        from ...design import build
+
+        report = None
+        if mech is None:
+            mech, report = build(recipe)
+        shape = Path(recipe.shape)
+        model = cls(mech=mech, recipe=recipe, source=shape if is_mesh(shape) or shape.is_file() else None)
+        model.build_report = report
+        if report is not None:
+            model.labels = part_labels(report.get("part_types"), mech.n_faces)
+        return model
+
+    def name(self):
+        """What the window calls the model."""
+        if self.mech.name:
+            return self.mech.name
+        return self.source.name if self.source is not None else "new model"
+
+    def default_stem(self):
+        """A file name (no suffix) for saving or exporting the model."""
+        if self.path is not None:
+            return file_stem(self.path)
+        if self.source is not None:
+            return file_stem(self.source)
+        return "".join(c if c.isalnum() or c in "-_" else "-" for c in self.name()) or "model"
+
+    def folder(self):
+        """The folder of the model's file, or the current one."""
+        return self.source.parent if self.source is not None else Path.cwd()
