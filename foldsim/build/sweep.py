@@ -1,4 +1,5 @@
-"""Gear bodies against everything they are not meant to touch, over the whole motion.
+"""Gear bodies against everything they are not meant to touch, and thick panels
+against each other (`panel_clashes`), over the whole motion.
 
 The sweep covers every gear body (and rod) against every prism and every other
 gear body carried by another panel, except the contacts that are allowed by
