@@ -335,7 +335,8 @@ def panel_clashes(mech, spec, schedule=None, t_from=0.0, t_to=1.0, tol=DEFAULT):
     if not len(pairs):
         return []
     profile = body_speed_profile(mech, schedule.rates, solids)
-    rate = profile[pairs[:, 0], common_depth(mech, pairs)] + profile[pairs[:, 1], common_depth(mech, pairs)]
+    depth = common_depth(mech, pairs)
+    rate = profile[pairs[:, 0], depth] + profile[pairs[:, 1], depth]
     faces = np.arange(n)
     grid = np.linspace(lo_t, hi_t, INITIAL_STEPS + 1)
     grid_poses = poses_at(mech, schedule, grid)
