@@ -13,7 +13,7 @@ import html
 import re
 
 from ..study import table
-from ..study.rank import DEFAULT_RANK, parse_criteria, pareto_front, ranked, summary
+from ..study.rank import DEFAULT_RANK, cell_text, parse_criteria, pareto_front, ranked, summary
 
 TOP = 3
 """Top nets drawn by default."""
@@ -21,16 +21,6 @@ TOP = 3
 
 def _e(value):
     return html.escape(str(value), quote=True)
-
-
-def _cell(value):
-    if value is None:
-        return "-"
-    if isinstance(value, bool):
-        return "yes" if value else "no"
-    if isinstance(value, float):
-        return f"{value:.4g}"
-    return str(value)
 
 
 def section(study, top=TOP, criteria=None):
@@ -68,7 +58,7 @@ def section(study, top=TOP, criteria=None):
     head = ["net", "ok", *names, "cuts"]
     out.append("<table><tr>" + "".join(f"<th>{_e(h)}</th>" for h in head) + "</tr>")
     for r in order[:top]:
-        cells = [_cell(r[h]) for h in head]
+        cells = [cell_text(r[h]) for h in head]
         out.append(f'<tr class="study-net" data-net="{r["net"]}">' + "".join(f"<td>{_e(c)}</td>" for c in cells)
                    + "</tr>")
     out.append("</table>")

@@ -23,6 +23,23 @@ DEFAULT_RANK = "collision_free, worst_case_gap, part_types, diameter"
 """The criteria when none are given (``p95_gap`` replaces ``worst_case_gap`` with --mc)."""
 
 
+def cell_text(value, missing="-"):
+    """A table cell's value as text: yes/no, four significant digits for floats.
+
+    Examples
+    --------
+    >>> cell_text(True), cell_text(0.123456), cell_text(None), cell_text(None, missing="")
+    ('yes', '0.1235', '-', '')
+    """
+    if value is None:
+        return missing
+    if isinstance(value, bool):
+        return "yes" if value else "no"
+    if isinstance(value, float):
+        return f"{value:.4g}"
+    return str(value)
+
+
 def parse_criteria(text, rows=()):
     """A ``--rank`` string, ``"collision_free, p95_gap, part_types"``, as a list of names.
 

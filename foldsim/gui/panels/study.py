@@ -14,20 +14,11 @@ from PySide6 import QtCore, QtWidgets
 
 from ...design import shape_args
 from ...errors import FoldsimError
+from ...study.rank import cell_text
 
 SHOWN = ("net", "ok", "collision_free", "first_collision_t", "diameter", "part_types", "gear_count",
          "gear_chain", "worst_case_gap", "rss_gap", "p95_gap", "closure_gap", "error", "cuts")
 """The table's columns, in order (names of the study table's columns)."""
-
-
-def _text(value):
-    if value is None:
-        return ""
-    if isinstance(value, bool):
-        return "yes" if value else "no"
-    if isinstance(value, float):
-        return f"{value:.4g}"
-    return str(value)
 
 
 def _sort_key(value):
@@ -58,7 +49,7 @@ class StudyModel(QtCore.QAbstractTableModel):
             return None
         value = self.rows[index.row()][self.columns[index.column()]]
         if role == QtCore.Qt.ItemDataRole.DisplayRole:
-            return _text(value)
+            return cell_text(value, missing="")
         if role == QtCore.Qt.ItemDataRole.TextAlignmentRole and isinstance(value, (int, float)) \
                 and not isinstance(value, bool):
             return int(QtCore.Qt.AlignmentFlag.AlignRight | QtCore.Qt.AlignmentFlag.AlignVCenter)
