@@ -298,6 +298,230 @@ def _wedge_separation(a, b):
 
 
 
+PAIR_BLOCK = 1_000_000
+"""Triangle pairs expanded at once by `_many_triangles`."""
+
+
+def _posed_items(pan, poses, frame, items):
+    """Every triangle of item ``items[k]`` at ``poses[frame[k]]``, the items' runs back to back.
+
+    Returns
+    -------
+    tris : (m, 3, 3) float
+    offset : (n,) int
+        Where each item's run starts in ``tris``.
+    """
+    count = pan.count[items]
+    offset = np.concatenate([[0], np.cumsum(count)[:-1]]).astype(np.int64)
+    which = np.repeat(np.arange(len(items)), count)
+    tri = pan.start[items][which] + np.arange(count.sum()) - offset[which]
+    m = poses[frame[which], items[which]]
+    pts = pan.tri_points[tri]
+    return np.einsum("nij,nkj->nki", m[:, :3, :3], pts) + m[:, None, :3, 3], offset
+
+
+def _states_posed(a, b, eps, distance):
+    """`triangle_states` of posed triangle pairs a, b (n, 3, 3)."""
+    n = len(a)
+    overlap = np.full(n, -np.inf)
+    dist = np.empty(n) if distance else None
+    for k in range(0, n, CHUNK):
+        av, bv = _soa(a[k:k + CHUNK]), _soa(b[k:k + CHUNK])
+        d2, maybe = _block(av, bv, eps, distance)
+        if distance:
+            dist[k:k + CHUNK] = np.sqrt(d2)
+        if maybe.any():
+            rows = np.flatnonzero(maybe)
+            overlap[k + rows] = triangles.crossing_overlap(_stack(av, rows), _stack(bv, rows), eps)
+    return overlap, dist
+
+
+def _many_triangles(pan, poses, frame, pairs, eps, measure, limit):
+    """Collision flag and least triangle distance of item pairs with many triangles.
+
+    Each item's triangles are posed once per pose set, with a sphere (centroid,
+    farthest corner) and a box each. A triangle pair whose sphere or box gap
+    exceeds the pair's upper bound (the least distance between two triangle
+    centroids, points of the two items) cannot hold the nearest points, and one
+    whose gap exceeds ``limit`` (n,) is of no interest (``limit`` 0: crossing
+    only); neither is tested. With oriented boxes (``pan.box_axes``), a pair whose
+    items lie farther than that from each other's box is settled at once, and a
+    triangle farther than that from the other item's box is left out before any
+    triangle pair is formed. The rest go through the exact tests.
+
+    Returns
+    -------
+    hit : (n,) bool
+    sep : (n,) float
+        Least distance (exact below ``limit``, else a lower bound of at least it);
+        inf without ``measure``.
+    """
+    n = len(pairs)
+    hit = np.zeros(n, bool)
+    sep = np.full(n, np.inf)
+    boxes = pan.box_axes is not None
+    if boxes:
+        # Item level: each item's sphere against the other's oriented box.
+        low = _item_box_gap(pan, poses, frame, pairs)
+        far = low > np.maximum(limit, 0.0) + 2.0 * eps
+        if measure:
+            sep[far] = low[far]
+        rest = np.flatnonzero(~far)
+    else:
+        rest = np.arange(n)
+    per = pan.count[pairs[rest, 0]] * pan.count[pairs[rest, 1]]
+    ends = np.concatenate([[0], np.cumsum(per)])
+    cuts = np.unique(np.searchsorted(ends, np.arange(0, ends[-1] + PAIR_BLOCK, PAIR_BLOCK)).clip(0, len(rest)))
+    if not len(cuts) or cuts[-1] != len(rest):
+        cuts = np.append(cuts, len(rest))
+    for s, e in zip(cuts[:-1], cuts[1:]):
+        if s == e:
+            continue
+        idx = rest[s:e]
+        sub, fr, lim = pairs[idx], frame[idx], limit[idx]
+        m = len(idx)
+        keys, inv = np.unique(np.concatenate([fr * pan.n + sub[:, 0], fr * pan.n + sub[:, 1]]),
+                              return_inverse=True)
+        tris, offset = _posed_items(pan, poses, keys // pan.n, keys % pan.n)
+        centre = tris.mean(axis=1)
+        radius = np.sqrt(((tris - centre[:, None]) ** 2).sum(axis=2).max(axis=1))
+        lo, hi = tris.min(axis=1), tris.max(axis=1)
+        if boxes:
+            ta, la = _side_triangles(pan, sub[:, 0], offset[inv[:m]])
+            tb, lb = _side_triangles(pan, sub[:, 1], offset[inv[m:]])
+            ga = _tri_box_gap(pan, poses, fr[la], sub[la, 1], centre[ta], radius[ta])
+            gb = _tri_box_gap(pan, poses, fr[lb], sub[lb, 0], centre[tb], radius[tb])
+            # An upper bound: the centroids of the two triangles nearest the other's box.
+            best_a = _row_argmin(ga, la, m)
+            best_b = _row_argmin(gb, lb, m)
+            d = centre[ta[best_a]] - centre[tb[best_b]]
+            bound = np.sqrt((d * d).sum(axis=1))
+            cap = np.maximum(np.minimum(bound, lim), 0.0) + 2.0 * eps
+            ka, kb = ga <= cap[la], gb <= cap[lb]
+            pa, pb, row = _survivor_pairs(ta[ka], la[ka], tb[kb], lb[kb], m)
+        else:
+            ia, ib, row = triangle_pairs(pan, sub)
+            pa = offset[inv[:m]][row] + ia - pan.start[sub[row, 0]]
+            pb = offset[inv[m:]][row] + ib - pan.start[sub[row, 1]]
+            bound = None
+        d = centre[pa] - centre[pb]
+        upper = np.sqrt((d * d).sum(axis=1))
+        box = np.maximum(np.maximum(lo[pa] - hi[pb], lo[pb] - hi[pa]), 0.0)
+        lower = np.maximum(upper - radius[pa] - radius[pb], np.sqrt((box * box).sum(axis=1)))
+        if bound is None:
+            bound = np.full(m, np.inf)
+        np.minimum.at(bound, row, upper)
+        keep = lower <= np.maximum(np.minimum(bound, lim)[row], 0.0) + 2.0 * eps
+        first = None
+        if measure and keep.any():
+            # The kept pair of least lower bound in each row first: its exact distance
+            # is a bound as tight as any, and prunes the rest of the row again.
+            k = np.flatnonzero(keep)
+            first = k[_row_argmin(lower[k], row[k], m, present=False)]
+            first = first[first >= 0]
+            o1, d1 = _states_posed(tris[pa[first]], tris[pb[first]], eps, True)
+            np.logical_or.at(hit, idx[row[first]], o1 > eps)
+            np.minimum.at(bound, row[first], d1)
+            keep = lower <= np.maximum(np.minimum(bound, lim)[row], 0.0) + 2.0 * eps
+            keep[first] = False
+        keep = np.flatnonzero(keep)
+        if measure:
+            # Pruned triangles and triangle pairs lie beyond the bound (so do not hold
+            # the nearest points) or beyond the limit: the least distance is the kept
+            # pairs' least, or else at least the limit (docstring).
+            floor = np.full(m, np.inf)
+            if boxes:
+                for g, rows, kept in ((ga, la, ka), (gb, lb, kb)):
+                    np.minimum.at(floor, rows[~kept], g[~kept])
+            pruned = np.ones(len(row), bool)
+            pruned[keep] = False
+            if first is not None:
+                pruned[first] = False
+            np.minimum.at(floor, row[pruned], lower[pruned])
+            sep[idx] = np.maximum(floor, 0.0)
+            if first is not None:
+                np.minimum.at(sep, idx[row[first]], d1)
+        if not len(keep):
+            continue
+        overlap, dist = _states_posed(tris[pa[keep]], tris[pb[keep]], eps, measure)
+        r = row[keep]
+        np.logical_or.at(hit, idx[r], overlap > eps)
+        if measure:
+            np.minimum.at(sep, idx[r], dist)
+    return hit, sep
+
+
+def _posed_boxes(pan, poses, frame, items):
+    """Centre (n, 3) and axes (n, 3, 3) (rows) of the items' oriented boxes at ``poses[frame]``."""
+    m = poses[frame, items]
+    rot, move = m[:, :3, :3], m[:, :3, 3]
+    centre = np.einsum("nij,nj->ni", rot, pan.box_centre[items]) + move
+    axes = np.einsum("nkj,nij->nki", pan.box_axes[items], rot)
+    return centre, axes
+
+
+def _point_box_distance(points, centre, axes, half):
+    """Distance (n,) from points (n, 3) to oriented boxes (0 inside)."""
+    local = np.abs(np.einsum("nkj,nj->nk", axes, points - centre))
+    out = np.maximum(local - half, 0.0)
+    return np.sqrt((out * out).sum(axis=1))
+
+
+def _item_box_gap(pan, poses, frame, pairs):
+    """(n,) lower bound on item pair distances: each sphere against the other's box."""
+    out = []
+    for x, y in ((0, 1), (1, 0)):
+        bx, by = pairs[:, x], pairs[:, y]
+        centre, axes = _posed_boxes(pan, poses, frame, bx)
+        m = poses[frame, by]
+        sphere = np.einsum("nij,nj->ni", m[:, :3, :3], pan.centre[by]) + m[:, :3, 3]
+        out.append(_point_box_distance(sphere, centre, axes, pan.box_half[bx]) - pan.radius[by])
+    return np.maximum(out[0], out[1])
+
+
+def _side_triangles(pan, items, offset):
+    """Every triangle of one side of item pairs: its index into the posed run and its pair."""
+    count = pan.count[items]
+    row = np.repeat(np.arange(len(items)), count)
+    local = np.arange(count.sum()) - np.repeat(np.cumsum(count) - count, count)
+    return offset[row] + local, row
+
+
+def _tri_box_gap(pan, poses, frame, other, centre, radius):
+    """(n,) lower bound on the distance from triangles (spheres) to the other items' boxes."""
+    box_centre, axes = _posed_boxes(pan, poses, frame, other)
+    return _point_box_distance(centre, box_centre, axes, pan.box_half[other]) - radius
+
+
+def _row_argmin(values, rows, n, present=True):
+    """Index into ``values`` of each row's least value.
+
+    ``present``: every row 0..n-1 has a value; otherwise rows without one get -1.
+    """
+    order = np.lexsort((values, rows))
+    sorted_rows = rows[order]
+    first = np.searchsorted(sorted_rows, np.arange(n))
+    if present:
+        return order[first]
+    ok = (first < len(rows)) & (sorted_rows[np.minimum(first, len(rows) - 1)] == np.arange(n))
+    return np.where(ok, order[np.minimum(first, len(rows) - 1)], -1)
+
+
+def _survivor_pairs(ta, la, tb, lb, n):
+    """All pairs of one row's surviving triangles, for every row (la, lb sorted).
+
+    Returns pa, pb (indices into the posed triangles) and the row of each pair.
+    """
+    ca = np.bincount(la, minlength=n)
+    cb = np.bincount(lb, minlength=n)
+    sa = np.concatenate([[0], np.cumsum(ca)[:-1]])
+    sb = np.concatenate([[0], np.cumsum(cb)[:-1]])
+    per = ca * cb
+    row = np.repeat(np.arange(n), per)
+    local = np.arange(per.sum()) - np.repeat(np.cumsum(per) - per, per)
+    return ta[sa[row] + local // cb[row]], tb[sb[row] + local % cb[row]], row
+
+
 def pair_state(mech, pan, poses, frame, pairs, clearance, eps, separation=True, need=None):
     """Separation and collision flag of face pairs (the fast kernels of this module).
 
@@ -327,30 +551,29 @@ def pair_state(mech, pan, poses, frame, pairs, clearance, eps, separation=True, 
         shared point; 0 where colliding.
     hit : (n,) bool
     """
-    ia, ib, row = triangle_pairs(pan, pairs)
-    keys = _keys(pairs, mech.n_faces)
+    keys = _keys(pairs, pan.n)
     is_pivot, pos = _in_sorted(keys, pan.pivot_keys)
     measure = separation or clearance > 0
-    enough = None
-    if need is not None and len(row) > len(pairs):
+    if len(pairs) and pan.count[pairs].max() > 1:
         # Pivoting pairs take their separation from the wedges: their triangles only
         # need the crossing test (spheres apart cannot cross).
-        enough = np.where(is_pivot, 0.0, np.asarray(need, float) + clearance)[row]
-    overlap, dist = triangle_states(pan, poses, frame[row], ia, ib, eps, measure, enough)
-    single = len(row) == len(pairs)  # one triangle per face: row is 0, 1, 2, ...
-    if single:
-        hit = overlap > eps
+        limit = np.full(len(pairs), np.inf if measure else 0.0)
+        if need is not None:
+            limit = np.minimum(limit, np.asarray(need, float) + clearance)
+        limit[is_pivot] = 0.0
+        hit, sep = _many_triangles(pan, poses, frame, pairs, eps, measure, limit)
+        if not measure:
+            return np.full(len(pairs), np.inf), hit
+        sep[is_pivot | hit] = np.inf
     else:
-        hit = np.zeros(len(pairs), bool)
-        np.logical_or.at(hit, row, overlap > eps)
-    sep = np.full(len(pairs), np.inf)
-    if not measure:
-        return sep, hit
-    measured = ~is_pivot[row] & ~hit[row]
-    if single:
+        ia, ib, row = triangle_pairs(pan, pairs)
+        overlap, dist = triangle_states(pan, poses, frame[row], ia, ib, eps, measure)
+        hit = overlap > eps  # one triangle per face: row is 0, 1, 2, ...
+        sep = np.full(len(pairs), np.inf)
+        if not measure:
+            return sep, hit
+        measured = ~is_pivot & ~hit
         sep[measured] = dist[measured]
-    else:
-        np.minimum.at(sep, row[measured], dist[measured])
     if clearance > 0:
         touching, _ = _in_sorted(keys, pan.touch_keys)
         hit |= ~touching & ~is_pivot & (sep < clearance)

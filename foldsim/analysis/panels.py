@@ -46,6 +46,19 @@ class Panels:
         Hinges on the tree path between the pair's faces.
     centre, radius : (F, 3) float, (F,) float
         A sphere around each face (flat frame): vertex centroid and reach.
+    owner : (F,) int, optional
+        For items that are not the mechanism's faces but rigid bodies carried by
+        them (thick panels, gear bodies; `foldsim.build.bodies`): the face that
+        carries each item. None: item f is face f. Every per-face array above is
+        then per item, and F is the number of items.
+    passive : (F,) bool, optional
+        Items that are only tested against items that are not passive (panels that
+        only gear bodies are swept against). None: every pair not skipped is tested.
+    box_centre, box_axes, box_half : (F, 3), (F, 3, 3), (F, 3) float, optional
+        An oriented box around each item (flat frame; rows of ``box_axes`` are its
+        unit axes, ``box_half`` its half extents). Where given, the narrow phase
+        rules out pairs and triangles far from another item's box before testing
+        triangle pairs (`narrowphase._many_triangles`).
     """
 
     tri_face: np.ndarray
@@ -59,6 +72,16 @@ class Panels:
     pivot_path: np.ndarray
     centre: np.ndarray
     radius: np.ndarray
+    owner: np.ndarray = None
+    passive: np.ndarray = None
+    box_centre: np.ndarray = None
+    box_axes: np.ndarray = None
+    box_half: np.ndarray = None
+
+    @property
+    def n(self):
+        """Number of items (faces, or bodies when ``owner`` is set)."""
+        return len(self.start)
 
 
 def _keys(pairs, n_faces):
@@ -154,6 +177,28 @@ def panels(mech, tol=DEFAULT):
         pivot_dirs=np.array([p[1] for p in pivots], float).reshape(-1, 2, 2, 3),
         pivot_path=np.array([p[2] for p in pivots], bool).reshape(-1, mech.n_hinges),
         centre=centre, radius=radius)
+
+
+def oriented_boxes(tri_points, start):
+    """An oriented box around each run of triangles (principal axes of its corners).
+
+    Returns
+    -------
+    centre (F, 3), axes (F, 3, 3), half (F, 3) float
+        As `Panels` keeps them.
+    """
+    ends = np.append(start[1:], len(tri_points))
+    centre, axes, half = [], [], []
+    for s, e in zip(start, ends):
+        pts = tri_points[s:e].reshape(-1, 3)
+        mid = pts.mean(axis=0)
+        _, _, vt = np.linalg.svd(pts - mid, full_matrices=False)
+        proj = (pts - mid) @ vt.T
+        lo, hi = proj.min(axis=0), proj.max(axis=0)
+        centre.append(mid + 0.5 * (lo + hi) @ vt)
+        axes.append(vt)
+        half.append(0.5 * (hi - lo))
+    return np.array(centre).reshape(-1, 3), np.array(axes).reshape(-1, 3, 3), np.array(half).reshape(-1, 3)
 
 
 def _in_sorted(keys, table):

@@ -52,17 +52,19 @@ POSE_BUDGET = 2_000_000
 class Evaluator:
     """Separation and collision state of face pairs at drive values, in bounded blocks."""
 
-    def __init__(self, mech, schedule, pan, clearance, tol, stats=None):
+    def __init__(self, mech, schedule, pan, clearance, tol, stats=None, profile=None):
         self.mech, self.schedule, self.pan = mech, schedule, pan
         self.clearance = clearance
         self.eps = tol.contact * mech.size
-        self.profile = speed_profile(mech, schedule.rates)
+        self.n = pan.n
+        self.owner = pan.owner
+        self.profile = speed_profile(mech, schedule.rates) if profile is None else profile
         self.speed = self.profile[:, 0]
         speeds = np.abs(schedule.rates)
         self.pivot_rate = np.concatenate(
             [pan.pivot_path[k:k + 1024] @ speeds for k in range(0, len(pan.pivot_path), 1024)]
             or [np.zeros(0)])
-        self.chunk = max(1, POSE_BUDGET // (16 * mech.n_faces))
+        self.chunk = max(1, POSE_BUDGET // (16 * max(self.n, mech.n_faces)))
         self.stats = stats if stats is not None else {}
         self.stats.setdefault("t_values", 0)
         self.stats.setdefault("pair_tests", 0)
@@ -70,14 +72,14 @@ class Evaluator:
     def poses(self, t):
         """(T, F, 4, 4) poses at drive values t (T,)."""
         self.stats["t_values"] += len(t)
-        return face_poses(self.mech, fold_angles(self.schedule, t))
+        poses = face_poses(self.mech, fold_angles(self.schedule, t))
+        return poses if self.owner is None else poses[:, self.owner]
 
     def rates(self, pairs):
         """(n,) bound on d(separation)/dt for face pairs (n, 2)."""
-        keys, first, back = np.unique(_keys(pairs, self.mech.n_faces), return_index=True,
-                                      return_inverse=True)
+        keys, first, back = np.unique(_keys(pairs, self.n), return_index=True, return_inverse=True)
         unique_pairs = np.sort(pairs[first], axis=1)
-        depth = common_depth(self.mech, unique_pairs)
+        depth = common_depth(self.mech, unique_pairs if self.owner is None else self.owner[unique_pairs])
         linear = (self.profile[unique_pairs[:, 0], depth] + self.profile[unique_pairs[:, 1], depth])
         is_pivot, pos = _in_sorted(keys, self.pan.pivot_keys)
         out = np.where(is_pivot, self.pivot_rate[pos] if len(self.pivot_rate) else 0.0, linear)
@@ -140,7 +142,7 @@ def _grid(mech, pan, speed, lo_t, hi_t):
                                        [x for x in (-1.0, 0.0, 1.0) if lo_t < x < hi_t]]))
     size = float(np.median(2.0 * pan.radius)) or mech.size
     typical = float(np.quantile(speed, 0.75))
-    most = min(MAX_STEPS, max(len(coarse) - 1, MAX_FACE_STEPS // mech.n_faces))
+    most = min(MAX_STEPS, max(len(coarse) - 1, MAX_FACE_STEPS // pan.n))
     k = 0
     while (len(coarse) - 1) * 2 ** (k + 1) <= most and span * typical / (n_steps * 2 ** k) > size:
         k += 1
@@ -188,7 +190,7 @@ def _merge_runs(cand, k, n_faces):
 
 def _grid_geometry(ev, grid):
     """Face boxes lo, hi (T, F, 3) and sphere centres (T, F, 3) at every grid value."""
-    n, f = len(grid), ev.mech.n_faces
+    n, f = len(grid), ev.n
     lo, hi, centre = np.empty((n, f, 3)), np.empty((n, f, 3)), np.empty((n, f, 3))
     step = max(1, ev.chunk // max(1, int(np.ceil(len(ev.pan.tri_face) / f))))
     for k in range(0, n, step):
@@ -213,7 +215,9 @@ def _candidates(ev, grid, lo, hi, k):
     block = 2 ** min(k, 2)
     rows = spatialhash.box_pairs_batched(swept_lo.reshape(-1, block, f, 3).min(axis=1),
                                          swept_hi.reshape(-1, block, f, 3).max(axis=1))
-    skip, _ = _in_sorted(_keys(rows[:, 1:], ev.mech.n_faces), ev.pan.skip_keys)
+    skip, _ = _in_sorted(_keys(rows[:, 1:], ev.n), ev.pan.skip_keys)
+    if ev.pan.passive is not None:
+        skip |= ev.pan.passive[rows[:, 1]] & ev.pan.passive[rows[:, 2]]
     rows = rows[~skip]
     if block > 1:
         out = []
@@ -243,7 +247,7 @@ def _node_states(ev, grid, centre, start, end, pairs, need, pivot):
     # Nodes that need the exact test: an end of an unsettled stretch whose sphere gap
     # is below the stretch's need.
     ends = [(0, np.flatnonzero(~settled & (g0 < need))), (1, np.flatnonzero(~settled & (g1 < need)))]
-    f = ev.mech.n_faces
+    f = ev.n
     node_keys = np.concatenate([np.where(side, end, start)[rows] * f * f + pairs[rows, 0] * f + pairs[rows, 1]
                                 for side, rows in ends])
     if not len(node_keys):
@@ -274,7 +278,7 @@ def _node_states(ev, grid, centre, start, end, pairs, need, pivot):
 
 
 def collision_intervals(mech, schedule, t_from=0.0, t_to=1.0, clearance=0.0, tol=DEFAULT, pan=None,
-                        progress=None, first_only=False, stats=None):
+                        progress=None, first_only=False, stats=None, profile=None):
     """Every colliding face pair over the motion, with its first and last t.
 
     See `foldsim.analysis.collision.collision_intervals` for the parameters and the
@@ -283,9 +287,15 @@ def collision_intervals(mech, schedule, t_from=0.0, t_to=1.0, clearance=0.0, tol
     collision is known; ``stats``, a dict, receives the counts
     ``t_values`` (drive values posed), ``pair_tests`` (exact face-pair tests),
     ``candidates`` (swept-box candidate stretches) and ``grid_steps``.
+
+    Items other than the faces (``pan.owner`` set, `foldsim.build.bodies`) need
+    ``profile`` (items, D + 1), their speed bounds split as `kinematics.speed_profile`
+    splits the faces'; the result's ``faces`` are then item indices.
     """
     pan = pan or panels(mech, tol)
-    ev = Evaluator(mech, schedule, pan, clearance, tol, stats)
+    if pan.owner is not None and profile is None:
+        raise ValueError("collision_intervals: items carried by faces need their speed profile")
+    ev = Evaluator(mech, schedule, pan, clearance, tol, stats, profile)
     lo_t, hi_t = sorted((float(t_from), float(t_to)))
     if hi_t - lo_t == 0:
         return []
@@ -295,7 +305,7 @@ def collision_intervals(mech, schedule, t_from=0.0, t_to=1.0, clearance=0.0, tol
     del lo, hi
     ev.stats["candidates"] = len(cand)
     ev.stats["grid_steps"] = len(grid) - 1
-    start, level, pairs = _merge_runs(cand, k, mech.n_faces)
+    start, level, pairs = _merge_runs(cand, k, ev.n)
     end = start + (1 << level)
     t0, t1 = grid[start], grid[end]
     rate, pivot = ev.rates(pairs) if len(pairs) else (np.zeros(0), np.zeros(0, bool))

@@ -452,11 +452,15 @@ def sector_frustum(origin, axial, e1, e2, x_range, r_range, sector, segments):
     return out
 
 
-def _segments(span):
-    return max(2, int(math.ceil(SEGMENTS_PER_TURN * min(span, 2 * math.pi) / (2 * math.pi))))
+def _segments(span, per_turn=SEGMENTS_PER_TURN):
+    return max(2, int(math.ceil(per_turn * min(span, 2 * math.pi) / (2 * math.pi))))
 
 
-def gear_solids(mech, spec, pairs=None, tip=False, tol=DEFAULT):
+COARSE_PER_TURN = 12
+"""Facets per turn of the coarse gear bodies a sweep may screen with (`gear_solids`'s ``coarse``)."""
+
+
+def gear_solids(mech, spec, pairs=None, tip=False, tol=DEFAULT, coarse=False):
     """The solids of every gear body (and rod), carried by their panels.
 
     Parameters
@@ -468,6 +472,11 @@ def gear_solids(mech, spec, pairs=None, tip=False, tol=DEFAULT):
     tip : bool
         Grow every gear's radius by one module (to the tip circle of standard
         teeth, addendum = m), for clearance checks.
+    coarse : bool
+        Fewer facets (`COARSE_PER_TURN`), each body circumscribed about the fine
+        one (radii grown by 1 / cos of the fine facets' half angle), so it holds
+        the fine body: a screen that is nearer to everything than the fine bodies,
+        never farther.
 
     Returns
     -------
@@ -482,8 +491,13 @@ def gear_solids(mech, spec, pairs=None, tip=False, tol=DEFAULT):
             e2 = np.cross(g.spin, g.e1)
             label = f"coupling {p.coupling} gear on hinge {g.hinge}"
             span = g.sector[1] - g.sector[0]
-            tris = sector_frustum(g.origin, g.axial, g.e1, e2, g.x_range,
-                                  (g.r_range[0] + grow, g.r_range[1] + grow), g.sector, _segments(span))
+            radii = (g.r_range[0] + grow, g.r_range[1] + grow)
+            segments = _segments(span)
+            if coarse:
+                scale = 1.0 / math.cos(min(span, 2 * math.pi) / segments / 2.0)
+                radii = (radii[0] * scale, radii[1] * scale)
+                segments = _segments(span, COARSE_PER_TURN)
+            tris = sector_frustum(g.origin, g.axial, g.e1, e2, g.x_range, radii, g.sector, segments)
             out.append(Solid(g.face, label, "gear", tris, p.coupling, g.hinge))
             if g.rod is not None:
                 rod = sector_frustum(g.origin, g.axial, g.e1, e2, g.rod, (p.rod_radius, p.rod_radius),

@@ -39,15 +39,29 @@ def _with_build(mech, build):
     return replace(mech, extras={**mech.extras, "build": build})
 
 
-def _clearance_of(mech, build, coupling, tol):
-    """The ``gear_clearance`` row of one coupling, or None when the build does not fit at all."""
+def _clearance_of(mech, build, coupling, tol, cache):
+    """The ``gear_clearance`` row of one coupling, or None when the build does not fit at all.
+
+    ``cache`` (dict) keeps what every trial shares: the schedule and the prisms
+    (the thickness does not change between trials).
+    """
+    from .gears import gear_pairs
+
     trial = _with_build(mech, build)
+    from ..gearing import fold_schedule
+    from .prisms import panel_solids
+
     try:
-        spec = build_spec(trial, tol=tol)
+        spec = build_spec(trial, tol=tol, validate=False)
+        if "prisms" not in cache:
+            cache["prisms"] = panel_solids(trial, spec, tol=tol)
+            cache["schedule"] = fold_schedule(trial, tol)
+        pairs = gear_pairs(trial, spec, tol)
     except ModelError as exc:
         return {"min_clearance": -1.0, "with": str(exc).split(": ", 1)[-1], "at_t": None}
     enough = max(2.0 * spec.clearance, spec.clearance + 2.0 * SIZING_RESOLUTION * trial.size)
-    rows = gear_clearance(trial, spec, tol=tol, only=[coupling], resolution=SIZING_RESOLUTION, enough=enough)
+    rows = gear_clearance(trial, spec, cache["schedule"], tol=tol, pairs=pairs, only=[coupling],
+                          resolution=SIZING_RESOLUTION, enough=enough, solids=cache["prisms"])
     return next(r for r in rows if r["coupling"] == coupling)
 
 
@@ -89,6 +103,7 @@ def size_gears(mech, thickness, module, clearance=0.0, max_teeth=200, tol=DEFAUL
     for k, (zi, zj) in base.items():
         scale[k] = max(1, math.ceil(MIN_TEETH / min(zi, zj)))
     entries = {}
+    cache = {}
 
     def entry(k, s):
         zi, zj = base[k]
@@ -106,7 +121,7 @@ def size_gears(mech, thickness, module, clearance=0.0, max_teeth=200, tol=DEFAUL
         def trial(s):
             entries[k] = entry(k, s)
             build["gears"] = [entries[c] for c in sorted(entries)]
-            return _clearance_of(mech, dict(build), k, tol)
+            return _clearance_of(mech, dict(build), k, tol, cache)
 
         def passes(row):
             d = row["min_clearance"]
@@ -139,6 +154,7 @@ def size_gears(mech, thickness, module, clearance=0.0, max_teeth=200, tol=DEFAUL
         spec_module = float(module) if kinds[k] != "spur" else None
         rows.append({"coupling": k, "kind": {"remote-bevel": "remote"}.get(kinds[k], kinds[k]), "teeth": z,
                      "module": spec_module, "min_clearance": row_lo["min_clearance"], "at_t": row_lo["at_t"],
+                     "guaranteed_min": row_lo.get("guaranteed_min"),
                      "passes": passes(row_lo), "limited_by": limited})
     build["gears"] = [entries[c] for c in sorted(entries)]
     return build, rows

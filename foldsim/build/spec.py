@@ -232,13 +232,17 @@ class BuildSpec:
 _CACHE = weakref.WeakKeyDictionary()
 
 
-def build_spec(mech, tol=DEFAULT):
+def build_spec(mech, tol=DEFAULT, validate=True):
     """The mechanism's resolved build, or None when its file has no ``build`` object.
 
     Parameters
     ----------
     mech : Mechanism
     tol : Tolerances
+    validate : bool
+        Build the prisms and the gear pairs once, so that a thickness the bevels
+        cannot take or gears the hinges cannot carry fail here. False: the caller
+        builds them itself (and sees the same errors); the spec is not cached.
 
     Returns
     -------
@@ -264,6 +268,8 @@ def build_spec(mech, tol=DEFAULT):
     for h, deg in doc.stops.items():
         stops[h], given[h] = math.radians(deg), True
     spec = BuildSpec(thickness, doc.material, doc.axis, doc.gears, stops, given, doc.clearance, doc)
+    if not validate:
+        return spec
     from .gears import gear_pairs
     from .prisms import panel_solids
 

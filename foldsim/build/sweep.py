@@ -33,10 +33,14 @@ and a body inside another counts as distance 0 (winding number).
 
 import numpy as np
 
-from ..analysis.triangles import triangle_distance
+from ..analysis import spatialhash
+from ..analysis.narrowphase import pair_state, triangle_distance
+from ..analysis.panels import _face_boxes, _in_sorted, _keys
+from ..analysis.sweep import collision_intervals
 from ..gearing import fold_schedule
-from ..kinematics import common_depth, poses_at, speed_profile
+from ..kinematics import common_depth, poses_at
 from ..tolerances import DEFAULT
+from .bodies import body_panels, body_speed_profile
 from .gears import gear_pairs, gear_solids
 from .prisms import panel_solids
 
@@ -67,56 +71,33 @@ def allowed_contact(a, b, carrier):
     return False
 
 
-def body_pairs(solids, carrier):
-    """(n, 2) int: every pair of solids the sweep tests (a gear body first)."""
+def allowed_pairs(solids, carrier):
+    """(n, 2) int: the solid pairs that may touch by design (`allowed_contact`)."""
+    gears = [i for i, s in enumerate(solids) if s.kind != "panel"]
+    panel_of = {s.face: i for i, s in enumerate(solids) if s.kind == "panel"}
+    by_coupling = {}
+    for i in gears:
+        by_coupling.setdefault(solids[i].coupling, []).append(i)
     out = []
-    for i, a in enumerate(solids):
-        if a.kind == "panel":
-            continue
-        for j, b in enumerate(solids):
-            if j == i or a.face == b.face or (b.kind != "panel" and j < i):
-                continue
-            if not allowed_contact(a, b, carrier):
-                out.append((i, j))
+    for members in by_coupling.values():
+        out += [(a, b) for k, a in enumerate(members) for b in members[k + 1:]]
+    for i in gears:
+        j = panel_of.get(carrier.get(solids[i].coupling, -1))
+        if j is not None:
+            out.append((i, j))
     return np.array(out, dtype=np.int64).reshape(-1, 2)
 
 
-def body_speed_profile(mech, rates, solids):
-    """Speed bounds of every solid, split like `kinematics.speed_profile`.
-
-    Returns
-    -------
-    (S, D + 1) float
-        ``out[s, d]``: how fast any point of solid s moves per unit t in the frame
-        of its panel's ancestor at depth d.
-    """
-    profile = speed_profile(mech, rates)
-    mids = mech.axes.mean(axis=1)
-    depth = profile.shape[1]
-    out = np.zeros((len(solids), depth))
-    for s, solid in enumerate(solids):
-        f = solid.face
-        out[s] = profile[f]
-        h = mech.face_hinge[f]
-        if h < 0:
-            continue
-        chain = []
-        g = f
-        while mech.face_hinge[g] >= 0:
-            chain.append(mech.face_hinge[g])
-            g = mech.parent[mech.face_hinge[g]]
-        chain = chain[::-1]
-        far_face = np.linalg.norm(mech.flat_faces[f] - mids[h], axis=1).max()
-        far_body = np.linalg.norm(solid.triangles.reshape(-1, 3) - mids[h], axis=1).max()
-        extra = max(0.0, far_body - far_face)
-        tail = np.cumsum(np.abs(rates[chain])[::-1])[::-1]
-        out[s, :len(tail)] += extra * tail
-    return out
-
-
-def _corners(solid):
-    """(n, 3) float: the solid's distinct corners."""
-    return np.unique(solid.triangles.reshape(-1, 3), axis=0)
+def body_pairs(solids, carrier):
+    """(n, 2) int: every pair of solids the sweep tests (a gear body first)."""
+    faces = np.array([s.face for s in solids])
+    gear = np.array([s.kind != "panel" for s in solids])
+    i, j = np.nonzero((faces[:, None] != faces[None, :]) & gear[:, None])
+    keep = ~gear[j] | (j > i)
+    i, j = i[keep], j[keep]
+    allowed = np.unique(_keys(allowed_pairs(solids, carrier), len(solids)))
+    out = np.column_stack([i, j])
+    return out[~_in_sorted(_keys(out, len(solids)), allowed)[0]]
 
 
 def _spheres(solids):
@@ -132,6 +113,11 @@ def _sphere_bounds(centre, radius, pair, faces, poses):
     ca = np.einsum("tij,j->ti", poses[:, faces[a], :3, :3], centre[a]) + poses[:, faces[a], :3, 3]
     cb = np.einsum("tij,j->ti", poses[:, faces[b], :3, :3], centre[b]) + poses[:, faces[b], :3, 3]
     return np.maximum(np.linalg.norm(ca - cb, axis=1) - radius[a] - radius[b], 0.0)
+
+
+def _corners(solid):
+    """(n, 3) float: the solid's distinct corners."""
+    return np.unique(solid.triangles.reshape(-1, 3), axis=0)
 
 
 def solid_distances(mech, solids, pair, poses):
@@ -170,7 +156,7 @@ def solid_distances(mech, solids, pair, poses):
         gap = np.maximum(np.maximum(lo_a[:, :, None] - hi_b[:, None], lo_b[:, None] - hi_a[:, :, None]), 0.0)
         near = np.maximum(centre, np.linalg.norm(gap, axis=3)) <= bound[:, None, None]
         kt, ia, ib = np.nonzero(near)
-        dist = triangle_distance(pa[sl][kt, ia], pb[sl][kt, ib])
+        dist = triangle_distance(pa[sl][kt, ia], pb[sl][kt, ib]) if len(kt) else np.zeros(0)
         best = np.full(len(near), np.inf)
         np.minimum.at(best, kt, dist)
         out[sl] = best
@@ -193,8 +179,17 @@ def _winding_batch(points, tris):
 
 
 def gear_clearance(mech, spec, schedule=None, t_from=0.0, t_to=1.0, pairs=None, only=None,
-                   resolution=RESOLUTION, enough=np.inf, tol=DEFAULT):
+                   resolution=RESOLUTION, enough=np.inf, tol=DEFAULT, solids=None):
     """Least distance of every coupling's gear bodies to what they must not touch (the ``gear_clearance`` key).
+
+    With a finite ``enough`` the sweep runs in two stages. The first is the
+    collision sweep of `foldsim.analysis.sweep` on the solids (`bodies.body_panels`),
+    with ``enough`` as its clearance: it finds, with that sweep's guarantee, every
+    pair of bodies that comes within ``enough`` of each other, and when (plus any
+    pair within it, or one inside the other, at ``t_from``). Only those pairs go to
+    the second stage, the exact refinement below, over the stretch of t where they
+    are near. Without ``enough`` every pair goes to the second stage over the whole
+    range.
 
     Parameters
     ----------
@@ -215,43 +210,67 @@ def gear_clearance(mech, spec, schedule=None, t_from=0.0, t_to=1.0, pairs=None, 
         A distance past which no more precision is wanted: a stretch of t whose
         bound reaches it is not refined further (`check` passes twice the
         clearance, and at least the clearance plus twice the resolution).
+    solids : list of Solid, optional
+        The prisms (`prisms.panel_solids`), when the caller already has them.
 
     Returns
     -------
     list of dict
         Per coupling with gears: ``coupling``, ``min_clearance`` (None when no
-        body is tested against them), ``at_t``, ``body`` and ``with`` (labels of
-        the nearest two solids), ``guaranteed_min`` (no distance over the range
+        body is tested against them, or, with a finite ``enough``, when nothing
+        comes within ``enough`` of them), ``at_t``, ``body`` and ``with`` (labels
+        of the nearest two solids), ``guaranteed_min`` (no distance over the range
         is smaller: at least ``min(min_clearance - resolution * size, enough)``).
     """
     schedule = schedule or fold_schedule(mech, tol)
     pairs = gear_pairs(mech, spec, tol) if pairs is None else pairs
-    solids = panel_solids(mech, spec, tol=tol) + gear_solids(mech, spec, pairs, tip=True, tol=tol)
+    prisms = panel_solids(mech, spec, tol=tol) if solids is None else list(solids)
+    solids = prisms + gear_solids(mech, spec, pairs, tip=True, tol=tol)
     carrier = {p.coupling: p.carrier for p in pairs}
-    tested = body_pairs(solids, carrier)
-    if only is not None:
-        mask = [any(solids[i].kind != "panel" and solids[i].coupling in only for i in pair) for pair in tested]
-        tested = tested[np.array(mask, bool).reshape(-1)]
     rows = {p.coupling: {"coupling": p.coupling, "min_clearance": None, "at_t": None, "body": None, "with": None,
                          "guaranteed_min": None} for p in pairs if only is None or p.coupling in only}
-    if not len(tested) or t_from == t_to:
-        return list(rows.values())
-    profile = body_speed_profile(mech, schedule.rates, solids)
-    faces = np.array([s.face for s in solids])
-    depth = common_depth(mech, faces[tested])
-    rate = profile[tested[:, 0], depth] + profile[tested[:, 1], depth]
-    eps = resolution * mech.size
     lo_t, hi_t = sorted((float(t_from), float(t_to)))
+    if not rows or lo_t == hi_t:
+        return list(rows.values())
+    active = np.array([s.kind != "panel" and (only is None or s.coupling in only) for s in solids], bool)
+    allowed = allowed_pairs(solids, carrier)
+    tested = _tested_couplings(solids, active, allowed)
+    for c in tested:
+        if c in rows and np.isfinite(enough):
+            rows[c]["guaranteed_min"] = float(enough)
+    profile = body_speed_profile(mech, schedule.rates, solids)
+    if np.isfinite(enough):
+        # Screened with the coarse bodies, which hold the fine ones: every pair the
+        # fine bodies bring within ``enough`` is among those the coarse ones do.
+        screen = prisms + gear_solids(mech, spec, pairs, tip=True, tol=tol, coarse=True)
+        pan = body_panels(mech, screen, allowed, passive=~active)
+        near = _near_pairs(mech, schedule, pan, body_speed_profile(mech, schedule.rates, screen), lo_t, hi_t,
+                           enough, tol)
+    else:
+        near = {tuple(p): (lo_t, hi_t) for p in body_pairs(solids, carrier).tolist()
+                if active[p[0]] or active[p[1]]}
+    if not near:
+        for c in tested:
+            if c in rows and rows[c]["guaranteed_min"] is None:
+                rows[c]["guaranteed_min"] = float(enough)
+        return list(rows.values())
+    keys = sorted(near)
+    work = np.array(keys, np.int64).reshape(-1, 2)
+    faces = np.array([s.face for s in solids])
+    depth = common_depth(mech, faces[work])
+    rate = profile[work[:, 0], depth] + profile[work[:, 1], depth]
+    eps = resolution * mech.size
     shortest = tol.t_resolution * 1e-3
-    grid = np.linspace(lo_t, hi_t, INITIAL_STEPS + 1)
-    grid_poses = poses_at(mech, schedule, grid)
     centre, radius = _spheres(solids)
-    couplings = [[solids[i].coupling for i in pair if solids[i].kind != "panel"] for pair in tested]
-    first = [_sphere_bounds(centre, radius, pair, faces, grid_poses) for pair in tested]
+    couplings = [[solids[i].coupling for i in pair if solids[i].kind != "panel"] for pair in work]
+    spans = [near[k] for k in keys]
+    grids = [np.linspace(max(lo_t, a), min(hi_t, b), INITIAL_STEPS + 1) if b > a else np.array([a, a])
+             for a, b in spans]
+    first = [_sphere_bounds(centre, radius, pair, faces, poses_at(mech, schedule, g)) for pair, g in zip(work, grids)]
     best = {}
     for n in np.argsort([f.min() for f in first]):
-        pair, lip = tested[n], rate[n]
-        ts, lows = grid.copy(), first[n].copy()
+        pair, lip = work[n], rate[n]
+        ts, lows = grids[n].copy(), first[n].copy()
         exact = np.zeros(len(ts), bool)
         while True:
             goal = max(best.get(c, np.inf) for c in couplings[n])
@@ -259,10 +278,12 @@ def gear_clearance(mech, spec, schedule=None, t_from=0.0, t_to=1.0, pairs=None, 
             ts, lows, exact = ts[order], lows[order], exact[order]
             span = np.diff(ts)
             bound = np.maximum(0.5 * (lows[:-1] + lows[1:] - lip * span), 0.0)
-            active = (bound < goal - eps) & (bound < enough) & (span > shortest)
+            active_ = (bound < goal - eps) & (bound < enough) & (span > shortest)
             ends = np.zeros(len(ts), bool)
-            ends[:-1] |= active
-            ends[1:] |= active
+            ends[:-1] |= active_
+            ends[1:] |= active_
+            if not len(span):
+                ends[:] = True
             todo = np.flatnonzero(ends & ~exact & (lows < goal))
             if len(todo):
                 d = solid_distances(mech, solids, pair, poses_at(mech, schedule, ts[todo]))
@@ -270,13 +291,13 @@ def gear_clearance(mech, spec, schedule=None, t_from=0.0, t_to=1.0, pairs=None, 
                 for c in couplings[n]:
                     best[c] = min(best.get(c, np.inf), float(d.min()))
                 continue
-            if not active.any():
+            if not active_.any():
                 break
-            mid = 0.5 * (ts[:-1][active] + ts[1:][active])
+            mid = 0.5 * (ts[:-1][active_] + ts[1:][active_])
             ts = np.concatenate([ts, mid])
             lows = np.concatenate([lows, _sphere_bounds(centre, radius, pair, faces, poses_at(mech, schedule, mid))])
             exact = np.concatenate([exact, np.zeros(len(mid), bool)])
-        floor = float(bound.min()) if len(bound) else np.inf
+        floor = float(bound.min()) if len(bound) else float(lows.min())
         for c in couplings[n]:
             if c in rows:
                 known = rows[c]["guaranteed_min"]
@@ -297,13 +318,75 @@ def gear_clearance(mech, spec, schedule=None, t_from=0.0, t_to=1.0, pairs=None, 
     return list(rows.values())
 
 
+def _tested_couplings(solids, active, allowed):
+    """Couplings with at least one body that some solid is tested against."""
+    n = len(solids)
+    faces = np.array([s.face for s in solids])
+    on_face = np.bincount(faces)[faces]
+    skipped = np.bincount(allowed.ravel(), minlength=n)
+    return {solids[i].coupling for i in np.flatnonzero(active) if n - on_face[i] - skipped[i] > 0}
+
+
+def _near_pairs(mech, schedule, pan, profile, lo_t, hi_t, enough, tol):
+    """Solid pairs that come within ``enough`` of each other, and the stretch of t where they do.
+
+    Returns
+    -------
+    dict
+        ``(a, b) -> (first_t, last_t)``.
+    """
+    found = collision_intervals(mech, schedule, lo_t, hi_t, clearance=enough, tol=tol, pan=pan, profile=profile)
+    near = {}
+    for row in found:
+        key = tuple(row["faces"])
+        a, b = near.get(key, (row["first_t"], row["last_t"]))
+        near[key] = (min(a, row["first_t"]), max(b, row["last_t"]))
+    # The sweep leaves out what holds only at its first t (a flat-layout contact);
+    # the first pose is checked here, containment included: after it, a body can
+    # only get inside another through its surface, which the sweep sees.
+    poses = poses_at(mech, schedule, np.array([lo_t]))[:, pan.owner]
+    lo, hi = _face_boxes(pan, poses)
+    pairs = spatialhash.overlapping_boxes(lo[0] - enough / 2, hi[0] + enough / 2)
+    pairs = np.sort(pairs, axis=1)
+    keep = ~_in_sorted(_keys(pairs, pan.n), pan.skip_keys)[0]
+    if pan.passive is not None:
+        keep &= ~(pan.passive[pairs[:, 0]] & pan.passive[pairs[:, 1]])
+    pairs = pairs[keep]
+    if not len(pairs):
+        return near
+    sep, hit = pair_state(mech, pan, poses, np.zeros(len(pairs), np.int64), pairs, enough, tol.contact * mech.size)
+    inside = _contained(pan, poses[0], pairs)
+    for a, b in pairs[hit | inside].tolist():
+        first, last = near.get((a, b), (lo_t, lo_t))
+        near[(a, b)] = (lo_t, max(last, lo_t))
+    return near
+
+
+def _contained(pan, poses, pairs):
+    """(n,) bool: for item pairs whose boxes overlap, whether one item holds a corner of the other."""
+    out = np.zeros(len(pairs), bool)
+    for k, (a, b) in enumerate(pairs.tolist()):
+        ta = _item_triangles(pan, poses, a)
+        tb = _item_triangles(pan, poses, b)
+        wa = _winding_batch(ta[None, 0, 0], tb[None])
+        wb = _winding_batch(tb[None, 0, 0], ta[None])
+        out[k] = max(abs(wa[0]), abs(wb[0])) > 0.5
+    return out
+
+
+def _item_triangles(pan, poses, i):
+    s, c = pan.start[i], pan.count[i]
+    tri = pan.tri_points[s:s + c]
+    return tri @ poses[i, :3, :3].T + poses[i, :3, 3]
+
+
 ERODE = 1e-4
 """Prisms are shrunk by this share of the model's size before the clash sweep, so
 panels that only touch by design (flush bevels at closure, corners shared when
 flat) are apart and only real overlaps count."""
 
 
-def panel_clashes(mech, spec, schedule=None, t_from=0.0, t_to=1.0, tol=DEFAULT):
+def panel_clashes(mech, spec, schedule=None, t_from=0.0, t_to=1.0, tol=DEFAULT, solids=None):
     """Thick panels that run into each other over the motion (the ``panel_clashes`` key).
 
     Every pair of prisms is swept except a hinge's own two panels: the tapered
@@ -311,73 +394,30 @@ def panel_clashes(mech, spec, schedule=None, t_from=0.0, t_to=1.0, tol=DEFAULT):
     (Tachi 2011; module `foldsim.build.prisms`), and a hinge past closing is the
     stop check's to report. The prisms are first shrunk by ``ERODE * mech.size``
     (`panel_solid`'s ``erode``), so contact by design is not a clash. The sweep is
-    conservative advancement on exact mesh distances, as for the gear bodies: a
-    stretch of t is cleared once the bound from its end distances and the pair's
-    speed bound stays above zero, and a clash lasting longer than
-    ``tol.t_resolution`` is found, with its first t to that resolution.
+    the thin panels' (`foldsim.analysis.sweep.collision_intervals`, conservative
+    advancement on exact mesh distances) with the prisms as its items: a clash
+    lasting longer than ``tol.t_resolution`` is found, with its first and last t to
+    that resolution.
+
+    Parameters
+    ----------
+    solids : list of Solid, optional
+        The shrunk prisms, when the caller already has them.
 
     Returns
     -------
     list of dict
-        ``{"faces": [a, b], "first_t": float}`` per clashing pair, sorted by
-        ``first_t``.
+        ``{"faces": [a, b], "first_t": float, "last_t": float}`` per clash, sorted
+        by ``first_t``.
     """
     schedule = schedule or fold_schedule(mech, tol)
     lo_t, hi_t = sorted((float(t_from), float(t_to)))
     if hi_t == lo_t or mech.n_faces < 2:
         return []
-    solids = panel_solids(mech, spec, erode=ERODE * mech.size, tol=tol)
-    n = mech.n_faces
-    hinged = {tuple(sorted(h)) for h in mech.hinge_faces.tolist()}
-    a, b = np.triu_indices(n, 1)
-    keep = np.array([(int(x), int(y)) not in hinged for x, y in zip(a, b)], bool)
-    pairs = np.column_stack([a[keep], b[keep]])
-    if not len(pairs):
-        return []
+    solids = panel_solids(mech, spec, erode=ERODE * mech.size, tol=tol) if solids is None else solids
+    pan = body_panels(mech, solids, skip=mech.hinge_faces)
     profile = body_speed_profile(mech, schedule.rates, solids)
-    depth = common_depth(mech, pairs)
-    rate = profile[pairs[:, 0], depth] + profile[pairs[:, 1], depth]
-    faces = np.arange(n)
-    grid = np.linspace(lo_t, hi_t, INITIAL_STEPS + 1)
-    grid_poses = poses_at(mech, schedule, grid)
-    centre, radius = _spheres(solids)
-    posed = np.einsum("tfij,fj->tfi", grid_poses[:, :, :3, :3], centre) + grid_poses[:, :, :3, 3]
-    lows = np.maximum(np.linalg.norm(posed[:, pairs[:, 0]] - posed[:, pairs[:, 1]], axis=2)
-                      - radius[pairs[:, 0]] - radius[pairs[:, 1]], 0.0).T      # (P, G)
-    span = np.diff(grid)
-    near = (0.5 * (lows[:, :-1] + lows[:, 1:] - rate[:, None] * span) <= 0).any(axis=1)
-    shortest = tol.t_resolution
-    found = []
-    for k in np.flatnonzero(near):
-        pair, lip = pairs[k], rate[k]
-        ts, low = grid.copy(), lows[k].copy()
-        exact = np.zeros(len(ts), bool)
-        first = None
-        while True:
-            order = np.argsort(ts)
-            ts, low, exact = ts[order], low[order], exact[order]
-            gaps = np.diff(ts)
-            bound = 0.5 * (low[:-1] + low[1:] - lip * gaps)
-            active = (bound <= 0) & (gaps > shortest)
-            if first is not None:
-                active &= ts[:-1] < first
-            ends = np.zeros(len(ts), bool)
-            ends[:-1] |= active
-            ends[1:] |= active
-            todo = np.flatnonzero(ends & ~exact)
-            if len(todo):
-                d = solid_distances(mech, solids, pair, poses_at(mech, schedule, ts[todo]))
-                low[todo], exact[todo] = d, True
-                hit = ts[todo][d <= 0]
-                if len(hit):
-                    first = float(hit.min()) if first is None else min(first, float(hit.min()))
-                continue
-            if not active.any():
-                break
-            mid = 0.5 * (ts[:-1][active] + ts[1:][active])
-            ts = np.concatenate([ts, mid])
-            low = np.concatenate([low, _sphere_bounds(centre, radius, pair, faces, poses_at(mech, schedule, mid))])
-            exact = np.concatenate([exact, np.zeros(len(mid), bool)])
-        if first is not None:
-            found.append({"faces": [int(pair[0]), int(pair[1])], "first_t": first})
-    return sorted(found, key=lambda row: (row["first_t"], row["faces"]))
+    found = collision_intervals(mech, schedule, lo_t, hi_t, tol=tol, pan=pan, profile=profile)
+    out = [{"faces": [solids[a].face, solids[b].face], "first_t": row["first_t"], "last_t": row["last_t"]}
+           for row in found for a, b in [row["faces"]]]
+    return sorted(out, key=lambda row: (row["first_t"], row["faces"]))

@@ -104,13 +104,14 @@ def _format_build(report):
         out = row["runs_out_at_t"]
         lines.append(f"  coupling {row['coupling']}: contact ratio down to {row['min_contact_ratio']:.3g}"
                      + (f", a sector runs out from t = {out:.4g}" if out is not None else ", teeth in mesh all along"))
-    if any(row["min_clearance"] is not None for row in report["gear_clearance"]):
+    if report["gear_clearance"]:
         lines.append("gear clearance (nearest approach of each pair's gear bodies):")
     for row in report["gear_clearance"]:
-        if row["min_clearance"] is None:
-            continue
-        lines.append(f"  coupling {row['coupling']}: nearest {row['min_clearance']:.4g} {units} "
-                     f"({row['body']} to {row['with']}, t = {row['at_t']:.4g})")
+        if row["min_clearance"] is not None:
+            lines.append(f"  coupling {row['coupling']}: nearest {row['min_clearance']:.4g} {units} "
+                         f"({row['body']} to {row['with']}, t = {row['at_t']:.4g})")
+        elif row.get("guaranteed_min") is not None:
+            lines.append(f"  coupling {row['coupling']}: nothing within {row['guaranteed_min']:.4g} {units}")
     clashes = report.get("panel_clashes", [])
     lines.append("thick panels: none run into another over the motion" if not clashes else
                  "thick panels run into each other: " + "; ".join(

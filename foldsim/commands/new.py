@@ -109,6 +109,8 @@ def _format(report, verbose=False):
                      f"(clearance {report['build']['clearance']:g} {units}):")
         for r in report["gear_sizing"]:
             clear = "-" if r["min_clearance"] is None else f"{r['min_clearance']:.3g} {units}"
+            if r["min_clearance"] is None and r.get("guaranteed_min") is not None:
+                clear = f"at least {r['guaranteed_min']:.3g} {units}"
             lines.append(f" coupling {r['coupling']} {r['kind']}: teeth {r['teeth'][0]}:{r['teeth'][1]}, "
                          f"clearance {clear}{'' if r['passes'] else ' (too near)'}, limited by {r['limited_by']}")
     return "\n".join(lines)
