@@ -129,7 +129,8 @@ def build_checks(mech, schedule=None, t_from=0.0, t_to=1.0, gap_tol=None, tol=DE
     -------
     keys : dict
         ``build``, ``stops``, ``sector_coverage``, ``gear_clearance``,
-        ``panel_clashes`` and ``outer_closure``; empty for a file without a ``build`` object.
+        ``gear_contacts``, ``panel_clashes`` and ``outer_closure``; empty for a file
+        without a ``build`` object.
     problems : list of str
         One sentence per failure.
     """
@@ -142,7 +143,7 @@ def build_checks(mech, schedule=None, t_from=0.0, t_to=1.0, gap_tol=None, tol=DE
 
 
 def _build_part(mech, schedule, t_from, t_to, problems, tol, tolerance, end):
-    """The ``build``, ``stops``, ``sector_coverage``, ``gear_clearance`` and ``outer_closure`` keys, for a file with a ``build`` object (docs/build.md)."""
+    """The build keys (`build_checks`), for a file with a ``build`` object (docs/build.md)."""
     from dataclasses import replace
 
     from .build.gears import gear_pairs
@@ -150,7 +151,7 @@ def _build_part(mech, schedule, t_from, t_to, problems, tol, tolerance, end):
     from .build.sectors import sector_coverage
     from .build.spec import build_spec
     from .build.stops import stop_overruns
-    from .build.sweep import RESOLUTION, gear_clearance, panel_clashes
+    from .build.sweep import RESOLUTION, gear_clearance, gear_contacts, panel_clashes
 
     spec = build_spec(mech, tol=tol)
     if spec is None:
@@ -170,12 +171,15 @@ def _build_part(mech, schedule, t_from, t_to, problems, tol, tolerance, end):
     floor = RESOLUTION * mech.size
     clearance = gear_clearance(mech, spec, schedule, t_from, t_to, pairs=pairs,
                                enough=max(2.0 * spec.clearance, spec.clearance + 2.0 * floor), tol=tol)
+    near = []
     for row in clearance:
         d = row["min_clearance"]
         if d is not None and (d < spec.clearance or d <= floor):
+            near.append(row["coupling"])
             problems.append(f"coupling {row['coupling']}: its {row['body'].split(' ', 2)[2]} comes within "
                             f"{d:.4g} {mech.units} of {row['with']} at t = {row['at_t']:.4g} "
                             f"(clearance {spec.clearance:g})")
+    contacts = gear_contacts(mech, spec, schedule, t_from, t_to, couplings=near, pairs=pairs, tol=tol) if near else []
     clashes = panel_clashes(mech, spec, schedule, t_from, t_to, tol=tol)
     if clashes:
         first = clashes[0]
@@ -190,4 +194,4 @@ def _build_part(mech, schedule, t_from, t_to, problems, tol, tolerance, end):
     report = spec.report()
     report["gear_bodies"] = [p.report() for p in pairs]
     return {"build": report, "stops": stops, "sector_coverage": coverage, "gear_clearance": clearance,
-            "panel_clashes": clashes, "outer_closure": outer_closure}
+            "gear_contacts": contacts, "panel_clashes": clashes, "outer_closure": outer_closure}

@@ -325,7 +325,9 @@ def test_panel_clashes_agree_with_fcl(name, thickness):
             hits = [t for t, p in zip(ts, poses)
                     if _fcl_crossing(fcl, solids[a].triangles, p[a], solids[b].triangles, p[b])]
             if hits:
-                want[(a, b)] = min(hits)
+                want[(a, b)] = (min(hits), max(hits))
     assert set(got) == set(want)
-    for pair, first in want.items():
+    last = {tuple(c["faces"]): c["last_t"] for c in panel_clashes(mech, spec, schedule)}
+    for pair, (first, end) in want.items():
         assert got[pair] == pytest.approx(first, abs=1e-3)
+        assert last[pair] == pytest.approx(end, abs=1e-3)

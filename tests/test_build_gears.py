@@ -407,3 +407,67 @@ def test_gltf_and_svg_carry_the_build(tmp_path):
     d = re.search(r'id="bevel-0"[^>]* d="([^"]+)"', svg).group(1)
     pts = np.array([[float(x) for x in pair.split()] for pair in re.findall(r"[-\d.]+ [-\d.]+", d)])
     np.testing.assert_allclose(np.ptp(pts, axis=0), [8.0, 8.0], atol=1e-6)
+
+
+def _dense_fcl(fcl, mech, solids, pair, t):
+    from foldsim.gearing import fold_schedule
+    from foldsim.geometry import transform_points
+    from foldsim.kinematics import poses_at
+
+    poses = poses_at(mech, fold_schedule(mech), t)
+    a, b = (solids[i] for i in pair)
+    return np.array([_fcl_distance(fcl, transform_points(poses[k, a.face], a.triangles),
+                                   transform_points(poses[k, b.face], b.triangles)) for k in range(len(t))])
+
+
+def test_screened_gear_clearance_agrees_with_the_exact_one_and_python_fcl():
+    # The two-stage sweep (a screen at the threshold, then the exact stage) against
+    # the exact stage alone and against python-fcl at dense drive values.
+    fcl = pytest.importorskip("fcl")
+    from foldsim.build.gears import build_solids
+    from foldsim.build.sweep import RESOLUTION, body_pairs, gear_clearance
+
+    mech, spec, pairs = _pairs(cube_doc([{"coupling": 0, "teeth": [20, 20], "face_width": 4.0,
+                                          "corner_distance": 8.0}]))
+    (exact,) = gear_clearance(mech, spec)
+    res = RESOLUTION * mech.size
+    solids = build_solids(mech, spec, tip=True)
+    t = np.linspace(0.0, 1.0, 201)
+    dense = min(_dense_fcl(fcl, mech, solids, p, t).min() for p in body_pairs(solids, {0: pairs[0].carrier}))
+    # A threshold above the least distance: the same nearest approach, to the resolution.
+    (above,) = gear_clearance(mech, spec, enough=2.0 * exact["min_clearance"])
+    assert above["min_clearance"] == pytest.approx(exact["min_clearance"], abs=res)
+    assert above["body"] == exact["body"] and above["with"] == exact["with"]
+    assert dense >= above["min_clearance"] - res - 1e-9
+    # A threshold below it: nothing within it, and no fcl sample is nearer either.
+    low = 0.5 * exact["min_clearance"]
+    (below,) = gear_clearance(mech, spec, enough=low)
+    assert below["min_clearance"] is None and below["guaranteed_min"] == low
+    assert dense >= low
+
+
+def test_gear_contacts_are_where_python_fcl_finds_the_body_too_near():
+    fcl = pytest.importorskip("fcl")
+    from foldsim.build.gears import build_solids
+    from foldsim.report import check
+
+    doc = cube_doc([{"coupling": 0, "teeth": [20, 20], "face_width": 4.0, "corner_distance": 8.0}])
+    doc["build"]["clearance"] = 1.0
+    mech, spec, pairs = _pairs(doc)
+    report = check(mech)
+    contacts = report["gear_contacts"]
+    assert contacts and any("comes within" in p for p in report["problems"])
+    solids = build_solids(mech, spec, tip=True)
+    label = {s.label: i for i, s in enumerate(solids)}
+    t = np.linspace(0.0, 1.0, 401)
+    for row in contacts:
+        pair = (label[row["body"]], label[row["with"]])
+        assert [solids[i].face for i in pair] == row["faces"]
+        d = _dense_fcl(fcl, mech, solids, pair, t)
+        # python-fcl: nearer than the clearance inside the stretch, not outside it
+        # (both ends to the sweep's t resolution, 0.001, and one sample step).
+        slack = 1e-3 + 1.0 / 400
+        inside = (t >= row["first_t"] + slack) & (t <= row["last_t"] - slack)
+        outside = (t < row["first_t"] - slack) | (t > row["last_t"] + slack)
+        assert (d[inside] < 1.0).all() and (d[outside] >= 1.0).all()
+        assert d.min() < 1.0

@@ -41,6 +41,7 @@ one times ``tan(h) / h``, ``h = S / 2n``.
 """
 
 import math
+import weakref
 from dataclasses import dataclass
 
 import numpy as np
@@ -486,24 +487,38 @@ def gear_solids(mech, spec, pairs=None, tip=False, tol=DEFAULT, coarse=False):
     pairs = gear_pairs(mech, spec, tol) if pairs is None else pairs
     out = []
     for p in pairs:
-        for g in p.gears:
-            grow = p.module if tip else 0.0
-            e2 = np.cross(g.spin, g.e1)
-            label = f"coupling {p.coupling} gear on hinge {g.hinge}"
-            span = g.sector[1] - g.sector[0]
-            radii = (g.r_range[0] + grow, g.r_range[1] + grow)
-            segments = _segments(span)
-            if coarse:
-                scale = 1.0 / math.cos(min(span, 2 * math.pi) / segments / 2.0)
-                radii = (radii[0] * scale, radii[1] * scale)
-                segments = _segments(span, COARSE_PER_TURN)
-            tris = sector_frustum(g.origin, g.axial, g.e1, e2, g.x_range, radii, g.sector, segments)
-            out.append(Solid(g.face, label, "gear", tris, p.coupling, g.hinge))
-            if g.rod is not None:
-                rod = sector_frustum(g.origin, g.axial, g.e1, e2, g.rod, (p.rod_radius, p.rod_radius),
-                                     (0.0, 2 * math.pi), ROD_SEGMENTS)
-                out.append(Solid(g.face, f"coupling {p.coupling} rod on hinge {g.hinge}", "rod", rod,
-                                 p.coupling, g.hinge))
+        known = _SOLIDS.setdefault(p, {})
+        if (tip, coarse) not in known:
+            known[(tip, coarse)] = _pair_solids(p, tip, coarse)
+        out += known[(tip, coarse)]
+    return out
+
+
+_SOLIDS = weakref.WeakKeyDictionary()
+"""The solids of each resolved pair, by (tip, coarse): a pair's bodies depend on it alone."""
+
+
+def _pair_solids(p, tip, coarse):
+    """The solids of one pair (`gear_solids`)."""
+    out = []
+    for g in p.gears:
+        grow = p.module if tip else 0.0
+        e2 = np.cross(g.spin, g.e1)
+        label = f"coupling {p.coupling} gear on hinge {g.hinge}"
+        span = g.sector[1] - g.sector[0]
+        radii = (g.r_range[0] + grow, g.r_range[1] + grow)
+        segments = _segments(span)
+        if coarse:
+            scale = 1.0 / math.cos(min(span, 2 * math.pi) / segments / 2.0)
+            radii = (radii[0] * scale, radii[1] * scale)
+            segments = _segments(span, COARSE_PER_TURN)
+        tris = sector_frustum(g.origin, g.axial, g.e1, e2, g.x_range, radii, g.sector, segments)
+        out.append(Solid(g.face, label, "gear", tris, p.coupling, g.hinge))
+        if g.rod is not None:
+            rod = sector_frustum(g.origin, g.axial, g.e1, e2, g.rod, (p.rod_radius, p.rod_radius),
+                                 (0.0, 2 * math.pi), ROD_SEGMENTS)
+            out.append(Solid(g.face, f"coupling {p.coupling} rod on hinge {g.hinge}", "rod", rod,
+                             p.coupling, g.hinge))
     return out
 
 

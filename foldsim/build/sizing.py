@@ -13,6 +13,7 @@ larger size is reported. A spur pair's size is fixed by the distance between its
 hinges (module ``2 a / (z_i + z_j)``); it is checked, not sized.
 """
 
+import json
 import math
 from dataclasses import replace
 
@@ -56,7 +57,13 @@ def _clearance_of(mech, build, coupling, tol, cache):
         if "prisms" not in cache:
             cache["prisms"] = panel_solids(trial, spec, tol=tol)
             cache["schedule"] = fold_schedule(trial, tol)
-        pairs = gear_pairs(trial, spec, tol)
+        pairs = []
+        for k, doc in enumerate(spec.gears):
+            key = (doc.coupling, json.dumps(build["gears"][k], sort_keys=True))
+            if key not in cache:
+                # Each entry resolves on its own (`gear_pairs` reads one entry at a time).
+                cache[key] = gear_pairs(trial, replace(spec, gears=(doc,)), tol)[0]
+            pairs.append(cache[key])
     except ModelError as exc:
         return {"min_clearance": -1.0, "with": str(exc).split(": ", 1)[-1], "at_t": None}
     enough = max(2.0 * spec.clearance, spec.clearance + 2.0 * SIZING_RESOLUTION * trial.size)

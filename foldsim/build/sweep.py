@@ -318,6 +318,41 @@ def gear_clearance(mech, spec, schedule=None, t_from=0.0, t_to=1.0, pairs=None, 
     return list(rows.values())
 
 
+def gear_contacts(mech, spec, schedule=None, t_from=0.0, t_to=1.0, couplings=None, pairs=None, tol=DEFAULT):
+    """When gear bodies come nearer than ``spec.clearance`` (or cross, without one) to what they must not touch.
+
+    The collision sweep of `foldsim.analysis.sweep` on the prisms and the gear
+    bodies grown to their tip circles, with the build's clearance, over the given
+    couplings' bodies only (the report runs it for the couplings `gear_clearance`
+    found too near).
+
+    Returns
+    -------
+    list of dict
+        ``{"faces": [a, b], "first_t", "last_t", "coupling", "body", "with"}``: the
+        faces carrying the gear body and the other solid, the stretch of t, and the
+        two solids' labels; sorted by ``first_t``.
+    """
+    schedule = schedule or fold_schedule(mech, tol)
+    pairs = gear_pairs(mech, spec, tol) if pairs is None else pairs
+    lo_t, hi_t = sorted((float(t_from), float(t_to)))
+    solids = panel_solids(mech, spec, tol=tol) + gear_solids(mech, spec, pairs, tip=True, tol=tol)
+    active = np.array([s.kind != "panel" and (couplings is None or s.coupling in couplings) for s in solids], bool)
+    if lo_t == hi_t or not active.any():
+        return []
+    carrier = {p.coupling: p.carrier for p in pairs}
+    pan = body_panels(mech, solids, allowed_pairs(solids, carrier), passive=~active)
+    found = collision_intervals(mech, schedule, lo_t, hi_t, clearance=spec.clearance, tol=tol, pan=pan,
+                                profile=body_speed_profile(mech, schedule.rates, solids))
+    out = []
+    for row in found:
+        a, b = (solids[i] for i in row["faces"])
+        gear, other = (a, b) if a.kind != "panel" else (b, a)
+        out.append({"faces": [gear.face, other.face], "first_t": row["first_t"], "last_t": row["last_t"],
+                    "coupling": gear.coupling, "body": gear.label, "with": other.label})
+    return sorted(out, key=lambda row: (row["first_t"], row["faces"]))
+
+
 def _tested_couplings(solids, active, allowed):
     """Couplings with at least one body that some solid is tested against."""
     n = len(solids)
