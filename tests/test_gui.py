@@ -565,3 +565,29 @@ def test_gear_bodies_are_drawn_with_the_thick_panels_and_toggle(window, qtbot):
     texts = [model.text(r, sector) for r in range(model.rowCount())]
     geared = [t for t in texts if t != "–"]
     assert geared and all(t.startswith("ε ≥ ") and float(t[4:]) > 1.0 for t in geared)
+
+
+def test_thick_panel_clashes_show_on_the_strip_and_in_red(window, qtbot):
+    # The lantern demo with its build: its top (face 6) and side 7 prisms clash just
+    # before closing, t 0.986..0.997, which python-fcl confirms on the same prisms
+    # (tests/test_build.py); the thin panels do not collide. The clash shows as a
+    # collision does: a stretch on the strip and the two panels in the warning colour.
+    assert window.open_path(ROOT / "assets" / "lantern-build.mech.json")
+    finish_sweep(qtbot, window)
+    qtbot.waitUntil(lambda: bool(window.build_intervals), timeout=120000)
+    assert window.intervals == []
+    (clash,) = window.build_intervals
+    assert clash["faces"] == [6, 7] and 0.98 < clash["first_t"] < clash["last_t"] < 1.0
+    strip = window.drive.strip
+    mid = 0.5 * (clash["first_t"] + clash["last_t"])
+    assert any(c["faces"] == [6, 7] for c in strip.intervals)
+    img = strip.grab().toImage()
+    x = int(round(strip.x_of(mid)))
+    assert QtGui.QColor(img.pixel(x, strip.height() // 2)).getRgb()[:3] == palette.WARNING
+    window.view.set_view("iso")
+    window.set_t(mid)
+    assert window.view.colliding.tolist() == [[6, 7]]
+    assert warning_pixels(frame(window)) > 200
+    window.set_t(0.5)
+    assert window.view.colliding.tolist() == [] and warning_pixels(frame(window)) == 0
+    assert "1 collision stretch" in window.sweep_text()

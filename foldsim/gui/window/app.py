@@ -67,6 +67,7 @@ class MainWindow(FileHandling, Jobs, StatusBar, HelpMenu, QtWidgets.QMainWindow)
         self.sweep = None
         self.report_task = None
         self.intervals = []
+        self.build_intervals = []
         self.error_box = None
         self.load_task = None
         self.load_dialog = None
@@ -368,6 +369,7 @@ class MainWindow(FileHandling, Jobs, StatusBar, HelpMenu, QtWidgets.QMainWindow)
         self._select_edges(picked_edges)
         self._select_hinge_row(picked_hinge)
         self.intervals = []
+        self.build_intervals = []
         self.swept, self.swept_whole = (0.0, 0.0), False
         self.drive.strip.set_intervals([], (0.0, 0.0))
         self.stackup_panel.set_model(mech)

@@ -213,6 +213,11 @@ class Jobs:
         if "stops" in report:
             self.hinge_model.set_build(report.get("stops", []), report.get("sector_coverage", []),
                                        model.mech)
+            # Thick panels that clash and gear bodies too near show as collisions do.
+            self.build_intervals = [{"faces": list(c["faces"]), "first_t": c["first_t"], "last_t": c["last_t"]}
+                                    for c in report.get("panel_clashes", []) + report.get("gear_contacts", [])
+                                    if "last_t" in c]
+            self._show_collisions()
             self._size_columns()
             if report.get("build_problems"):
                 problems = report["build_problems"]
@@ -246,14 +251,23 @@ class Jobs:
     def sweeping(self):
         return self.sweep is not None
 
+    def all_intervals(self):
+        """The collisions on the strip: the thin panels' sweep and the build's clashes and contacts."""
+        return list(self.intervals or []) + list(self.build_intervals or [])
+
+    def _show_collisions(self):
+        found = self.all_intervals()
+        self.drive.strip.set_intervals(found, self.swept)
+        # Scrubbing inside the settled stretch reads collisions from here (docs/app.md).
+        self.view.set_known_collisions(found, self.swept)
+        self._update_status()
+
     def _sweep_progress(self, task, done, total, found):
         if task is not self.sweep:
             return
         self.intervals = found
         self.swept = (task.edges[0], task.edges[done])
-        self.drive.strip.set_intervals(found, self.swept)
-        # Scrubbing inside the settled stretch reads collisions from here (docs/app.md).
-        self.view.set_known_collisions(found, self.swept)
+        self._show_collisions()
         self.drive.show_progress((done, total))
         self._update_status()
 
@@ -262,8 +276,7 @@ class Jobs:
             return
         self.intervals = found
         self.swept, self.swept_whole = (task.edges[0], task.edges[-1]), True
-        self.drive.strip.set_intervals(found, self.swept)
-        self.view.set_known_collisions(found, self.swept)
+        self._show_collisions()
         self.drive.show_progress(None)
         self.sweep = None
         self._update_status()

@@ -45,7 +45,7 @@ class StatusBar:
     def sweep_text(self):
         """What the collision check over −1..1 has found: so far while it runs, or up to where it stopped."""
         lo, hi = self.swept
-        n = len(self.intervals or [])
+        n = len(self.all_intervals())
         found = f"{n} collision stretch{'es' if n != 1 else ''}" if n else "no collision"
         if hi <= lo:
             return "checking for collisions…" if self.sweep is not None else ""
