@@ -16,6 +16,13 @@ Rows:
     is what thickness, gears, sector coverage and the gear clearance sweep cost.
 (c) the prisms of geodesic(2) (320 panels, BFS net, 0.5 mm thick): building them
     and posing them at T values, as the app would each frame.
+(d) the build's sweeps against the thin collision sweep on `foldsim new geodesic:K`
+    (its net and gear layout, 0.5 mm thick panels, a gear pair on every coupling;
+    K = 2, 320 panels, and with --large also K = 3, 1,280 panels): the thin
+    `collision_intervals`, then `panel_clashes` and `gear_clearance` as `check`
+    runs them, and the ratio of the two build sweeps to the thin one.
+(e) gear sizing (`build.sizing.size_gears`, as `foldsim new icosahedron --thickness 2
+    --module 1` runs it) on the icosahedron's net.
 """
 
 import argparse
@@ -65,6 +72,7 @@ def posed_rows(mech, n_t):
 def main(argv=None):
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--quick", action="store_true")
+    parser.add_argument("--large", action="store_true", help="also (d) at 1,280 panels (several minutes)")
     args = parser.parse_args(argv)
     ok_all = True
     lantern = load(ROOT / "assets" / "lantern-build.mech.json")
@@ -89,7 +97,59 @@ def main(argv=None):
         ok_all &= ok
         print(f"(c) geodesic(2) prisms: built in {made:.2f} s; posed at 16 t ({n_tri} triangles): batched "
               f"{fast * 1e3:.1f} ms, per-t reference {slow * 1e3:.1f} ms, ratio {slow / fast:.1f}x, agree {ok}")
+        for k in (2, 3) if args.large else (2,):
+            sweep_rows(k)
+        sizing_row()
     return 0 if ok_all else 1
+
+
+def designed(k):
+    """`foldsim new geodesic:k --size 100` with 0.5 mm panels and a gear pair on every coupling."""
+    from foldsim.design import build, shape_args
+
+    mech = build(shape_args(f"geodesic:{k}", size=100.0))[0]
+    gears = [{"coupling": c} for c in range(len(mech.couplings))]
+    return replace(mech, extras={**mech.extras, "build": {"thickness": 0.5, "gears": gears}})
+
+
+def sweep_rows(k):
+    import time
+
+    from foldsim.analysis.collision import collision_intervals
+    from foldsim.build.sweep import RESOLUTION, gear_clearance, panel_clashes
+
+    mech = designed(k)
+    spec = build_spec(mech)
+    schedule = fold_schedule(mech)
+    start = time.perf_counter()
+    thin = collision_intervals(mech, schedule)
+    thin_s = time.perf_counter() - start
+    start = time.perf_counter()
+    clashes = panel_clashes(mech, spec, schedule)
+    clash_s = time.perf_counter() - start
+    floor = RESOLUTION * mech.size
+    start = time.perf_counter()
+    rows = gear_clearance(mech, spec, schedule, enough=max(2.0 * spec.clearance, spec.clearance + 2.0 * floor))
+    gear_s = time.perf_counter() - start
+    near = sum(r["min_clearance"] is not None for r in rows)
+    print(f"(d) geodesic:{k}, {mech.n_faces} panels, {len(rows)} gear pairs: thin sweep {thin_s:.2f} s "
+          f"({len(thin)} intervals); thick-panel clashes {clash_s:.2f} s ({len(clashes)}); gear clearance "
+          f"{gear_s:.2f} s ({near} pairs with something within the threshold); build / thin = "
+          f"{(clash_s + gear_s) / thin_s:.1f}x")
+
+
+def sizing_row():
+    import time
+
+    from foldsim.build.sizing import size_gears
+    from foldsim.design import build, shape_args
+
+    mech = build(shape_args("icosahedron", size=60.0))[0]
+    start = time.perf_counter()
+    _, rows = size_gears(mech, 2.0, 1.0)
+    took = time.perf_counter() - start
+    print(f"(e) gear sizing, icosahedron net (edge 60 mm, 2 mm panels, module 1): {len(rows)} pairs sized in "
+          f"{took:.1f} s")
 
 
 if __name__ == "__main__":

@@ -522,11 +522,11 @@ def _pair_solids(p, tip, coarse):
     return out
 
 
-def build_solids(mech, spec, tip=False, tol=DEFAULT):
-    """Every prism and gear body of a built mechanism (list of `Solid`, panels first)."""
+def build_solids(mech, spec, tip=False, tol=DEFAULT, coarse=False):
+    """Every prism and gear body of a built mechanism (list of `Solid`, panels first; ``coarse`` as for `gear_solids`)."""
     from .prisms import panel_solids
 
-    return panel_solids(mech, spec, tol=tol) + gear_solids(mech, spec, tip=tip, tol=tol)
+    return panel_solids(mech, spec, tol=tol) + gear_solids(mech, spec, tip=tip, tol=tol, coarse=coarse)
 
 
 def posed_solid_meshes(mech, spec, schedule, t, solids=None, tol=DEFAULT):

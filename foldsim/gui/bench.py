@@ -10,6 +10,9 @@ panels) on a breadth-first net and prints updates per second for
   intervals as the app does once its background sweep has passed,
 - drawing alone, with the panels standing still,
 - a whole frame with the panels drawn as prisms (a build's thick panels),
+- on the same sphere designed as `foldsim new` does (its net and gear layout), a
+  whole frame with the prisms and every gear body against the thin frame of that
+  model (the build's goal: a scrub stays smooth),
 
 and the same whole frame for a two-panel flap, with the ratio of the sphere's frame
 to the flap's (the app's goal: at most 1.5).
@@ -54,6 +57,26 @@ def thick_solids(mech, share=0.05):
     edges = np.concatenate([np.linalg.norm(np.roll(p, -1, axis=0) - p, axis=1) for p in mech.flat_faces])
     built = replace(mech, extras={**mech.extras, "build": {"thickness": share * float(edges.min())}})
     return panel_solids(built, build_spec(built))
+
+
+def geared_model(k):
+    """`foldsim new geodesic:k` (its net and gears) with a build: prisms and a gear pair per coupling.
+
+    Returns the mechanism, its schedule and its solids (prisms, then gear bodies).
+    """
+    from dataclasses import replace
+
+    from ..build.gears import build_solids
+    from ..build.spec import build_spec
+    from ..design import build, shape_args
+    from .window.model import DETAIL_PAIRS
+
+    mech = build(shape_args(f"geodesic:{k}", size=100.0))[0]
+    gears = [{"coupling": c} for c in range(len(mech.couplings))]
+    mech = replace(mech, extras={**mech.extras, "build": {"thickness": 0.5, "gears": gears}})
+    # As the app draws them (`window.model.Model.solids`).
+    solids = build_solids(mech, build_spec(mech), coarse=len(gears) > DETAIL_PAIRS)
+    return mech, fold_schedule(mech), solids
 
 
 def _rate(step, values, budget=4.0):
@@ -119,6 +142,19 @@ def main(argv=None):
     thick = _rate(frame, values)
     print(f"thick panels, swept       {thick:8.1f} updates/s  ({sum(len(s.triangles) for s in solids)} "
           f"triangles; {swept / thick:.2f} times the thin frame)")
+    view.set_solids(None)
+    geared, geared_schedule, parts = geared_model(k)
+    view.set_mechanism(geared, geared_schedule)
+    view.set_view("iso")
+    app.processEvents()
+    view.set_known_collisions(collision_intervals(geared, geared_schedule, 0.0, 1.0, pan=view.pan), (0.0, 1.0))
+    thin_geared = _rate(frame, values)
+    view.set_solids(parts)
+    built = _rate(frame, values)
+    n_gears = sum(s.kind != "panel" for s in parts)
+    print(f"designed sphere, thin     {thin_geared:8.1f} updates/s  ({len(geared.couplings)} gear pairs)")
+    print(f"  prisms and gear bodies  {built:8.1f} updates/s  ({n_gears} gear bodies, "
+          f"{sum(len(s.triangles) for s in parts)} triangles; {thin_geared / built:.2f} times the thin frame)")
     view.set_solids(None)
     flap = flap_mechanism()
     view.set_mechanism(flap)

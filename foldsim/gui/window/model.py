@@ -104,6 +104,9 @@ def file_stem(path):
     name = Path(path).name
     return name[:-len(".mech.json")] if name.endswith(".mech.json") else Path(name).stem
 
+DETAIL_PAIRS = 64
+"""Most gear pairs drawn with every facet (`Model.solids`)."""
+
 
 class Model:
     """Everything the window shows about one loaded mechanism.
@@ -160,14 +163,18 @@ class Model:
 
         Thick panels as the build's prisms, then the gear bodies
         (`foldsim.build.gears.build_solids`); ``gears=False`` leaves the gear
-        bodies out. Empty for a file without a ``build`` object.
+        bodies out. Empty for a file without a ``build`` object. Past
+        `DETAIL_PAIRS` gear pairs the gear bodies are drawn with fewer facets
+        (``coarse``: circumscribed about the fine ones, so never smaller on
+        screen); the checks always use the fine ones.
         """
         if self._solids is None:
             from ...build.gears import build_solids
             from ...build.spec import build_spec
 
             spec = build_spec(self.mech)
-            self._solids = [] if spec is None else build_solids(self.mech, spec)
+            coarse = spec is not None and len(spec.gears) > DETAIL_PAIRS
+            self._solids = [] if spec is None else build_solids(self.mech, spec, coarse=coarse)
         return [s for s in self._solids if gears or s.kind == "panel"]
 
     @classmethod
