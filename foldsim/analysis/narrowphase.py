@@ -336,7 +336,7 @@ def _states_posed(a, b, eps, distance):
     return overlap, dist
 
 
-def _many_triangles(pan, poses, frame, pairs, eps, measure, limit):
+def _many_triangles(pan, poses, frame, pairs, eps, measure, limit, anchor=None, clearance=0.0):
     """Collision flag and least triangle distance of item pairs with many triangles.
 
     Each item's triangles are posed once per pose set, with a sphere (centroid,
@@ -349,6 +349,15 @@ def _many_triangles(pan, poses, frame, pairs, eps, measure, limit):
     triangle farther than that from the other item's box is left out before any
     triangle pair is formed. The rest go through the exact tests.
 
+    Rows with an ``anchor`` (n, 3; NaN elsewhere), the posed point a pivoting pair
+    turns about, take every triangle pair and return the weighted separation
+    ``max(min (d - clearance) / R_a, min (d - clearance) / R_b)`` over triangle pairs
+    at distance d, with R_x the farthest corner of the pair's triangle of item x from
+    the anchor. Under a turn about the anchor at angular speed w, each point's
+    distance to the other item changes at most w times its (fixed) distance from
+    the anchor, so this measure changes at most w per unit angle, and it is 0 where
+    the items come within the clearance.
+
     Returns
     -------
     hit : (n,) bool
@@ -360,6 +369,7 @@ def _many_triangles(pan, poses, frame, pairs, eps, measure, limit):
     hit = np.zeros(n, bool)
     sep = np.full(n, np.inf)
     boxes = pan.box_axes is not None
+    anchored = np.zeros(n, bool) if anchor is None else ~np.isnan(anchor[:, 0])
     if boxes:
         # Item level: each item's sphere against the other's oriented box.
         low = _item_box_gap(pan, poses, frame, pairs)
@@ -380,6 +390,7 @@ def _many_triangles(pan, poses, frame, pairs, eps, measure, limit):
         idx = rest[s:e]
         sub, fr, lim = pairs[idx], frame[idx], limit[idx]
         m = len(idx)
+        free = anchored[idx]  # no pruning: the weighted measure needs every pair
         keys, inv = np.unique(np.concatenate([fr * pan.n + sub[:, 0], fr * pan.n + sub[:, 1]]),
                               return_inverse=True)
         tris, offset = _posed_items(pan, poses, keys // pan.n, keys % pan.n)
@@ -395,7 +406,7 @@ def _many_triangles(pan, poses, frame, pairs, eps, measure, limit):
             best_a = _row_argmin(ga, la, m)
             best_b = _row_argmin(gb, lb, m)
             d = centre[ta[best_a]] - centre[tb[best_b]]
-            bound = np.sqrt((d * d).sum(axis=1))
+            bound = np.where(free, np.inf, np.sqrt((d * d).sum(axis=1)))
             cap = np.maximum(np.minimum(bound, lim), 0.0) + 2.0 * eps
             ka, kb = ga <= cap[la], gb <= cap[lb]
             pa, pb, row = _survivor_pairs(ta[ka], la[ka], tb[kb], lb[kb], m)
@@ -411,6 +422,7 @@ def _many_triangles(pan, poses, frame, pairs, eps, measure, limit):
         if bound is None:
             bound = np.full(m, np.inf)
         np.minimum.at(bound, row, upper)
+        bound[free] = np.inf
         keep = lower <= np.maximum(np.minimum(bound, lim)[row], 0.0) + 2.0 * eps
         first = None
         if measure and keep.any():
@@ -422,6 +434,7 @@ def _many_triangles(pan, poses, frame, pairs, eps, measure, limit):
             o1, d1 = _states_posed(tris[pa[first]], tris[pb[first]], eps, True)
             np.logical_or.at(hit, idx[row[first]], o1 > eps)
             np.minimum.at(bound, row[first], d1)
+            bound[free] = np.inf
             keep = lower <= np.maximum(np.minimum(bound, lim)[row], 0.0) + 2.0 * eps
             keep[first] = False
         keep = np.flatnonzero(keep)
@@ -448,7 +461,25 @@ def _many_triangles(pan, poses, frame, pairs, eps, measure, limit):
         np.logical_or.at(hit, idx[r], overlap > eps)
         if measure:
             np.minimum.at(sep, idx[r], dist)
+            if free.any():
+                every = np.full(len(row), np.inf)
+                every[keep] = dist
+                if first is not None:
+                    every[first] = d1
+                w = free[row]
+                sep[idx[free]] = _weighted(tris, pa[w], pb[w], row[w], every[w], anchor[idx], clearance, m)[free]
     return hit, sep
+
+
+def _weighted(tris, pa, pb, row, dist, anchor, clearance, m):
+    """(m,) weighted separation of rows from their triangle pairs' distances (`_many_triangles`)."""
+    out = []
+    for p in (pa, pb):
+        reach = np.sqrt(((tris[p] - anchor[row][:, None]) ** 2).sum(axis=2)).max(axis=1)
+        best = np.full(m, np.inf)
+        np.minimum.at(best, row, (dist - clearance) / np.maximum(reach, 1e-300))
+        out.append(best)
+    return np.maximum(np.maximum(out[0], out[1]), 0.0)
 
 
 def _posed_boxes(pan, poses, frame, items):
@@ -522,7 +553,75 @@ def _survivor_pairs(ta, la, tb, lb, n):
     return ta[sa[row] + local // cb[row]], tb[sb[row] + local % cb[row]], row
 
 
+def _cone_separation(ga, gb):
+    """Lower bound (n,) on the angle between convex cones with a common apex.
+
+    ``ga``, ``gb`` (n, G, 3): unit directions generating each cone. A plane through
+    the apex with unit normal u that has every generator of A at least alpha above
+    it and every one of B at least beta below keeps every direction of A at least
+    alpha + beta from every direction of B. The planes tried are those through two
+    generators (of either cone) and the one normal to the difference of the cones'
+    mean directions, each both ways; 0 where none separates.
+    """
+    dirs = np.concatenate([ga, gb], axis=1)
+    i, j = np.triu_indices(dirs.shape[1], 1)
+    normals = cross(dirs[:, i], dirs[:, j])
+    mean = ga.mean(axis=1) - gb.mean(axis=1)
+    normals = np.concatenate([normals, mean[:, None]], axis=1)
+    length = np.linalg.norm(normals, axis=2, keepdims=True)
+    normals = normals / np.where(length > 1e-12, length, np.inf)
+    best = np.zeros(len(ga))
+    for sign in (1.0, -1.0):
+        u = sign * normals
+        above = np.einsum("nkj,ngj->nkg", u, ga).min(axis=2)
+        below = -np.einsum("nkj,ngj->nkg", u, gb).max(axis=2)
+        ok = (above > 0) & (below > 0)
+        gap = np.where(ok, np.arcsin(np.clip(above, 0, 1)) + np.arcsin(np.clip(below, 0, 1)), 0.0)
+        best = np.maximum(best, gap.max(axis=1))
+    return best
+
+
 def pair_state(mech, pan, poses, frame, pairs, clearance, eps, separation=True, need=None):
+    """Separation and collision flag of face pairs (the fast kernels of this module).
+
+    Items that pivot about a shared point and both have a corner there
+    (``pan.pivot_cones``) first take the angle between their corner cones
+    (`_cone_separation`): convex items lie inside their cones, so a positive
+    angle rules out contact; where it already reaches ``need`` no triangle is
+    tested. (Without a clearance only: the cones say nothing about distances.)
+    See `_pair_state` for the parameters and the result.
+    """
+    n = len(pairs)
+    if pan.pivot_cones is None or clearance > 0 or not separation or not n:
+        return _pair_state(mech, pan, poses, frame, pairs, clearance, eps, separation, need)
+    is_pivot, pos = _in_sorted(_keys(pairs, pan.n), pan.pivot_keys)
+    rows = np.flatnonzero(is_pivot)
+    cones = pan.pivot_cones[pos[rows]]
+    ok = ~np.isnan(cones[:, :, 0, 0]).any(axis=1)
+    rows, cones = rows[ok], cones[ok]
+    angle = np.zeros(n)
+    if len(rows):
+        rot_a = poses[frame[rows], pairs[rows, 0], :3, :3]
+        rot_b = poses[frame[rows], pairs[rows, 1], :3, :3]
+        angle[rows] = _cone_separation(np.einsum("nij,ngj->ngi", rot_a, cones[:, 0]),
+                                       np.einsum("nij,ngj->ngi", rot_b, cones[:, 1]))
+    settled = angle > 0
+    if need is not None:
+        settled &= angle >= np.asarray(need, float)
+    else:
+        settled[:] = False
+    sep, hit = np.empty(n), np.zeros(n, bool)
+    sep[settled] = angle[settled]
+    rest = np.flatnonzero(~settled)
+    if len(rest):
+        sub_sep, sub_hit = _pair_state(mech, pan, poses, frame[rest], pairs[rest], clearance, eps, separation,
+                                       None if need is None else np.asarray(need, float)[rest])
+        sep[rest] = np.where(sub_hit, 0.0, np.maximum(sub_sep, angle[rest]))
+        hit[rest] = sub_hit
+    return sep, hit
+
+
+def _pair_state(mech, pan, poses, frame, pairs, clearance, eps, separation=True, need=None):
     """Separation and collision flag of face pairs (the fast kernels of this module).
 
     Parameters
@@ -547,8 +646,9 @@ def pair_state(mech, pan, poses, frame, pairs, clearance, eps, separation=True, 
     Returns
     -------
     sep : (n,) float
-        Distance (less the clearance), or wedge angle for pairs pivoting about a
-        shared point; 0 where colliding.
+        Distance (less the clearance), or, for pairs pivoting about a shared point,
+        the wedge angle (thin panels) or the weighted separation (items with
+        ``pivot_points``, `_many_triangles`); 0 where colliding.
     hit : (n,) bool
     """
     keys = _keys(pairs, pan.n)
@@ -560,10 +660,22 @@ def pair_state(mech, pan, poses, frame, pairs, clearance, eps, separation=True, 
         limit = np.full(len(pairs), np.inf if measure else 0.0)
         if need is not None:
             limit = np.minimum(limit, np.asarray(need, float) + clearance)
-        limit[is_pivot] = 0.0
-        hit, sep = _many_triangles(pan, poses, frame, pairs, eps, measure, limit)
+        anchor = None
+        if pan.pivot_points is not None and is_pivot.any() and measure:
+            # Items turning about a shared point: the weighted separation, clearance
+            # included (`_many_triangles`).
+            anchor = np.full((len(pairs), 3), np.nan)
+            rows = np.flatnonzero(is_pivot)
+            m = poses[frame[rows], pairs[rows, 0]]
+            anchor[rows] = np.einsum("nij,nj->ni", m[:, :3, :3], pan.pivot_points[pos[rows]]) + m[:, :3, 3]
+        else:
+            limit[is_pivot] = 0.0
+        hit, sep = _many_triangles(pan, poses, frame, pairs, eps, measure, limit, anchor, clearance)
         if not measure:
             return np.full(len(pairs), np.inf), hit
+        if anchor is not None:
+            hit |= is_pivot & (sep <= 0.0) & (clearance > 0)
+            weighted = np.where(is_pivot, sep, np.inf)
         sep[is_pivot | hit] = np.inf
     else:
         ia, ib, row = triangle_pairs(pan, pairs)
@@ -577,8 +689,11 @@ def pair_state(mech, pan, poses, frame, pairs, clearance, eps, separation=True, 
     if clearance > 0:
         touching, _ = _in_sorted(keys, pan.touch_keys)
         hit |= ~touching & ~is_pivot & (sep < clearance)
-        sep = np.where(touching, sep, np.maximum(sep - clearance, 0.0))
-    if is_pivot.any():
+        sep = np.where(touching | is_pivot, sep, np.maximum(sep - clearance, 0.0))
+    if pan.pivot_points is not None:
+        if is_pivot.any() and measure:
+            sep = np.where(is_pivot, weighted, sep)
+    elif is_pivot.any():
         rows = np.flatnonzero(is_pivot)
         dirs = pan.pivot_dirs[pos[rows]]
         rot_a = poses[frame[rows], pairs[rows, 0], :3, :3]

@@ -59,6 +59,16 @@ class Panels:
         unit axes, ``box_half`` its half extents). Where given, the narrow phase
         rules out pairs and triangles far from another item's box before testing
         triangle pairs (`narrowphase._many_triangles`).
+    pivot_points : (P, 3) float, optional
+        For items (``owner`` set): the flat-frame point each pivoting pair turns
+        about (a vertex both carrying faces share, on every hinge between them).
+        Their separation is then the distance weighted by the inverse reach from
+        that point (`narrowphase._many_triangles`), not a wedge angle.
+    pivot_cones : (P, 2, G, 3) float, optional
+        With ``pivot_points``: for each item of the pair that has a corner at the
+        pivot point, unit directions (flat frame) of its mesh edges leaving that
+        corner, which generate the convex cone that holds a convex item; NaN rows
+        where an item has no corner there (`narrowphase._cone_separation`).
     """
 
     tri_face: np.ndarray
@@ -77,6 +87,8 @@ class Panels:
     box_centre: np.ndarray = None
     box_axes: np.ndarray = None
     box_half: np.ndarray = None
+    pivot_points: np.ndarray = None
+    pivot_cones: np.ndarray = None
 
     @property
     def n(self):

@@ -14,7 +14,7 @@ from ..analysis.panels import Panels, _keys, oriented_boxes
 from ..kinematics import speed_profile
 
 
-def body_panels(mech, solids, skip=(), passive=None):
+def body_panels(mech, solids, skip=(), passive=None, pivots=None, cone_solids=None):
     """The sweep's view of a list of solids.
 
     Parameters
@@ -26,11 +26,22 @@ def body_panels(mech, solids, skip=(), passive=None):
         are always skipped.
     passive : (S,) bool, optional
         Solids tested only against solids that are not passive.
+    pivots : Panels, optional
+        The thin panels (`analysis.panels.panels`). Solids carried by two faces
+        that pivot about a shared vertex (every hinge between them runs through
+        it) then pivot too: their relative motion is a turn about that point, so
+        their separation is measured relative to it (``pivot_points``), which
+        settles such neighbours, close all along the motion near their shared
+        corner, in a few steps instead of hundreds.
+    cone_solids : list of Solid, optional
+        Solids that hold ``solids`` one for one and have their corners at the
+        pivot points (the prisms before `panel_clashes` shrinks them): their
+        corner cones hold the solids too (``pivot_cones``). Default ``solids``.
 
     Returns
     -------
     Panels
-        One item per solid, ``owner`` its face; no touching or pivoting pairs.
+        One item per solid, ``owner`` its face; no touching pairs.
     """
     count = np.array([len(s.triangles) for s in solids], np.int64)
     start = np.concatenate([[0], np.cumsum(count)[:-1]]).astype(np.int64)
@@ -49,13 +60,97 @@ def body_panels(mech, solids, skip=(), passive=None):
     pairs = np.concatenate(same + [np.asarray(skip, np.int64).reshape(-1, 2)])
     n = len(solids)
     box_centre, box_axes, box_half = oriented_boxes(tri_points, start)
+    skip_keys = np.unique(_keys(pairs, n))
+    keys, paths, points = _pivot_items(mech, owner, skip_keys, pivots)
+    cones = (_corner_cones(solids if cone_solids is None else cone_solids, keys, points, 1e-9 * mech.size)
+             if len(keys) else None)
     return Panels(
         tri_face=tri_item, tri_points=tri_points, start=start, count=count,
-        skip_keys=np.unique(_keys(pairs, n)), touch_keys=np.zeros(0, np.int64),
-        pivot_keys=np.zeros(0, np.int64), pivot_dirs=np.zeros((0, 2, 2, 3)),
-        pivot_path=np.zeros((0, mech.n_hinges), bool), centre=centre, radius=radius, owner=owner,
+        skip_keys=skip_keys, touch_keys=np.zeros(0, np.int64),
+        pivot_keys=keys, pivot_dirs=np.zeros((len(keys), 2, 2, 3)),
+        pivot_path=paths, pivot_points=points, pivot_cones=cones, centre=centre, radius=radius, owner=owner,
         passive=None if passive is None else np.asarray(passive, bool),
         box_centre=box_centre, box_axes=box_axes, box_half=box_half)
+
+
+def _pivot_items(mech, owner, skip_keys, pivots):
+    """Sorted keys, hinge paths and pivot points of the item pairs whose faces pivot."""
+    empty = (np.zeros(0, np.int64), np.zeros((0, mech.n_hinges), bool), np.zeros((0, 3)))
+    if pivots is None or not len(pivots.pivot_keys):
+        return empty
+    n_faces = mech.n_faces
+    items = {}
+    for i, f in enumerate(owner.tolist()):
+        items.setdefault(f, []).append(i)
+    rows = []
+    for key, path in zip(pivots.pivot_keys.tolist(), pivots.pivot_path):
+        a, b = divmod(key, n_faces)
+        pa, pb = mech.flat_faces[a], mech.flat_faces[b]
+        d = np.linalg.norm(pa[:, None] - pb[None], axis=2)
+        point = pa[np.unravel_index(np.argmin(d), d.shape)[0]]
+        for i in items.get(a, []):
+            for j in items.get(b, []):
+                rows.append((min(i, j) * len(owner) + max(i, j), path, point))
+    if not rows:
+        return empty
+    keys = np.array([r[0] for r in rows], np.int64)
+    order = np.argsort(keys)
+    keep = ~np.isin(keys[order], skip_keys)
+    order = order[keep]
+    return (keys[order], np.array([rows[k][1] for k in order], bool).reshape(-1, mech.n_hinges),
+            np.array([rows[k][2] for k in order], float).reshape(-1, 3))
+
+
+CONE_GENERATORS = 8
+"""Most edge directions kept per corner cone (`_corner_cones`)."""
+
+
+def _corner_cones(solids, keys, points, eps):
+    """(P, 2, G, 3) edge directions leaving each pivot point, per item of each pair (NaN: no corner there).
+
+    Only convex solids (the prisms of convex panels) are held by the cone their
+    edges span at a corner; a gear body never has a corner at a panel's vertex,
+    and a prism that is not convex gets NaN too.
+    """
+    n = len(solids)
+    out = np.full((len(keys), 2, CONE_GENERATORS, 3), np.nan)
+    cache = {}
+    for k, (key, point) in enumerate(zip(keys.tolist(), points)):
+        for side, item in enumerate(divmod(key, n)):
+            token = (item, tuple(np.round(point, 9)))
+            if token not in cache:
+                cache[token] = _cone_at(solids[item], point, eps)
+            dirs = cache[token]
+            if dirs is not None:
+                out[k, side, :len(dirs)] = dirs
+                out[k, side, len(dirs):] = dirs[0]
+    return out
+
+
+def _cone_at(solid, point, eps):
+    """Unit directions of a convex solid's mesh edges leaving ``point``, or None."""
+    if solid.kind != "panel":
+        return None
+    tri = solid.triangles
+    at = np.linalg.norm(tri - point, axis=2) <= eps  # (n, 3)
+    if not at.any():
+        return None
+    corners = tri.reshape(-1, 3)
+    centre = corners.mean(axis=0)
+    # Convex: every corner lies on the inner side of every face plane.
+    normal = np.cross(tri[:, 1] - tri[:, 0], tri[:, 2] - tri[:, 0])
+    side = np.einsum("fj,kj->fk", normal, corners) - np.einsum("fj,fj->f", normal, tri[:, 0])[:, None]
+    scale = np.linalg.norm(normal, axis=1)[:, None] * np.linalg.norm(corners - centre, axis=1).max()
+    if (side > 1e-9 * np.maximum(scale, 1e-300)).any():
+        return None
+    rows = np.flatnonzero(at.any(axis=1))
+    others = tri[rows][~at[rows]]
+    d = others - point
+    d = d[np.linalg.norm(d, axis=1) > eps]
+    d = np.unique(np.round(d / np.linalg.norm(d, axis=1, keepdims=True), 12), axis=0)
+    if len(d) > CONE_GENERATORS or len(d) < 2:
+        return None
+    return d
 
 
 def body_speed_profile(mech, rates, solids):

@@ -35,7 +35,7 @@ import numpy as np
 
 from ..analysis import spatialhash
 from ..analysis.narrowphase import pair_state, triangle_distance
-from ..analysis.panels import _face_boxes, _in_sorted, _keys
+from ..analysis.panels import _face_boxes, _in_sorted, _keys, panels
 from ..analysis.sweep import collision_intervals
 from ..gearing import fold_schedule
 from ..kinematics import common_depth, poses_at
@@ -243,7 +243,7 @@ def gear_clearance(mech, spec, schedule=None, t_from=0.0, t_to=1.0, pairs=None, 
         # Screened with the coarse bodies, which hold the fine ones: every pair the
         # fine bodies bring within ``enough`` is among those the coarse ones do.
         screen = prisms + gear_solids(mech, spec, pairs, tip=True, tol=tol, coarse=True)
-        pan = body_panels(mech, screen, allowed, passive=~active)
+        pan = body_panels(mech, screen, allowed, passive=~active, pivots=panels(mech, tol))
         near = _near_pairs(mech, schedule, pan, body_speed_profile(mech, schedule.rates, screen), lo_t, hi_t,
                            enough, tol)
     else:
@@ -341,7 +341,7 @@ def gear_contacts(mech, spec, schedule=None, t_from=0.0, t_to=1.0, couplings=Non
     if lo_t == hi_t or not active.any():
         return []
     carrier = {p.coupling: p.carrier for p in pairs}
-    pan = body_panels(mech, solids, allowed_pairs(solids, carrier), passive=~active)
+    pan = body_panels(mech, solids, allowed_pairs(solids, carrier), passive=~active, pivots=panels(mech, tol))
     found = collision_intervals(mech, schedule, lo_t, hi_t, clearance=spec.clearance, tol=tol, pan=pan,
                                 profile=body_speed_profile(mech, schedule.rates, solids))
     out = []
@@ -450,7 +450,8 @@ def panel_clashes(mech, spec, schedule=None, t_from=0.0, t_to=1.0, tol=DEFAULT, 
     if hi_t == lo_t or mech.n_faces < 2:
         return []
     solids = panel_solids(mech, spec, erode=ERODE * mech.size, tol=tol) if solids is None else solids
-    pan = body_panels(mech, solids, skip=mech.hinge_faces)
+    pan = body_panels(mech, solids, skip=mech.hinge_faces, pivots=panels(mech, tol),
+                      cone_solids=panel_solids(mech, spec, tol=tol))
     profile = body_speed_profile(mech, schedule.rates, solids)
     found = collision_intervals(mech, schedule, lo_t, hi_t, tol=tol, pan=pan, profile=profile)
     out = [{"faces": [solids[a].face, solids[b].face], "first_t": row["first_t"], "last_t": row["last_t"]}
