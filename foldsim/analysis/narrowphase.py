@@ -336,7 +336,7 @@ def _states_posed(a, b, eps, distance):
     return overlap, dist
 
 
-def _many_triangles(pan, poses, frame, pairs, eps, measure, limit, anchor=None, clearance=0.0):
+def _many_triangles(pan, poses, frame, pairs, eps, measure, limit):
     """Collision flag and least triangle distance of item pairs with many triangles.
 
     Each item's triangles are posed once per pose set, with a sphere (centroid,
@@ -349,15 +349,6 @@ def _many_triangles(pan, poses, frame, pairs, eps, measure, limit, anchor=None, 
     triangle farther than that from the other item's box is left out before any
     triangle pair is formed. The rest go through the exact tests.
 
-    Rows with an ``anchor`` (n, 3; NaN elsewhere), the posed point a pivoting pair
-    turns about, take every triangle pair and return the weighted separation
-    ``max(min (d - clearance) / R_a, min (d - clearance) / R_b)`` over triangle pairs
-    at distance d, with R_x the farthest corner of the pair's triangle of item x from
-    the anchor. Under a turn about the anchor at angular speed w, each point's
-    distance to the other item changes at most w times its (fixed) distance from
-    the anchor, so this measure changes at most w per unit angle, and it is 0 where
-    the items come within the clearance.
-
     Returns
     -------
     hit : (n,) bool
@@ -369,7 +360,6 @@ def _many_triangles(pan, poses, frame, pairs, eps, measure, limit, anchor=None, 
     hit = np.zeros(n, bool)
     sep = np.full(n, np.inf)
     boxes = pan.box_axes is not None
-    anchored = np.zeros(n, bool) if anchor is None else ~np.isnan(anchor[:, 0])
     if boxes:
         # Item level: each item's sphere against the other's oriented box.
         low = _item_box_gap(pan, poses, frame, pairs)
@@ -390,7 +380,6 @@ def _many_triangles(pan, poses, frame, pairs, eps, measure, limit, anchor=None, 
         idx = rest[s:e]
         sub, fr, lim = pairs[idx], frame[idx], limit[idx]
         m = len(idx)
-        free = anchored[idx]  # no pruning: the weighted measure needs every pair
         keys, inv = np.unique(np.concatenate([fr * pan.n + sub[:, 0], fr * pan.n + sub[:, 1]]),
                               return_inverse=True)
         tris, offset = _posed_items(pan, poses, keys // pan.n, keys % pan.n)
@@ -406,7 +395,7 @@ def _many_triangles(pan, poses, frame, pairs, eps, measure, limit, anchor=None, 
             best_a = _row_argmin(ga, la, m)
             best_b = _row_argmin(gb, lb, m)
             d = centre[ta[best_a]] - centre[tb[best_b]]
-            bound = np.where(free, np.inf, np.sqrt((d * d).sum(axis=1)))
+            bound = np.sqrt((d * d).sum(axis=1))
             cap = np.maximum(np.minimum(bound, lim), 0.0) + 2.0 * eps
             ka, kb = ga <= cap[la], gb <= cap[lb]
             pa, pb, row = _survivor_pairs(ta[ka], la[ka], tb[kb], lb[kb], m)
@@ -422,7 +411,6 @@ def _many_triangles(pan, poses, frame, pairs, eps, measure, limit, anchor=None, 
         if bound is None:
             bound = np.full(m, np.inf)
         np.minimum.at(bound, row, upper)
-        bound[free] = np.inf
         keep = lower <= np.maximum(np.minimum(bound, lim)[row], 0.0) + 2.0 * eps
         first = None
         if measure and keep.any():
@@ -434,7 +422,6 @@ def _many_triangles(pan, poses, frame, pairs, eps, measure, limit, anchor=None, 
             o1, d1 = _states_posed(tris[pa[first]], tris[pb[first]], eps, True)
             np.logical_or.at(hit, idx[row[first]], o1 > eps)
             np.minimum.at(bound, row[first], d1)
-            bound[free] = np.inf
             keep = lower <= np.maximum(np.minimum(bound, lim)[row], 0.0) + 2.0 * eps
             keep[first] = False
         keep = np.flatnonzero(keep)
@@ -461,25 +448,7 @@ def _many_triangles(pan, poses, frame, pairs, eps, measure, limit, anchor=None, 
         np.logical_or.at(hit, idx[r], overlap > eps)
         if measure:
             np.minimum.at(sep, idx[r], dist)
-            if free.any():
-                every = np.full(len(row), np.inf)
-                every[keep] = dist
-                if first is not None:
-                    every[first] = d1
-                w = free[row]
-                sep[idx[free]] = _weighted(tris, pa[w], pb[w], row[w], every[w], anchor[idx], clearance, m)[free]
     return hit, sep
-
-
-def _weighted(tris, pa, pb, row, dist, anchor, clearance, m):
-    """(m,) weighted separation of rows from their triangle pairs' distances (`_many_triangles`)."""
-    out = []
-    for p in (pa, pb):
-        reach = np.sqrt(((tris[p] - anchor[row][:, None]) ** 2).sum(axis=2)).max(axis=1)
-        best = np.full(m, np.inf)
-        np.minimum.at(best, row, (dist - clearance) / np.maximum(reach, 1e-300))
-        out.append(best)
-    return np.maximum(np.maximum(out[0], out[1]), 0.0)
 
 
 def _posed_boxes(pan, poses, frame, items):
@@ -647,8 +616,8 @@ def _pair_state(mech, pan, poses, frame, pairs, clearance, eps, separation=True,
     -------
     sep : (n,) float
         Distance (less the clearance), or, for pairs pivoting about a shared point,
-        the wedge angle (thin panels) or the weighted separation (items with
-        ``pivot_points``, `_many_triangles`); 0 where colliding.
+        the wedge angle (thin panels) or the distance over the reach (items with
+        ``pivot_reach``); 0 where colliding.
     hit : (n,) bool
     """
     keys = _keys(pairs, pan.n)
@@ -660,22 +629,22 @@ def _pair_state(mech, pan, poses, frame, pairs, clearance, eps, separation=True,
         limit = np.full(len(pairs), np.inf if measure else 0.0)
         if need is not None:
             limit = np.minimum(limit, np.asarray(need, float) + clearance)
-        anchor = None
-        if pan.pivot_points is not None and is_pivot.any() and measure:
-            # Items turning about a shared point: the weighted separation, clearance
-            # included (`_many_triangles`).
-            anchor = np.full((len(pairs), 3), np.nan)
-            rows = np.flatnonzero(is_pivot)
-            m = poses[frame[rows], pairs[rows, 0]]
-            anchor[rows] = np.einsum("nij,nj->ni", m[:, :3, :3], pan.pivot_points[pos[rows]]) + m[:, :3, 3]
+        reach = None
+        if pan.pivot_reach is not None and is_pivot.any() and measure:
+            # Items turning about a shared point: the distance over the reach
+            # (`Panels.pivot_reach`), clearance included; the distance is wanted up to
+            # the needed measure times the reach.
+            reach = np.where(is_pivot, pan.pivot_reach[pos] if len(pan.pivot_reach) else 1.0, 1.0)
+            if need is not None:
+                limit = np.where(is_pivot, np.asarray(need, float) * reach + clearance, limit)
         else:
             limit[is_pivot] = 0.0
-        hit, sep = _many_triangles(pan, poses, frame, pairs, eps, measure, limit, anchor, clearance)
+        hit, sep = _many_triangles(pan, poses, frame, pairs, eps, measure, limit)
         if not measure:
             return np.full(len(pairs), np.inf), hit
-        if anchor is not None:
-            hit |= is_pivot & (sep <= 0.0) & (clearance > 0)
-            weighted = np.where(is_pivot, sep, np.inf)
+        if reach is not None:
+            hit |= is_pivot & (sep < clearance)
+            weighted = np.where(is_pivot, np.maximum(sep - clearance, 0.0) / reach, np.inf)
         sep[is_pivot | hit] = np.inf
     else:
         ia, ib, row = triangle_pairs(pan, pairs)
@@ -690,7 +659,7 @@ def _pair_state(mech, pan, poses, frame, pairs, clearance, eps, separation=True,
         touching, _ = _in_sorted(keys, pan.touch_keys)
         hit |= ~touching & ~is_pivot & (sep < clearance)
         sep = np.where(touching | is_pivot, sep, np.maximum(sep - clearance, 0.0))
-    if pan.pivot_points is not None:
+    if pan.pivot_reach is not None:
         if is_pivot.any() and measure:
             sep = np.where(is_pivot, weighted, sep)
     elif is_pivot.any():

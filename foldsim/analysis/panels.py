@@ -62,8 +62,13 @@ class Panels:
     pivot_points : (P, 3) float, optional
         For items (``owner`` set): the flat-frame point each pivoting pair turns
         about (a vertex both carrying faces share, on every hinge between them).
-        Their separation is then the distance weighted by the inverse reach from
-        that point (`narrowphase._many_triangles`), not a wedge angle.
+    pivot_reach : (P,) float, optional
+        With ``pivot_points``: the nearer of the two items' farthest corners from
+        that point. Under a turn about it at angular speed w, every point of either
+        item moves at most w times its (fixed) distance from it, so the pair's
+        separation, as for the thin panels' wedges a measure that changes at most
+        w, is the distance (less the clearance) over this reach
+        (`narrowphase.pair_state`).
     pivot_cones : (P, 2, G, 3) float, optional
         With ``pivot_points``: for each item of the pair that has a corner at the
         pivot point, unit directions (flat frame) of its mesh edges leaving that
@@ -88,6 +93,7 @@ class Panels:
     box_axes: np.ndarray = None
     box_half: np.ndarray = None
     pivot_points: np.ndarray = None
+    pivot_reach: np.ndarray = None
     pivot_cones: np.ndarray = None
 
     @property

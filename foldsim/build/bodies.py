@@ -30,9 +30,9 @@ def body_panels(mech, solids, skip=(), passive=None, pivots=None, cone_solids=No
         The thin panels (`analysis.panels.panels`). Solids carried by two faces
         that pivot about a shared vertex (every hinge between them runs through
         it) then pivot too: their relative motion is a turn about that point, so
-        their separation is measured relative to it (``pivot_points``), which
-        settles such neighbours, close all along the motion near their shared
-        corner, in a few steps instead of hundreds.
+        their separation is measured as an angle about it (``pivot_reach``,
+        ``pivot_cones``), which settles such neighbours, close all along the
+        motion near their shared corner, in a few steps instead of hundreds.
     cone_solids : list of Solid, optional
         Solids that hold ``solids`` one for one and have their corners at the
         pivot points (the prisms before `panel_clashes` shrinks them): their
@@ -62,13 +62,15 @@ def body_panels(mech, solids, skip=(), passive=None, pivots=None, cone_solids=No
     box_centre, box_axes, box_half = oriented_boxes(tri_points, start)
     skip_keys = np.unique(_keys(pairs, n))
     keys, paths, points = _pivot_items(mech, owner, skip_keys, pivots)
+    reach = np.array([min(np.linalg.norm(solids[i].triangles.reshape(-1, 3) - p, axis=1).max()
+                          for i in divmod(int(k), n)) for k, p in zip(keys, points)], float)
     cones = (_corner_cones(solids if cone_solids is None else cone_solids, keys, points, 1e-9 * mech.size)
              if len(keys) else None)
     return Panels(
         tri_face=tri_item, tri_points=tri_points, start=start, count=count,
         skip_keys=skip_keys, touch_keys=np.zeros(0, np.int64),
         pivot_keys=keys, pivot_dirs=np.zeros((len(keys), 2, 2, 3)),
-        pivot_path=paths, pivot_points=points, pivot_cones=cones, centre=centre, radius=radius, owner=owner,
+        pivot_path=paths, pivot_points=points, pivot_reach=reach, pivot_cones=cones, centre=centre, radius=radius, owner=owner,
         passive=None if passive is None else np.asarray(passive, bool),
         box_centre=box_centre, box_axes=box_axes, box_half=box_half)
 
