@@ -35,8 +35,9 @@ def body_panels(mech, solids, skip=(), passive=None, pivots=None, cone_solids=No
         motion near their shared corner, in a few steps instead of hundreds.
     cone_solids : list of Solid, optional
         Solids that hold ``solids`` one for one and have their corners at the
-        pivot points (the prisms before `panel_clashes` shrinks them): their
-        corner cones hold the solids too (``pivot_cones``). Default ``solids``.
+        pivot points (the prisms before `panel_clashes` shrinks them, or
+        ``solids`` themselves): their corner cones hold the solids too
+        (``pivot_cones``, used without a clearance). None: no cones.
 
     Returns
     -------
@@ -62,10 +63,13 @@ def body_panels(mech, solids, skip=(), passive=None, pivots=None, cone_solids=No
     box_centre, box_axes, box_half = oriented_boxes(tri_points, start)
     skip_keys = np.unique(_keys(pairs, n))
     keys, paths, points = _pivot_items(mech, owner, skip_keys, pivots)
-    reach = np.array([min(np.linalg.norm(solids[i].triangles.reshape(-1, 3) - p, axis=1).max()
-                          for i in divmod(int(k), n)) for k, p in zip(keys, points)], float)
-    cones = (_corner_cones(solids if cone_solids is None else cone_solids, keys, points, 1e-9 * mech.size)
-             if len(keys) else None)
+    # The reach from the pivot, bounded by the solid's sphere (a longer reach only
+    # makes the measure more cautious).
+    a, b = keys // n, keys % n
+    reach = np.minimum(np.linalg.norm(centre[a] - points, axis=1) + radius[a],
+                       np.linalg.norm(centre[b] - points, axis=1) + radius[b])
+    cones = (_corner_cones(cone_solids, keys, points, 1e-9 * mech.size)
+             if len(keys) and cone_solids is not None else None)
     return Panels(
         tri_face=tri_item, tri_points=tri_points, start=start, count=count,
         skip_keys=skip_keys, touch_keys=np.zeros(0, np.int64),
