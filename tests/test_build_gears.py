@@ -471,3 +471,31 @@ def test_gear_contacts_are_where_python_fcl_finds_the_body_too_near():
         outside = (t < row["first_t"] - slack) | (t > row["last_t"] + slack)
         assert (d[inside] < 1.0).all() and (d[outside] >= 1.0).all()
         assert d.min() < 1.0
+
+
+def test_sizing_grows_past_a_pair_that_shares_its_corner():
+    # foldsim new octahedron: the drive hinge carries the gears of several pairs, two
+    # of them at one corner, where their smallest gears overlap when flat. Sizing
+    # then tries larger sizes (docs/build.md) and keeps the first that clears, so
+    # pair 0 ends larger than its smallest and keeps the clearance, which python-fcl
+    # confirms at dense drive values on the sized bodies.
+    fcl = pytest.importorskip("fcl")
+    from dataclasses import replace
+
+    from foldsim.build.gears import build_solids
+    from foldsim.build.sizing import MIN_TEETH, size_gears
+    from foldsim.build.sweep import body_pairs
+    from foldsim.design import build, shape_args
+
+    mech = build(shape_args("octahedron", size=60.0))[0]
+    sized, rows = size_gears(mech, 2.0, 1.0, clearance=0.5)
+    first = rows[0]
+    assert first["passes"] and first["teeth"][0] > MIN_TEETH
+    mech = replace(mech, extras={**mech.extras, "build": sized})
+    spec = build_spec(mech)
+    solids = build_solids(mech, spec, tip=True)
+    carrier = {p.coupling: p.carrier for p in gear_pairs(mech, spec)}
+    t = np.linspace(0.0, 1.0, 41)
+    for i, j in body_pairs(solids, carrier):
+        if first["coupling"] in (solids[i].coupling, solids[j].coupling):
+            assert _dense_fcl(fcl, mech, solids, (i, j), t).min() >= 0.5 - 5e-3 * mech.size

@@ -9,8 +9,11 @@ largest ``k`` whose gear bodies keep ``clearance`` from every body they may not
 touch over the whole motion (`foldsim.build.sweep.gear_clearance`), with the pairs
 already sized at their chosen size and the rest at their smallest; the sweep is
 monotone enough in ``k`` for a bisection. The neighbour that stopped the next
-larger size is reported. A spur pair's size is fixed by the distance between its
-hinges (module ``2 a / (z_i + z_j)``); it is checked, not sized.
+larger size is reported. A pair too near at its smallest size (typically to
+the gear another pair keeps on the same hinge, at the same corner) tries larger
+sizes, each half as large again, and grows from the first that passes. A spur
+pair's size is fixed by the distance between its hinges (module ``2 a / (z_i +
+z_j)``); it is checked, not sized.
 """
 
 import json
@@ -66,7 +69,9 @@ def _clearance_of(mech, build, coupling, tol, cache):
             pairs.append(cache[key])
     except ModelError as exc:
         return {"min_clearance": -1.0, "with": str(exc).split(": ", 1)[-1], "at_t": None}
-    enough = max(2.0 * spec.clearance, spec.clearance + 2.0 * SIZING_RESOLUTION * trial.size)
+    # Pass or fail is all sizing asks: nothing needs more precision than the clearance
+    # plus the resolution.
+    enough = spec.clearance + SIZING_RESOLUTION * trial.size
     rows = gear_clearance(trial, spec, cache["schedule"], tol=tol, pairs=pairs, only=[coupling],
                           resolution=SIZING_RESOLUTION, enough=enough, solids=cache["prisms"])
     return next(r for r in rows if r["coupling"] == coupling)
@@ -137,6 +142,17 @@ def size_gears(mech, thickness, module, clearance=0.0, max_teeth=200, tol=DEFAUL
         lo = scale[k]
         row_lo = trial(lo)
         limited = None
+        if kinds[k] != "spur" and not passes(row_lo):
+            # Too near at its smallest, often to the gear another pair keeps on the
+            # same hinge at the same corner: a larger pair sits farther out along the
+            # cone, so try sizes up to the largest, half as many again each time.
+            s = lo
+            while s < top:
+                s = min(top, max(s + 1, (3 * s) // 2))
+                row = trial(s)
+                if passes(row):
+                    lo, row_lo = s, row
+                    break
         if kinds[k] != "spur" and passes(row_lo):
             hi = top
             row_hi = trial(hi)
