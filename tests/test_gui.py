@@ -591,3 +591,22 @@ def test_thick_panel_clashes_show_on_the_strip_and_in_red(window, qtbot):
     window.set_t(0.5)
     assert window.view.colliding.tolist() == [] and warning_pixels(frame(window)) == 0
     assert "1 collision stretch" in window.sweep_text()
+
+
+def test_culling_back_faces_of_the_solids_changes_no_pixel_that_matters(window, monkeypatch):
+    # The solids are closed and face outward (tests/test_build*.py check both), so a
+    # back face is always behind a front face of the same solid and the depth test
+    # would hide it anyway: drawing them culled must give the same picture.
+    from foldsim.gui.view.solid_layer import SolidLayer
+
+    assert window.open_path(ROOT / "assets" / "lantern-build.mech.json")
+    window.view.set_view("iso")
+    for t in (0.3, 0.8):
+        window.set_t(t)
+        culled = frame(window).astype(int)
+        monkeypatch.setattr(SolidLayer, "closed", False)
+        window.view.update()
+        full = frame(window).astype(int)
+        monkeypatch.setattr(SolidLayer, "closed", True)
+        differ = (np.abs(culled[..., :3] - full[..., :3]).max(axis=-1) > 24).mean()
+        assert differ < 2e-3, (t, differ)

@@ -148,6 +148,9 @@ class PanelLayer(gl.GLGraphicsItem.GLGraphicsItem):
         The fixed face, marked with an inset outline.
     """
 
+    closed = False
+    """Whether every mesh is closed and faces outward, so back faces can be culled."""
+
     def __init__(self, outlines, triangles, hinge_lines, hinge_parent, root, parentItem=None):
         super().__init__(parentItem=parentItem)
         n_faces = len(outlines)
@@ -223,7 +226,13 @@ class PanelLayer(gl.GLGraphicsItem.GLGraphicsItem):
             GL.glBindBuffer(GL.GL_ARRAY_BUFFER, self._buffer)
         GL.glEnable(GL.GL_DEPTH_TEST)
         GL.glDisable(GL.GL_BLEND)
-        GL.glDisable(GL.GL_CULL_FACE)
+        if self.closed:
+            # Closed outward meshes: a back face is always behind a front one.
+            GL.glEnable(GL.GL_CULL_FACE)
+            GL.glCullFace(GL.GL_BACK)
+            GL.glFrontFace(GL.GL_CCW)
+        else:
+            GL.glDisable(GL.GL_CULL_FACE)
         GL.glUseProgram(program.program)
         u, a = program.uniforms, program.attributes
         GL.glUniformMatrix4fv(u["u_projection"], 1, False, np.array(self.projectionMatrix().data(), np.float32))
@@ -255,6 +264,7 @@ class PanelLayer(gl.GLGraphicsItem.GLGraphicsItem):
             GL.glLineWidth(3.0 * scale)
             self._draw(GL.GL_LINES, 2, first, last)
         GL.glLineWidth(1.0)
+        GL.glDisable(GL.GL_CULL_FACE)
         for loc in enabled:
             GL.glDisableVertexAttribArray(loc)
         GL.glBindBuffer(GL.GL_ARRAY_BUFFER, 0)

@@ -84,6 +84,8 @@ class SolidLayer(PanelLayer):
     parentItem : GLGraphicsItem, optional
     """
 
+    closed = True
+
     def __init__(self, solids, n_faces, hinge_lines, hinge_parent, parentItem=None):
         super(PanelLayer, self).__init__(parentItem=parentItem)
         fills = [[] for _ in range(n_faces)]
