@@ -29,8 +29,8 @@ little work it takes to get there:
 import numpy as np
 
 from ..gearing import fold_angles
-from ..geometry import transform_points
-from ..kinematics import common_depth, face_poses, speed_profile
+from ..geometry import cross, transform_points
+from ..kinematics import common_depth, face_poses, face_twists, speed_profile, turn_profile
 from ..tolerances import DEFAULT
 from . import spatialhash
 from .narrowphase import pair_state
@@ -59,6 +59,7 @@ class Evaluator:
         self.profile = speed_profile(mech, schedule.rates)
         self.speed = self.profile[:, 0]
         speeds = np.abs(schedule.rates)
+        self.turn = turn_profile(mech, schedule.rates)
         self.pivot_rate = np.concatenate(
             [pan.pivot_path[k:k + 1024] @ speeds for k in range(0, len(pan.pivot_path), 1024)]
             or [np.zeros(0)])
@@ -83,6 +84,43 @@ class Evaluator:
         out = np.where(is_pivot, self.pivot_rate[pos] if len(self.pivot_rate) else 0.0, linear)
         return out[back], is_pivot[back]
 
+    def turns(self, pairs):
+        """(n,) bound on how fast face pairs (n, 2) turn relative to each other, per unit t.
+
+        The sum of the fold rates of the hinges on the tree path between the two
+        faces (`kinematics.turn_profile`).
+        """
+        pairs = np.asarray(pairs, np.int64).reshape(-1, 2)
+        depth = common_depth(self.mech, pairs)
+        return self.turn[pairs[:, 0], depth] + self.turn[pairs[:, 1], depth]
+
+    def twists(self, poses):
+        """Face twists omega, lin (T, F, 3) at poses (T, F, 4, 4) (`kinematics.face_twists`)."""
+        return face_twists(self.mech, poses, self.schedule.rates)
+
+    def spin(self, omega, lin, frame, pairs, centre, pivot):
+        """How fast each pair's separation changes at one node, and its centres' distance.
+
+        ``omega``, ``lin`` (T, F, 3) are face twists (`twists`), ``frame`` (n,) the
+        node of each pair (n, 2), ``centre`` (n, 2, 3) the two faces' posed sphere
+        centres there. Returns ``speed`` (n,): for a pivoting pair (``pivot``) the
+        relative angular speed ``|w|``, for any other a bound on d(distance)/dt, the
+        largest relative speed ``|w x p + v|`` over the points p of either face's
+        bounding sphere, where ``(w, v)`` is face b's twist less face a's (the part
+        of a relative velocity that changes the distance); and ``dist`` (n,), the
+        distance between the two centres.
+        """
+        a, b = pairs[:, 0], pairs[:, 1]
+        w = omega[frame, b] - omega[frame, a]
+        v = lin[frame, b] - lin[frame, a]
+        turn = np.sqrt((w * w).sum(axis=1))
+        speed = np.full(len(pairs), np.inf)
+        for side, f in ((0, a), (1, b)):
+            x = cross(w, centre[:, side]) + v
+            np.minimum(speed, np.sqrt((x * x).sum(axis=1)) + turn * self.pan.radius[f], out=speed)
+        d = centre[:, 0] - centre[:, 1]
+        return np.where(pivot, turn, speed), np.sqrt((d * d).sum(axis=1))
+
     def gap(self, centre, pairs, frame):
         """Sphere gap (less the clearance) of pairs at the centres ``centre[frame]``."""
         d = centre[frame, pairs[:, 0]] - centre[frame, pairs[:, 1]]
@@ -93,16 +131,18 @@ class Evaluator:
         self.stats["pair_tests"] += len(pairs)
         return pair_state(self.mech, self.pan, poses, frame, pairs, self.clearance, self.eps, need=need)
 
-    def evaluate(self, t, pairs, need, pivot):
+    def evaluate(self, t, pairs, need, pivot, motion=False):
         """Separation (n,) and collision flag (n,) of face pairs (n, 2) at t (n,).
 
         Where the panels' bounding spheres are already ``need`` (n,) apart, that gap
         is the separation (a lower bound is all the advancement needs) and the exact
         test is skipped; pivoting pairs (``pivot``) always take the exact test.
+        With ``motion``, also returns the pairs' `spin` (speed and centre distance).
         """
         times, t_index = np.unique(t, return_inverse=True)
         sep = np.empty(len(pairs))
         hit = np.zeros(len(pairs), bool)
+        speed, dist = np.empty(len(pairs)), np.empty(len(pairs))
         order = np.argsort(t_index, kind="stable")
         bounds = np.searchsorted(t_index[order], np.arange(0, len(times) + self.chunk, self.chunk))
         for k, (s, e) in enumerate(zip(bounds[:-1], bounds[1:])):
@@ -112,6 +152,9 @@ class Evaluator:
             poses = self.poses(times[k * self.chunk:(k + 1) * self.chunk])
             frame = t_index[rows] - k * self.chunk
             centre = transform_points(poses[frame[:, None], pairs[rows]], self.pan.centre[pairs[rows]])
+            if motion:
+                omega, lin = self.twists(poses)
+                speed[rows], dist[rows] = self.spin(omega, lin, frame, pairs[rows], centre, pivot[rows])
             d = centre[:, 0] - centre[:, 1]
             gap = np.sqrt((d * d).sum(axis=1)) - self.pan.radius[pairs[rows]].sum(axis=1) - self.clearance
             far = (gap >= need[rows]) & ~pivot[rows]
@@ -119,6 +162,8 @@ class Evaluator:
             near = rows[~far]
             if len(near):
                 sep[near], hit[near] = self.state(poses, frame[~far], pairs[near], need[near])
+        if motion:
+            return sep, hit, speed, dist
         return sep, hit
 
 
@@ -187,15 +232,48 @@ def _merge_runs(cand, k, n_faces):
 
 
 def _grid_geometry(ev, grid):
-    """Face boxes lo, hi (T, F, 3) and sphere centres (T, F, 3) at every grid value."""
+    """Face boxes lo, hi, sphere centres and twists omega, lin (T, F, 3) at every grid value."""
     n, f = len(grid), ev.mech.n_faces
     lo, hi, centre = np.empty((n, f, 3)), np.empty((n, f, 3)), np.empty((n, f, 3))
+    omega, lin = np.empty((n, f, 3)), np.empty((n, f, 3))
     step = max(1, ev.chunk // max(1, int(np.ceil(len(ev.pan.tri_face) / f))))
     for k in range(0, n, step):
         poses = ev.poses(grid[k:k + step])
         lo[k:k + step], hi[k:k + step] = _face_boxes(ev.pan, poses)
         centre[k:k + step] = np.einsum("tfij,fj->tfi", poses[..., :3, :3], ev.pan.centre) + poses[..., :3, 3]
-    return lo, hi, centre
+        omega[k:k + step], lin[k:k + step] = ev.twists(poses)
+    return lo, hi, centre, omega, lin
+
+
+def _stretch_rates(bound, turn, reach, pivot, speed0, speed1, dist0, dist1, dt):
+    """A bound on d(separation)/dt over each stretch of t, from its two ends' speeds.
+
+    ``bound`` (n,) is the bound valid at every t (`Evaluator.rates`); ``speed0``,
+    ``speed1`` bound the rate at the stretch's ends (`Evaluator.spin`), ``dist0``,
+    ``dist1`` are the centre distances there, ``dt`` the stretch's length, ``turn``
+    the pair's `Evaluator.turns` W and ``reach`` the larger sphere radius r. The rate
+    at a node changes at most by K per unit t, so over the stretch it stays below
+    ``(speed0 + speed1 + K dt) / 2``:
+
+    - pivoting pairs: the relative angular velocity is a sum of the path's hinge
+      rates times their posed unit axes, each axis turning at most at W, so
+      K = W**2;
+    - others: the relative acceleration of a point p of one face, in the other's
+      frame, is at most 3 W sum_h |rate_h| |p - a_h| over the path's hinges (one
+      term per hinge for its axis turning, two for p and the axis point moving
+      apart); the hinges on p's side of the common ancestor contribute at most
+      ``bound`` (their levers, as `kinematics.speed_profile`), those on the other
+      side at most W (r + C) more, with C the centre distance, which changes at
+      most at ``bound``. So K = 3 W (bound + W (r + (dist0 + dist1 + bound dt) / 2)).
+
+    Returns
+    -------
+    (n,) float
+        At most ``bound``.
+    """
+    centre = 0.5 * (dist0 + dist1 + bound * dt)
+    k = np.where(pivot, turn * turn, 3.0 * turn * (bound + turn * (reach + centre)))
+    return np.minimum(bound, 0.5 * (speed0 + speed1 + k * dt))
 
 
 def _candidates(ev, grid, lo, hi, k):
@@ -290,7 +368,7 @@ def collision_intervals(mech, schedule, t_from=0.0, t_to=1.0, clearance=0.0, tol
     if hi_t - lo_t == 0:
         return []
     grid, k = _grid(mech, pan, ev.speed, lo_t, hi_t)
-    lo, hi, centre = _grid_geometry(ev, grid)
+    lo, hi, centre, omega, lin = _grid_geometry(ev, grid)
     cand = _candidates(ev, grid, lo, hi, k)
     del lo, hi
     ev.stats["candidates"] = len(cand)
@@ -298,9 +376,14 @@ def collision_intervals(mech, schedule, t_from=0.0, t_to=1.0, clearance=0.0, tol
     start, level, pairs = _merge_runs(cand, k, mech.n_faces)
     end = start + (1 << level)
     t0, t1 = grid[start], grid[end]
-    rate, pivot = ev.rates(pairs) if len(pairs) else (np.zeros(0), np.zeros(0, bool))
+    bound, pivot = ev.rates(pairs) if len(pairs) else (np.zeros(0), np.zeros(0, bool))
+    turn = ev.turns(pairs)
+    reach = pan.radius[pairs].max(axis=1) if len(pairs) else np.zeros(0)
+    speed0, dist0 = ev.spin(omega, lin, start, pairs, centre[start[:, None], pairs], pivot)
+    speed1, dist1 = ev.spin(omega, lin, end, pairs, centre[end[:, None], pairs], pivot)
+    rate = _stretch_rates(bound, turn, reach, pivot, speed0, speed1, dist0, dist1, t1 - t0)
     sep0, hit0, sep1, hit1 = _node_states(ev, grid, centre, start, end, pairs, rate * (t1 - t0), pivot)
-    del centre, cand
+    del centre, cand, omega, lin
     found = []
     earliest = None
     resolution = tol.t_resolution / 2
@@ -329,13 +412,23 @@ def collision_intervals(mech, schedule, t_from=0.0, t_to=1.0, clearance=0.0, tol
         pairs, t0, t1, rate, pivot = pairs[open_], t0[open_], t1[open_], rate[open_], pivot[open_]
         u0, u1 = u0[open_], u1[open_]
         sep0, hit0, sep1, hit1 = sep0[open_], hit0[open_], sep1[open_], hit1[open_]
+        bound, turn, reach = bound[open_], turn[open_], reach[open_]
+        speed0, speed1, dist0, dist1 = speed0[open_], speed1[open_], dist0[open_], dist1[open_]
         if progress is not None:
             progress(1.0 - float((t1 - t0).sum()) / total)
         if not len(pairs):
             break
         mid = _dyadic_split(u0, u1, lo_t, hi_t - lo_t)
-        sep_m, hit_m = ev.evaluate(mid, pairs, rate * np.maximum(mid - t0, t1 - mid), pivot)
-        pairs, rate = np.concatenate([pairs, pairs]), np.concatenate([rate, rate])
+        sep_m, hit_m, speed_m, dist_m = ev.evaluate(mid, pairs, rate * np.maximum(mid - t0, t1 - mid), pivot,
+                                                    motion=True)
+        # Each half takes the tighter of its own bound and its parent's (both hold).
+        rate = np.concatenate([
+            np.minimum(rate, _stretch_rates(bound, turn, reach, pivot, speed0, speed_m, dist0, dist_m, mid - t0)),
+            np.minimum(rate, _stretch_rates(bound, turn, reach, pivot, speed_m, speed1, dist_m, dist1, t1 - mid))])
+        bound, turn, reach = (np.concatenate([x, x]) for x in (bound, turn, reach))
+        speed0, speed1 = np.concatenate([speed0, speed_m]), np.concatenate([speed_m, speed1])
+        dist0, dist1 = np.concatenate([dist0, dist_m]), np.concatenate([dist_m, dist1])
+        pairs = np.concatenate([pairs, pairs])
         pivot = np.concatenate([pivot, pivot])
         t0, t1 = np.concatenate([t0, mid]), np.concatenate([mid, t1])
         sep0, sep1 = np.concatenate([sep0, sep_m]), np.concatenate([sep_m, sep1])
