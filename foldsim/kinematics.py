@@ -38,10 +38,26 @@ def face_poses(mech, angles):
     """
     angles = np.asarray(angles, dtype=float)
     n_t = angles.shape[0]
-    poses = np.broadcast_to(np.eye(4), (n_t, mech.n_faces, 4, 4)).copy()
-    rotations = geometry.line_rotations(mech.axes[None], angles)
+    poses = np.zeros((n_t, mech.n_faces, 4, 4))
+    poses[..., 0, 0] = poses[..., 1, 1] = poses[..., 2, 2] = poses[..., 3, 3] = 1.0
+    # Rotation x -> R (x - a) + a about each hinge line (Rodrigues' formula, as
+    # `geometry.line_rotations`), kept as its 3 x 3 part R and translation a - R a.
+    a = mech.axes[:, 0]
+    u = geometry.unit(mech.axes[:, 1] - a)
+    skew = np.zeros((len(u), 3, 3))
+    skew[:, 0, 1], skew[:, 0, 2], skew[:, 1, 2] = -u[:, 2], u[:, 1], -u[:, 0]
+    skew -= skew.transpose(0, 2, 1)
+    outer = u[:, :, None] * u[:, None, :]
+    c, s = np.cos(angles)[..., None, None], np.sin(angles)[..., None, None]
+    rot = c * np.eye(3) + s * skew + (1.0 - c) * outer
+    shift = a - (rot @ a[:, :, None])[..., 0]
     for level in mech.levels:
-        poses[:, mech.child[level]] = poses[:, mech.parent[level]] @ rotations[:, level]
+        parent = poses[:, mech.parent[level], :3]
+        turn = parent[..., :3]
+        child = np.empty((n_t, len(level), 3, 4))
+        np.matmul(turn, rot[:, level], out=child[..., :3])
+        child[..., 3] = (turn @ shift[:, level, :, None])[..., 0] + parent[..., 3]
+        poses[:, mech.child[level], :3] = child
     return poses
 
 

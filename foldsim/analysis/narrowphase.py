@@ -24,6 +24,9 @@ from .panels import _in_sorted, _keys, triangle_pairs
 CHUNK = 4096
 """Triangle pairs per block of work."""
 
+PIVOT_APART = 1e-6
+"""Wedge separation (radians) beyond which a pivoting pair is known apart without triangle tests."""
+
 
 def _dot(u, v):
     return u[0] * v[0] + u[1] * v[1] + u[2] * v[2]
@@ -326,10 +329,42 @@ def pair_state(mech, pan, poses, frame, pairs, clearance, eps, separation=True, 
         Distance (less the clearance), or wedge angle for pairs pivoting about a
         shared point; 0 where colliding.
     hit : (n,) bool
+
+    Notes
+    -----
+    A pivoting pair's panels are convex and lie in the wedges their two edges
+    span at the shared point; wedges more than `PIVOT_APART` apart meet only at
+    that point, so such a pair cannot collide and its triangles are not tested.
     """
+    pairs = np.asarray(pairs, np.int64).reshape(-1, 2)
+    frame = np.asarray(frame)
+    is_pivot, pos = _in_sorted(_keys(pairs, mech.n_faces), pan.pivot_keys)
+    wedge = np.full(len(pairs), np.inf)
+    if is_pivot.any():
+        rows = np.flatnonzero(is_pivot)
+        dirs = pan.pivot_dirs[pos[rows]]
+        rot_a = poses[frame[rows], pairs[rows, 0], :3, :3]
+        rot_b = poses[frame[rows], pairs[rows, 1], :3, :3]
+        wa = unit(np.einsum("nij,nkj->nki", rot_a, dirs[:, 0]))
+        wb = unit(np.einsum("nij,nkj->nki", rot_b, dirs[:, 1]))
+        wedge[rows] = _wedge_separation(wa, wb)
+    apart = is_pivot & (wedge > PIVOT_APART)
+    if not apart.any():
+        return _pair_state(mech, pan, poses, frame, pairs, clearance, eps, separation, need, wedge)
+    sep = np.where(apart, wedge, np.inf) if (separation or clearance > 0) else np.full(len(pairs), np.inf)
+    hit = np.zeros(len(pairs), bool)
+    rest = np.flatnonzero(~apart)
+    if len(rest):
+        sep[rest], hit[rest] = _pair_state(mech, pan, poses, frame[rest], pairs[rest], clearance, eps, separation,
+                                           None if need is None else np.asarray(need, float)[rest], wedge[rest])
+    return sep, hit
+
+
+def _pair_state(mech, pan, poses, frame, pairs, clearance, eps, separation, need, wedge):
+    """`pair_state` with the pivoting pairs' wedge separations ``wedge`` (n,) given."""
     ia, ib, row = triangle_pairs(pan, pairs)
     keys = _keys(pairs, mech.n_faces)
-    is_pivot, pos = _in_sorted(keys, pan.pivot_keys)
+    is_pivot, _ = _in_sorted(keys, pan.pivot_keys)
     measure = separation or clearance > 0
     enough = None
     if need is not None and len(row) > len(pairs):
@@ -356,12 +391,6 @@ def pair_state(mech, pan, poses, frame, pairs, clearance, eps, separation=True, 
         hit |= ~touching & ~is_pivot & (sep < clearance)
         sep = np.where(touching, sep, np.maximum(sep - clearance, 0.0))
     if is_pivot.any():
-        rows = np.flatnonzero(is_pivot)
-        dirs = pan.pivot_dirs[pos[rows]]
-        rot_a = poses[frame[rows], pairs[rows, 0], :3, :3]
-        rot_b = poses[frame[rows], pairs[rows, 1], :3, :3]
-        wa = unit(np.einsum("nij,nkj->nki", rot_a, dirs[:, 0]))
-        wb = unit(np.einsum("nij,nkj->nki", rot_b, dirs[:, 1]))
-        sep[rows] = _wedge_separation(wa, wb)
+        sep[is_pivot] = wedge[is_pivot]
     sep[hit] = 0.0
     return sep, hit

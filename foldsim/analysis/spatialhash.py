@@ -29,7 +29,7 @@ def _cell_size(lo, hi):
     extent = extent[np.isfinite(extent) & (extent > 0)]
     if not len(extent):
         return 1.0
-    return float(np.quantile(extent, 0.9))
+    return float(np.quantile(extent, 0.5))
 
 
 def _block_pairs(lo, hi, frame, cell, origin):
