@@ -38,26 +38,29 @@ def face_poses(mech, angles):
     """
     angles = np.asarray(angles, dtype=float)
     n_t = angles.shape[0]
-    poses = np.zeros((n_t, mech.n_faces, 4, 4))
-    poses[..., 0, 0] = poses[..., 1, 1] = poses[..., 2, 2] = poses[..., 3, 3] = 1.0
     # Rotation x -> R (x - a) + a about each hinge line (Rodrigues' formula, as
-    # `geometry.line_rotations`), kept as its 3 x 3 part R and translation a - R a.
+    # `geometry.line_rotations`), kept as its 3 x 4 part [R | a - R a], hinge-major.
     a = mech.axes[:, 0]
     u = geometry.unit(mech.axes[:, 1] - a)
     skew = np.zeros((len(u), 3, 3))
     skew[:, 0, 1], skew[:, 0, 2], skew[:, 1, 2] = -u[:, 2], u[:, 1], -u[:, 0]
     skew -= skew.transpose(0, 2, 1)
     outer = u[:, :, None] * u[:, None, :]
-    c, s = np.cos(angles)[..., None, None], np.sin(angles)[..., None, None]
-    rot = c * np.eye(3) + s * skew + (1.0 - c) * outer
-    shift = a - (rot @ a[:, :, None])[..., 0]
+    c, s = np.cos(angles.T)[..., None, None], np.sin(angles.T)[..., None, None]
+    rot = np.empty((len(u), n_t, 3, 4))
+    rot[..., :3] = c * np.eye(3) + s * skew[:, None] + (1.0 - c) * outer[:, None]
+    rot[..., 3] = a[:, None] - (rot[..., :3] @ a[:, None, :, None])[..., 0]
+    # Face-major while walking the tree, so each level gathers whole rows.
+    work = np.empty((mech.n_faces, n_t, 3, 4))
+    work[mech.root] = np.eye(4)[:3]
     for level in mech.levels:
-        parent = poses[:, mech.parent[level], :3]
-        turn = parent[..., :3]
-        child = np.empty((n_t, len(level), 3, 4))
-        np.matmul(turn, rot[:, level], out=child[..., :3])
-        child[..., 3] = (turn @ shift[:, level, :, None])[..., 0] + parent[..., 3]
-        poses[:, mech.child[level], :3] = child
+        parent = work[mech.parent[level]]
+        child = parent[..., :3] @ rot[level]
+        child[..., 3] += parent[..., 3]
+        work[mech.child[level]] = child
+    poses = np.empty((n_t, mech.n_faces, 4, 4))
+    poses[:, :, :3] = work.transpose(1, 0, 2, 3)
+    poses[:, :, 3] = (0.0, 0.0, 0.0, 1.0)
     return poses
 
 

@@ -198,7 +198,8 @@ def _grid(mech, pan, speed, lo_t, hi_t):
 def _merge_runs(cand, k, n_faces):
     """Join candidate fine steps into the coarse steps they fill, bottom up.
 
-    ``cand`` rows (fine step, a, b). Two sibling stretches (fine-step blocks 2j and
+    ``cand`` rows (first fine step, level, a, b): runs of ``2**level`` fine steps
+    aligned to their length (`_candidates`). Two sibling stretches (fine-step blocks 2j and
     2j + 1 of one level) that are both candidates for a pair become their parent
     stretch, up to the reference's steps (level k). A pair near all along is then
     tested at the coarse grid's values, and the advancement halves only where it has
@@ -212,10 +213,10 @@ def _merge_runs(cand, k, n_faces):
         The stretch is 2**level fine steps long.
     pairs : (n, 2) int
     """
-    key = cand[:, 1] * n_faces + cand[:, 2]
+    key = cand[:, 2] * n_faces + cand[:, 3]
     order = np.lexsort((cand[:, 0], key))
-    key, block = key[order], cand[order, 0]
-    level = np.zeros(len(key), np.int64)
+    key, level = key[order], cand[order, 1]
+    block = cand[order, 0] >> level
     for lev in range(1, k + 1):
         if len(key) < 2:
             break
@@ -277,12 +278,15 @@ def _stretch_rates(bound, turn, reach, pivot, speed0, speed1, dist0, dist1, dt):
 
 
 def _candidates(ev, grid, lo, hi, k):
-    """Candidate (fine step, a, b) rows: swept boxes that overlap, grown by half the clearance.
+    """Candidate (first fine step, level, a, b) rows: swept boxes that overlap, grown by half the clearance.
 
     The spatial hash runs once per block of ``2**min(k, 2)`` fine steps, on the union
     of the block's swept boxes; each pair it finds is then checked against the
     swept boxes of the block's fine steps directly. The blocks' pairs hold every
     fine step's pairs, so nothing is lost, and the hash is built a quarter as often.
+    A pair whose boxes meet at every fine step of a block is one row for the whole
+    block (level ``min(k, 2)``); any other gives a row (level 0) per fine step where
+    they meet.
     """
     grow = (ev.speed[None, :] * np.diff(grid)[:, None] / 2 + ev.clearance / 2)[..., None]
     swept_lo = np.minimum(lo[:-1], lo[1:]) - grow
@@ -293,17 +297,23 @@ def _candidates(ev, grid, lo, hi, k):
                                          swept_hi.reshape(-1, block, f, 3).max(axis=1))
     skip, _ = _in_sorted(_keys(rows[:, 1:], ev.mech.n_faces), ev.pan.skip_keys)
     rows = rows[~skip]
-    if block > 1:
-        out = []
-        for k in range(0, len(rows), ROW_CHUNK):
-            part = rows[k:k + ROW_CHUNK]
-            step = (part[:, :1] * block + np.arange(block)[None, :]).ravel()
-            a, b = np.repeat(part[:, 1], block), np.repeat(part[:, 2], block)
-            meet = (np.maximum(swept_lo[step, a], swept_lo[step, b])
-                    <= np.minimum(swept_hi[step, a], swept_hi[step, b])).all(axis=1)
-            out.append(np.column_stack([step[meet], a[meet], b[meet]]))
-        rows = np.concatenate(out) if out else np.zeros((0, 3), dtype=int)
-    return rows
+    if block == 1:
+        return np.column_stack([rows[:, 0], np.zeros(len(rows), rows.dtype), rows[:, 1:]])
+    out = [np.zeros((0, 4), dtype=rows.dtype)]
+    for k in range(0, len(rows), ROW_CHUNK):
+        part = rows[k:k + ROW_CHUNK]
+        step = part[:, :1] * block + np.arange(block)[None, :]
+        a, b = part[:, 1:2], part[:, 2:3]
+        meet = np.ones(step.shape, bool)
+        for axis in range(3):
+            meet &= (np.maximum(swept_lo[step, a, axis], swept_lo[step, b, axis])
+                     <= np.minimum(swept_hi[step, a, axis], swept_hi[step, b, axis]))
+        full = meet.all(axis=1)
+        out.append(np.column_stack([step[full, 0], np.full(full.sum(), int(np.log2(block))),
+                                    part[full, 1:]]))
+        s, j = np.nonzero(meet & ~full[:, None])
+        out.append(np.column_stack([step[s, j], np.zeros(len(s), rows.dtype), part[s, 1:]]))
+    return np.concatenate(out)
 
 
 def _node_states(ev, grid, centre, start, end, pairs, need, pivot):
@@ -371,7 +381,7 @@ def collision_intervals(mech, schedule, t_from=0.0, t_to=1.0, clearance=0.0, tol
     lo, hi, centre, omega, lin = _grid_geometry(ev, grid)
     cand = _candidates(ev, grid, lo, hi, k)
     del lo, hi
-    ev.stats["candidates"] = len(cand)
+    ev.stats["candidates"] = int((1 << cand[:, 1]).sum())
     ev.stats["grid_steps"] = len(grid) - 1
     start, level, pairs = _merge_runs(cand, k, mech.n_faces)
     end = start + (1 << level)
