@@ -183,6 +183,52 @@ def test_colliding_pairs_on_random_poses(seed):
                               reference.colliding_pairs(mech, poses, clearance=clearance, pan=pan))
 
 
+def brute_force_colliding(mech, pan, poses, eps, clearance=0.0):
+    """Face pairs colliding at one pose set: every triangle pair of every unskipped face pair tested.
+
+    Brute force (common practice) over the reference kernels of `triangles`
+    (crossing overlap beyond the contact tolerance; with a clearance, distance below
+    it for pairs not in contact by design).
+    """
+    tri = np.stack([geometry_posed(poses[f], pan.tri_points[k]) for k, f in enumerate(pan.tri_face)])
+    i, j = np.triu_indices(len(tri), 1)
+    fa, fb = pan.tri_face[i], pan.tri_face[j]
+    keys = fa * mech.n_faces + fb
+    keep = (fa != fb) & ~np.isin(keys, pan.skip_keys)
+    i, j, keys = i[keep], j[keep], keys[keep]
+    hit = triangles.crossing_overlap(tri[i], tri[j], eps) > eps
+    if clearance > 0:
+        by_design = np.isin(keys, pan.touch_keys) | np.isin(keys, pan.pivot_keys)
+        hit |= ~by_design & (triangles.triangle_distance(tri[i], tri[j]) < clearance)
+    hit_keys = np.unique(keys[hit])
+    return np.column_stack([hit_keys // mech.n_faces, hit_keys % mech.n_faces])
+
+
+def geometry_posed(pose, points):
+    return points @ pose[:3, :3].T + pose[:3, 3]
+
+
+@pytest.mark.parametrize("shape", ["prism:60", "antiprism:30"])
+def test_plane_pruning_keeps_every_colliding_pair_of_large_polygons(shape):
+    # References: brute force over every triangle pair (common practice) with the
+    # reference kernels of analysis.triangles, and python-fcl for the bound. The
+    # caps are large polygons whose triangles' boxes overlap many side panels, the
+    # case the face-plane and triangle-plane pruning of colliding_pairs is for.
+    mech = mechanism_from_solid(solids.builtin(shape), couplings="none")
+    pan = collision.panels(mech)
+    eps = DEFAULT.contact * mech.size
+    crossing = 0
+    for poses in over_folded_poses(mech, [0.3, 0.8, 1.0, 1.1, 1.25]):
+        ours = collision.colliding_pairs(mech, poses, pan=pan)
+        np.testing.assert_array_equal(ours, brute_force_colliding(mech, pan, poses, eps).reshape(-1, 2))
+        assert {tuple(p) for p in ours.tolist()} <= fcl_pairs(mech, poses)
+        crossing += len(ours)
+        clearance = 0.02 * mech.size
+        np.testing.assert_array_equal(collision.colliding_pairs(mech, poses, clearance=clearance, pan=pan),
+                                      brute_force_colliding(mech, pan, poses, eps, clearance).reshape(-1, 2))
+    assert crossing > 0  # the over-folded poses really cross
+
+
 # ---------------------------------------------------------------- the sweep
 
 
