@@ -273,6 +273,53 @@ def test_sweep_matches_reference_with_clearance():
                        reference.collision_intervals(mech, schedule, clearance=clearance))
 
 
+@pytest.mark.parametrize("shape", ["geodesic:1", "prism:12", "dodecahedron"])
+def test_stretch_rates_bound_the_sampled_separation(shape):
+    # Reference: brute-force sampling (plain numerics) of the exact panel distance
+    # (analysis.triangles.triangle_distance over every triangle pair) at 33 values in
+    # each stretch: it never changes faster than the stretch's rate bound.
+    from foldsim.analysis import sweep
+
+    mech = mechanism_from_solid(solids.builtin(shape), couplings="chain")
+    schedule = fold_schedule(mech)
+    pan = collision.panels(mech)
+    ev = sweep.Evaluator(mech, schedule, pan, 0.0, DEFAULT)
+    rng = np.random.default_rng(5)
+    # Pairs that touch by design (they close in near the ends of the motion) and random ones.
+    touch = rng.choice(pan.touch_keys, min(20, len(pan.touch_keys)), replace=False)
+    pairs = np.concatenate([np.column_stack([touch // mech.n_faces, touch % mech.n_faces]),
+                            np.sort(rng.integers(0, mech.n_faces, (20, 2)), axis=1)])
+    keys = pairs[:, 0] * mech.n_faces + pairs[:, 1]
+    pairs = pairs[(pairs[:, 0] < pairs[:, 1]) & ~np.isin(keys, pan.skip_keys) & ~np.isin(keys, pan.pivot_keys)]
+    bound, pivot = ev.rates(pairs)
+    turn = ev.turns(pairs)
+    reach = pan.radius[pairs].max(axis=1)
+    tighter = 0
+    for t0, t1 in ((0.0, 1 / 64), (0.5, 0.5 + 1 / 128), (1 - 1 / 256, 1.0), (0.25, 0.5)):
+        ts = np.linspace(t0, t1, 33)
+        poses = face_poses(mech, fold_angles(schedule, ts))
+        omega, lin = ev.twists(poses[[0, -1]])
+        ends = []
+        for k in (0, 1):
+            frame = np.full(len(pairs), k)
+            centre = np.einsum("nsij,nsj->nsi", poses[[0, -1]][frame[:, None], pairs, :3, :3],
+                               pan.centre[pairs]) + poses[[0, -1]][frame[:, None], pairs, :3, 3]
+            ends.append(ev.spin(omega, lin, frame, pairs, centre, pivot))
+        rate = sweep._stretch_rates(bound, turn, reach, pivot, ends[0][0], ends[1][0], ends[0][1], ends[1][1],
+                                    np.full(len(pairs), t1 - t0))
+        tighter += int((rate < 0.5 * bound).sum())
+        for n, (a, b) in enumerate(pairs):
+            ia, ib, _ = collision.triangle_pairs(pan, np.array([[a, b]]))
+            dist = []
+            for pose in poses:
+                ta = pan.tri_points[ia] @ pose[a, :3, :3].T + pose[a, :3, 3]
+                tb = pan.tri_points[ib] @ pose[b, :3, :3].T + pose[b, :3, 3]
+                dist.append(triangles.triangle_distance(ta, tb).min())
+            change = np.abs(np.diff(dist)).max() / (ts[1] - ts[0])
+            assert change <= rate[n] * (1 + 1e-9) + 1e-9 * mech.size
+    assert tighter > 0  # the end twists do tighten the bound somewhere
+
+
 @pytest.mark.parametrize("shape", ["cube", "prism:5", "prism:6", "antiprism:4", "cuboctahedron"])
 def test_first_only_finds_the_earliest_collision_of_the_full_sweep(shape):
     # Reference: the full sweep; the early exit must report its earliest interval

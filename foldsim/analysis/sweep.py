@@ -17,6 +17,12 @@ little work it takes to get there:
 - The boxes and the bounding-sphere centres at the grid values are computed once
   and reused by every stretch that ends there; each (grid value, pair) is evaluated
   once, though two stretches share it.
+- L is per stretch: the bound that holds at every t (the reference's), or, where
+  smaller, one from the pairs' relative twists at the stretch's two ends and a bound
+  on how fast that rate can change (`_stretch_rates`); each half of a split stretch
+  takes the smaller of its own and its parent's. Pairs that close in slowly, as
+  pairs touching by design do near the ends of the motion, then leave few stretches
+  open.
 - Distances are lazy: a stretch whose sphere gaps at both ends are positive and add
   up to more than L (t1 - t0) is settled without any triangle test; the exact test
   runs only at the ends of the others, and only where the sphere gap is below the
@@ -58,11 +64,10 @@ class Evaluator:
         self.eps = tol.contact * mech.size
         self.profile = speed_profile(mech, schedule.rates)
         self.speed = self.profile[:, 0]
-        speeds = np.abs(schedule.rates)
         self.turn = turn_profile(mech, schedule.rates)
-        self.pivot_rate = np.concatenate(
-            [pan.pivot_path[k:k + 1024] @ speeds for k in range(0, len(pan.pivot_path), 1024)]
-            or [np.zeros(0)])
+        # The sum of the fold rates of the hinges between each pivoting pair's faces.
+        self.pivot_rate = self.turns(np.column_stack([pan.pivot_keys // mech.n_faces,
+                                                      pan.pivot_keys % mech.n_faces]))
         self.chunk = max(1, POSE_BUDGET // (16 * mech.n_faces))
         self.stats = stats if stats is not None else {}
         self.stats.setdefault("t_values", 0)
