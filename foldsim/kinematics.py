@@ -99,18 +99,20 @@ def face_twists(mech, poses, rates):
     poses = np.asarray(poses, dtype=float)
     rates = np.asarray(rates, dtype=float)
     n_t = poses.shape[0]
-    omega = np.zeros((n_t, mech.n_faces, 3))
-    lin = np.zeros((n_t, mech.n_faces, 3))
-    # Columns: the unit direction (a vector) and the start point of each hinge line.
+    # Every hinge's contribution at once: its line posed by its parent, times its rate.
     axis = np.stack([geometry.unit(mech.axes[:, 1] - mech.axes[:, 0]), mech.axes[:, 0]], axis=2)
+    parent = poses[:, mech.parent]
+    moved = parent[..., :3, :3] @ axis
+    u, a = moved[..., 0], moved[..., 1] + parent[..., :3, 3]
+    spin = (rates[None, :, None] * u).transpose(1, 0, 2)
+    shift = (rates[None, :, None] * geometry.cross(a, u)).transpose(1, 0, 2)
+    # Summed down the tree, face-major so each level gathers whole rows.
+    omega = np.zeros((mech.n_faces, n_t, 3))
+    lin = np.zeros((mech.n_faces, n_t, 3))
     for level in mech.levels:
-        parent = poses[:, mech.parent[level]]
-        moved = parent[..., :3, :3] @ axis[level]
-        u, a = moved[..., 0], moved[..., 1] + parent[..., :3, 3]
-        r = rates[level][None, :, None]
-        omega[:, mech.child[level]] = omega[:, mech.parent[level]] + r * u
-        lin[:, mech.child[level]] = lin[:, mech.parent[level]] + r * geometry.cross(a, u)
-    return omega, lin
+        omega[mech.child[level]] = omega[mech.parent[level]] + spin[level]
+        lin[mech.child[level]] = lin[mech.parent[level]] + shift[level]
+    return omega.transpose(1, 0, 2), lin.transpose(1, 0, 2)
 
 
 def turn_profile(mech, rates):
