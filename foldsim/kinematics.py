@@ -46,10 +46,16 @@ def face_poses(mech, angles):
     skew[:, 0, 1], skew[:, 0, 2], skew[:, 1, 2] = -u[:, 2], u[:, 1], -u[:, 0]
     skew -= skew.transpose(0, 2, 1)
     outer = u[:, :, None] * u[:, None, :]
-    c, s = np.cos(angles.T)[..., None, None], np.sin(angles.T)[..., None, None]
+    # R = u u^T + cos(angle) (I - u u^T) + sin(angle) [u]x: one small matrix product
+    # per hinge, coefficients (1, cos, sin) against the three matrices, which also
+    # gives R a for the translation.
+    basis = np.stack([outer, np.eye(3) - outer, skew], axis=1)
+    basis = np.concatenate([basis.reshape(-1, 3, 9), (basis @ a[:, None, :, None]).reshape(-1, 3, 3)], axis=2)
+    coef = np.stack([np.ones(angles.T.shape), np.cos(angles.T), np.sin(angles.T)], axis=2)
+    both = coef @ basis
     rot = np.empty((len(u), n_t, 3, 4))
-    rot[..., :3] = c * np.eye(3) + s * skew[:, None] + (1.0 - c) * outer[:, None]
-    rot[..., 3] = a[:, None] - (rot[..., :3] @ a[:, None, :, None])[..., 0]
+    rot[..., :3] = both[..., :9].reshape(len(u), n_t, 3, 3)
+    rot[..., 3] = a[:, None] - both[..., 9:]
     # Face-major while walking the tree, so each level gathers whole rows.
     work = np.empty((mech.n_faces, n_t, 3, 4))
     work[mech.root] = np.eye(4)[:3]
@@ -101,9 +107,9 @@ def face_twists(mech, poses, rates):
     n_t = poses.shape[0]
     # Every hinge's contribution at once: its line posed by its parent, times its rate.
     axis = np.stack([geometry.unit(mech.axes[:, 1] - mech.axes[:, 0]), mech.axes[:, 0]], axis=2)
-    parent = poses[:, mech.parent]
-    moved = parent[..., :3, :3] @ axis
-    u, a = moved[..., 0], moved[..., 1] + parent[..., :3, 3]
+    parent = poses[:, mech.parent, :3]
+    moved = parent[..., :3] @ axis
+    u, a = moved[..., 0], moved[..., 1] + parent[..., 3]
     spin = (rates[None, :, None] * u).transpose(1, 0, 2)
     shift = (rates[None, :, None] * geometry.cross(a, u)).transpose(1, 0, 2)
     # Summed down the tree, face-major so each level gathers whole rows.
