@@ -208,13 +208,24 @@ def geometry_posed(pose, points):
     return points @ pose[:3, :3].T + pose[:3, 3]
 
 
-@pytest.mark.parametrize("shape", ["prism:60", "antiprism:30"])
-def test_plane_pruning_keeps_every_colliding_pair_of_large_polygons(shape):
+@pytest.mark.parametrize("shape, jitter", [("prism:60", 0.0), ("antiprism:30", 0.0), ("prism:24", 1e-8)])
+def test_plane_pruning_keeps_every_colliding_pair_of_large_polygons(shape, jitter):
     # References: brute force over every triangle pair (common practice) with the
     # reference kernels of analysis.triangles, and python-fcl for the bound. The
     # caps are large polygons whose triangles' boxes overlap many side panels, the
-    # case the face-plane and triangle-plane pruning of colliding_pairs is for.
-    mech = mechanism_from_solid(solids.builtin(shape), couplings="none")
+    # case the face-plane and triangle-plane pruning of colliding_pairs is for. With
+    # ``jitter`` the vertices move off their faces' planes by up to that share of the
+    # size (within the model tolerance, beyond collision.PLANAR), so those planes
+    # must not prune.
+    solid = solids.builtin(shape)
+    if jitter:
+        vertices = np.asarray(solid.vertices, float)
+        size = float(np.linalg.norm(np.ptp(vertices, axis=0)))
+        moved_solid = type("Solid", (), {})()
+        moved_solid.vertices = vertices + np.random.default_rng(2).uniform(-1, 1, vertices.shape) * jitter * size
+        moved_solid.faces = solid.faces
+        solid = moved_solid
+    mech = mechanism_from_solid(solid, couplings="none")
     pan = collision.panels(mech)
     eps = DEFAULT.contact * mech.size
     crossing = 0

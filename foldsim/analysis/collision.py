@@ -138,7 +138,8 @@ def colliding_pairs(mech, poses, clearance=0.0, tol=DEFAULT, pan=None):
     pairs = pairs[~_in_sorted(pairs[:, 0] * n + pairs[:, 1], pan.skip_keys)[0]]
     if not len(pairs):
         return np.zeros((0, 2), dtype=int)
-    normal, offset = _face_planes(mech, pan, poses)
+    normal, offset, planar = _face_planes(mech, pan, poses)
+    strict = clearance == 0
     sizes = np.array([len(p) for p in mech.flat_faces])
     first = np.concatenate([[0], np.cumsum(sizes)[:-1]])
     points = transform_points(poses[np.repeat(np.arange(n), sizes)], np.concatenate(mech.flat_faces))
@@ -150,7 +151,8 @@ def colliding_pairs(mech, poses, clearance=0.0, tol=DEFAULT, pan=None):
         rows, k = _expand(first[mover], sizes[mover])
         height = np.einsum("ij,ij->i", points[k], normal[plane[rows]]) - offset[plane[rows]]
         bounds = np.concatenate([[0], np.cumsum(sizes[mover])[:-1]])
-        keep = (np.maximum.reduceat(height, bounds) >= -margin) & (np.minimum.reduceat(height, bounds) <= margin)
+        top, bottom = np.maximum.reduceat(height, bounds), np.minimum.reduceat(height, bounds)
+        keep = _may_meet(top, bottom, margin, eps, strict & (pan.count[mover] == 1)) | ~planar[plane]
         pairs, small = pairs[keep], small[keep]
         if not len(pairs):
             return np.zeros((0, 2), dtype=int)
@@ -163,7 +165,7 @@ def colliding_pairs(mech, poses, clearance=0.0, tol=DEFAULT, pan=None):
         box = ((tri_lo[tri] <= face_hi[other[rows]]).all(axis=1) & (face_lo[other[rows]] <= tri_hi[tri]).all(axis=1))
         rows, tri = rows[box], tri[box]
         height = np.einsum("nkj,nj->nk", posed[tri], normal[other[rows]]) - offset[other[rows]][:, None]
-        reach = (height.max(axis=1) >= -margin) & (height.min(axis=1) <= margin)
+        reach = _may_meet(height.max(axis=1), height.min(axis=1), margin, eps, strict) | ~planar[other[rows]]
         one = np.flatnonzero(~many)
         rows, tri = np.concatenate([rows[reach], one]), np.concatenate([tri[reach], pan.start[face[one]]])
         order = np.argsort(rows, kind="stable")
@@ -198,20 +200,46 @@ def _expand(start, count):
     return rows, np.repeat(start, count) + local
 
 
-def _face_planes(mech, pan, poses):
-    """Unit normals (F, 3) and offsets (F,) of the posed panels' planes (n . x = offset).
+def _may_meet(top, bottom, margin, eps, strict):
+    """Whether points with heights in [bottom, top] over a plane may meet a panel in it.
 
-    The normal is the sum of the face's flat-frame triangle normals (its area
-    vector), turned by the pose; the plane passes through the posed sphere centre
-    (the vertex centroid, which lies in the panel's plane).
+    Not when all lie beyond ``margin`` on one side. With ``strict`` (n,) bool, for a
+    triangle whose corners these are and no clearance: not either when they do not
+    straddle the plane beyond ``eps`` and some corner is off it by more than
+    ``eps`` (`triangles.crossing_overlap` is then ``-inf`` against every triangle in
+    the plane: such a triangle neither crosses it strictly nor lies in it). The
+    tests keep a thousandth of ``eps`` in hand for round-off.
+    """
+    slack = 1e-3 * eps
+    out = (top >= -margin) & (bottom <= margin)
+    one_side = (top < eps - slack) | (bottom > -eps + slack)
+    off = np.maximum(top, -bottom) > eps + slack
+    return out & ~(strict & one_side & off)
+
+
+PLANAR = 1e-12
+"""Flatness (relative to the model's size) a panel needs for its plane to prune pairs."""
+
+
+def _face_planes(mech, pan, poses):
+    """Unit normals (F, 3), offsets (F,) and flatness flags (F,) of the posed panels' planes.
+
+    The plane is ``n . x = offset``: the normal is the sum of the face's flat-frame
+    triangle normals (its area vector), turned by the pose, and the plane passes
+    through the posed sphere centre (the vertex centroid). A face whose triangle
+    corners stray more than `PLANAR` times the model's size from that plane (an
+    input polygon that is only nearly planar) is not flat enough: its triangles'
+    own planes may tilt away from it, so its plane prunes nothing.
     """
     tri = pan.tri_points
     area = np.cross(tri[:, 1] - tri[:, 0], tri[:, 2] - tri[:, 0])
     flat = np.add.reduceat(area, pan.start)
     flat /= np.linalg.norm(flat, axis=1, keepdims=True)
+    stray = np.abs(np.einsum("kvj,kj->kv", tri - pan.centre[pan.tri_face][:, None], flat[pan.tri_face]))
+    planar = np.maximum.reduceat(stray.max(axis=1), pan.start) <= PLANAR * mech.size
     normal = np.einsum("fij,fj->fi", poses[:, :3, :3], flat)
     centre = np.einsum("fij,fj->fi", poses[:, :3, :3], pan.centre) + poses[:, :3, 3]
-    return normal, np.einsum("ij,ij->i", normal, centre)
+    return normal, np.einsum("ij,ij->i", normal, centre), planar
 
 
 def flat_overlaps(mech, tol=DEFAULT, pan=None):
