@@ -102,10 +102,12 @@ def colliding_pairs(mech, poses, clearance=0.0, tol=DEFAULT, pan=None):
     so a large polygon's vertices are only read for the pairs that pass); of the
     rest, only the triangles of each face that reach within ``m`` of the other's
     plane and whose boxes meet the other face's box are paired, and those pairs'
-    boxes tested, before the exact test. Every pair dropped is one the exact test
-    rejects (a triangle beyond ``m`` of a plane neither crosses the panel in it nor
-    comes within the clearance), so the answer is that of testing every triangle
-    pair; a large polygon is tested only near the other panel's plane.
+    boxes tested, before the exact test. With no clearance, a triangle that reaches
+    the other's plane without straddling it or lying in it is dropped too (see
+    `_may_meet`). Every pair dropped is one the exact test rejects (a triangle beyond
+    ``m`` of a plane neither crosses the panel in it nor comes within the clearance),
+    so the answer is that of testing every triangle pair; a large polygon is tested
+    only near the other panel's plane. Panels not flat to `PLANAR` prune nothing.
 
     Parameters
     ----------
