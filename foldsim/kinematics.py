@@ -46,16 +46,16 @@ def face_poses(mech, angles):
     skew[:, 0, 1], skew[:, 0, 2], skew[:, 1, 2] = -u[:, 2], u[:, 1], -u[:, 0]
     skew -= skew.transpose(0, 2, 1)
     outer = u[:, :, None] * u[:, None, :]
-    # R = u u^T + cos(angle) (I - u u^T) + sin(angle) [u]x: one small matrix product
-    # per hinge, coefficients (1, cos, sin) against the three matrices, which also
-    # gives R a for the translation.
-    basis = np.stack([outer, np.eye(3) - outer, skew], axis=1)
-    basis = np.concatenate([basis.reshape(-1, 3, 9), (basis @ a[:, None, :, None]).reshape(-1, 3, 3)], axis=2)
-    coef = np.stack([np.ones(angles.T.shape), np.cos(angles.T), np.sin(angles.T)], axis=2)
-    both = coef @ basis
+    # R = u u^T + cos(angle) (I - u u^T) + sin(angle) [u]x, and R a from the same
+    # three terms; elementwise, so each drive value's poses do not depend on which
+    # others are computed with it.
+    c, s = np.cos(angles.T)[..., None], np.sin(angles.T)[..., None]
+    across = np.eye(3) - outer
     rot = np.empty((len(u), n_t, 3, 4))
-    rot[..., :3] = both[..., :9].reshape(len(u), n_t, 3, 3)
-    rot[..., 3] = a[:, None] - both[..., 9:]
+    rot[..., :3] = (outer.reshape(-1, 1, 9) + c * across.reshape(-1, 1, 9)
+                    + s * skew.reshape(-1, 1, 9)).reshape(len(u), n_t, 3, 3)
+    rot[..., 3] = a[:, None] - ((outer @ a[..., None])[..., 0][:, None] + c * (across @ a[..., None])[..., 0][:, None]
+                                + s * (skew @ a[..., None])[..., 0][:, None])
     # Face-major while walking the tree, so each level gathers whole rows.
     work = np.empty((mech.n_faces, n_t, 3, 4))
     work[mech.root] = np.eye(4)[:3]
