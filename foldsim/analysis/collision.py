@@ -31,9 +31,10 @@ t). `reference` keeps the earlier, slower implementation that the tests compare
 against.
 """
 
+import weakref
+
 import numpy as np
 
-from ..geometry import transform_points
 from ..tolerances import DEFAULT
 from . import broadphase, narrowphase, spatialhash
 from .narrowphase import pair_state
@@ -140,11 +141,13 @@ def colliding_pairs(mech, poses, clearance=0.0, tol=DEFAULT, pan=None):
     pairs = pairs[~_in_sorted(pairs[:, 0] * n + pairs[:, 1], pan.skip_keys)[0]]
     if not len(pairs):
         return np.zeros((0, 2), dtype=int)
-    normal, offset, planar = _face_planes(mech, pan, poses)
+    flat = _flat_frame(mech, pan)
+    sizes, first, planar = flat["sizes"], flat["first"], flat["planar"]
+    turn = poses[:, :3, :3]
+    normal = np.einsum("fij,fj->fi", turn, flat["normal"])
+    offset = np.einsum("ij,ij->i", normal, np.einsum("fij,fj->fi", turn, pan.centre) + poses[:, :3, 3])
     strict = clearance == 0
-    sizes = np.array([len(p) for p in mech.flat_faces])
-    first = np.concatenate([[0], np.cumsum(sizes)[:-1]])
-    points = transform_points(poses[np.repeat(np.arange(n), sizes)], np.concatenate(mech.flat_faces))
+    points = np.einsum("kij,kj->ki", turn[flat["owner"]], flat["points"]) + poses[flat["owner"], :3, 3]
     small = np.where(sizes[pairs[:, 0]] <= sizes[pairs[:, 1]], 0, 1)
     for flip in (0, 1):
         side = small ^ flip
@@ -223,25 +226,38 @@ PLANAR = 1e-12
 """Flatness (relative to the model's size) a panel needs for its plane to prune pairs."""
 
 
-def _face_planes(mech, pan, poses):
-    """Unit normals (F, 3), offsets (F,) and flatness flags (F,) of the posed panels' planes.
+_FLAT = {}
+"""`_flat_frame` results by ``id(pan)`` for the last few Panels, each with a weak reference to its Panels."""
 
-    The plane is ``n . x = offset``: the normal is the sum of the face's flat-frame
-    triangle normals (its area vector), turned by the pose, and the plane passes
-    through the posed sphere centre (the vertex centroid). A face whose triangle
-    corners stray more than `PLANAR` times the model's size from that plane (an
-    input polygon that is only nearly planar) is not flat enough: its triangles'
-    own planes may tilt away from it, so its plane prunes nothing.
+
+def _flat_frame(mech, pan):
+    """What `colliding_pairs` needs of the flat frame, computed once per Panels.
+
+    Returns a dict: ``sizes`` (F,) vertex counts, ``first`` (F,) each face's first
+    vertex in ``points`` (V, 3), the flat vertices, ``owner`` (V,) their faces,
+    ``normal`` (F, 3) unit normals (the sum of the face's triangle normals, its area
+    vector), and ``planar`` (F,): the face's triangle corners lie within `PLANAR`
+    times the model's size of the plane through its vertex centroid. A face that is
+    only nearly planar may have triangles whose own planes tilt away from that
+    plane, so its plane prunes nothing.
     """
+    entry = _FLAT.get(id(pan))
+    if entry is not None and entry[0]() is pan:
+        return entry[1]
     tri = pan.tri_points
     area = np.cross(tri[:, 1] - tri[:, 0], tri[:, 2] - tri[:, 0])
-    flat = np.add.reduceat(area, pan.start)
-    flat /= np.linalg.norm(flat, axis=1, keepdims=True)
-    stray = np.abs(np.einsum("kvj,kj->kv", tri - pan.centre[pan.tri_face][:, None], flat[pan.tri_face]))
-    planar = np.maximum.reduceat(stray.max(axis=1), pan.start) <= PLANAR * mech.size
-    normal = np.einsum("fij,fj->fi", poses[:, :3, :3], flat)
-    centre = np.einsum("fij,fj->fi", poses[:, :3, :3], pan.centre) + poses[:, :3, 3]
-    return normal, np.einsum("ij,ij->i", normal, centre), planar
+    normal = np.add.reduceat(area, pan.start)
+    normal /= np.linalg.norm(normal, axis=1, keepdims=True)
+    stray = np.abs(np.einsum("kvj,kj->kv", tri - pan.centre[pan.tri_face][:, None], normal[pan.tri_face]))
+    sizes = np.array([len(p) for p in mech.flat_faces])
+    out = {"sizes": sizes, "first": np.concatenate([[0], np.cumsum(sizes)[:-1]]),
+           "points": np.concatenate(mech.flat_faces), "owner": np.repeat(np.arange(mech.n_faces), sizes),
+           "normal": normal,
+           "planar": np.maximum.reduceat(stray.max(axis=1), pan.start) <= PLANAR * mech.size}
+    if len(_FLAT) >= 8:
+        _FLAT.clear()
+    _FLAT[id(pan)] = (weakref.ref(pan), out)
+    return out
 
 
 def flat_overlaps(mech, tol=DEFAULT, pan=None):
