@@ -28,11 +28,14 @@ def newell_normals(polygons):
     >>> newell_normals([square]).tolist()
     [[0.0, 0.0, 4.0]]
     """
-    out = np.empty((len(polygons), 3))
-    for i, p in enumerate(polygons):
-        q = np.roll(p, -1, axis=0)
-        out[i] = 0.5 * cross(p, q).sum(axis=0)
-    return out
+    if not len(polygons):
+        return np.empty((0, 3))
+    sizes = np.array([len(p) for p in polygons])
+    pts = np.concatenate([np.asarray(p, dtype=float).reshape(-1, 3) for p in polygons])
+    first = np.concatenate([[0], np.cumsum(sizes)[:-1]])
+    local = np.arange(len(pts)) - np.repeat(first, sizes)
+    nxt = np.repeat(first, sizes) + (local + 1) % np.repeat(sizes, sizes)
+    return 0.5 * np.add.reduceat(cross(pts, pts[nxt]), first, axis=0)
 
 
 def cross(a, b):

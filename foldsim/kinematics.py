@@ -38,11 +38,113 @@ def face_poses(mech, angles):
     """
     angles = np.asarray(angles, dtype=float)
     n_t = angles.shape[0]
-    poses = np.broadcast_to(np.eye(4), (n_t, mech.n_faces, 4, 4)).copy()
-    rotations = geometry.line_rotations(mech.axes[None], angles)
+    # Rotation x -> R (x - a) + a about each hinge line (Rodrigues' formula, as
+    # `geometry.line_rotations`), kept as its 3 x 4 part [R | a - R a], hinge-major.
+    a = mech.axes[:, 0]
+    u = geometry.unit(mech.axes[:, 1] - a)
+    skew = np.zeros((len(u), 3, 3))
+    skew[:, 0, 1], skew[:, 0, 2], skew[:, 1, 2] = -u[:, 2], u[:, 1], -u[:, 0]
+    skew -= skew.transpose(0, 2, 1)
+    outer = u[:, :, None] * u[:, None, :]
+    # R = u u^T + cos(angle) (I - u u^T) + sin(angle) [u]x, and R a from the same
+    # three terms; elementwise, so each drive value's poses do not depend on which
+    # others are computed with it.
+    c, s = np.cos(angles.T)[..., None], np.sin(angles.T)[..., None]
+    across = np.eye(3) - outer
+    rot = np.empty((len(u), n_t, 3, 4))
+    rot[..., :3] = (outer.reshape(-1, 1, 9) + c * across.reshape(-1, 1, 9)
+                    + s * skew.reshape(-1, 1, 9)).reshape(len(u), n_t, 3, 3)
+    rot[..., 3] = a[:, None] - ((outer @ a[..., None])[..., 0][:, None] + c * (across @ a[..., None])[..., 0][:, None]
+                                + s * (skew @ a[..., None])[..., 0][:, None])
+    # Face-major while walking the tree, so each level gathers whole rows.
+    work = np.empty((mech.n_faces, n_t, 3, 4))
+    work[mech.root] = np.eye(4)[:3]
     for level in mech.levels:
-        poses[:, mech.child[level]] = poses[:, mech.parent[level]] @ rotations[:, level]
+        parent = work[mech.parent[level]]
+        child = parent[..., :3] @ rot[level]
+        child[..., 3] += parent[..., 3]
+        work[mech.child[level]] = child
+    poses = np.empty((n_t, mech.n_faces, 4, 4))
+    poses[:, :, :3] = work.transpose(1, 0, 2, 3)
+    poses[:, :, 3] = (0.0, 0.0, 0.0, 1.0)
     return poses
+
+
+def face_twists(mech, poses, rates):
+    """Velocity of every face per unit t, as a twist in the root's frame.
+
+    Face f's points move with ``v(x) = omega[f] x x + lin[f]`` (x in the root's
+    frame): each hinge h adds ``rates[h] u_h`` to its child's angular velocity and
+    ``rates[h] a_h x u_h`` to its linear part, with ``a_h`` a point of the hinge's
+    line and ``u_h`` its unit direction, both posed by the parent (fold angles
+    linear in t, as `gearing.fold_angles`).
+
+    Parameters
+    ----------
+    mech : Mechanism
+    poses : (T, F, 4, 4) float
+        Face poses at T drive values.
+    rates : (H,) float
+        Fold angle reached per unit t by each hinge (radians).
+
+    Returns
+    -------
+    omega, lin : (T, F, 3) float
+
+    Examples
+    --------
+    >>> from foldsim.model import build_mechanism
+    >>> square = [[0, 0, 0], [1, 0, 0], [1, 1, 0], [0, 1, 0], [2, 0, 0], [2, 1, 0]]
+    >>> m = build_mechanism(square, [[0, 1, 2, 3], [1, 4, 5, 2]], [[0, 1]],
+    ...                     state="flat", closed_angles=[np.pi / 2])
+    >>> omega, lin = face_twists(m, face_poses(m, np.zeros((1, 1))), np.array([2.0]))
+    >>> p = np.array([2.0, 0, 0])  # a corner of face 1, 1 from the hinge line x = 1
+    >>> np.round(np.cross(omega[0, 1], p) + lin[0, 1], 12).tolist()
+    [0.0, 0.0, -2.0]
+    """
+    poses = np.asarray(poses, dtype=float)
+    rates = np.asarray(rates, dtype=float)
+    n_t = poses.shape[0]
+    # Every hinge's contribution at once: its line posed by its parent, times its rate.
+    axis = np.stack([geometry.unit(mech.axes[:, 1] - mech.axes[:, 0]), mech.axes[:, 0]], axis=2)
+    parent = poses[:, mech.parent, :3]
+    moved = parent[..., :3] @ axis
+    u, a = moved[..., 0], moved[..., 1] + parent[..., 3]
+    spin = (rates[None, :, None] * u).transpose(1, 0, 2)
+    shift = (rates[None, :, None] * geometry.cross(a, u)).transpose(1, 0, 2)
+    # Summed down the tree, face-major so each level gathers whole rows.
+    omega = np.zeros((mech.n_faces, n_t, 3))
+    lin = np.zeros((mech.n_faces, n_t, 3))
+    for level in mech.levels:
+        omega[mech.child[level]] = omega[mech.parent[level]] + spin[level]
+        lin[mech.child[level]] = lin[mech.parent[level]] + shift[level]
+    return omega.transpose(1, 0, 2), lin.transpose(1, 0, 2)
+
+
+def turn_profile(mech, rates):
+    """Sums of the hinges' fold rates along every face's chain, split by depth.
+
+    Parameters
+    ----------
+    mech : Mechanism
+    rates : (H,) float
+
+    Returns
+    -------
+    (F, D + 1) float
+        ``out[f, d]``: the sum of ``|rates[h]|`` over the hinges h on f's path from
+        the root more than d steps below the root (as `speed_profile` splits its
+        bound). ``out[a, d] + out[b, d]``, with d the depth of the pair's common
+        ancestor (`common_depth`), bounds how fast faces a and b turn relative to
+        each other.
+    """
+    depth = len(mech.levels)
+    out = np.zeros((mech.n_faces, depth + 1))
+    column = np.arange(depth + 1)
+    for d, level in enumerate(mech.levels, start=1):
+        step = np.abs(np.asarray(rates, float)[level])[:, None] * (column[None, :] < d)
+        out[mech.child[level]] = out[mech.parent[level]] + step
+    return out
 
 
 def poses_at(mech, schedule, t):
@@ -143,6 +245,10 @@ def speed_bounds(mech, rates):
 def common_depth(mech, pairs):
     """Depth of the lowest common ancestor of face pairs in the hinge tree.
 
+    Binary lifting (Bender & Farach-Colton, "The LCA problem revisited", LATIN
+    2000): both faces climb to the same depth, then climb together by halving
+    jumps while their ancestors differ.
+
     Parameters
     ----------
     mech : Mechanism
@@ -153,17 +259,26 @@ def common_depth(mech, pairs):
     (n,) int
         Number of hinges between the root and the pair's common ancestor.
     """
-    chain = np.zeros((mech.n_faces, mech.n_hinges), bool)
-    for level in mech.levels:
-        chain[mech.child[level]] = chain[mech.parent[level]]
-        chain[mech.child[level], level] = True
-    bits = np.packbits(chain, axis=1)
-    ones = np.unpackbits(np.arange(256, dtype=np.uint8)[:, None], axis=1).sum(axis=1)
-    out = np.empty(len(pairs), np.int64)
-    for k in range(0, len(pairs), 4096):
-        sub = pairs[k:k + 4096]
-        out[k:k + 4096] = ones[bits[sub[:, 0]] & bits[sub[:, 1]]].sum(axis=1)
-    return out
+    pairs = np.asarray(pairs, np.int64).reshape(-1, 2)
+    depth = np.zeros(mech.n_faces, np.int64)
+    parent = np.arange(mech.n_faces)
+    for d, level in enumerate(mech.levels, start=1):
+        depth[mech.child[level]] = d
+        parent[mech.child[level]] = mech.parent[level]
+    up = [parent]
+    while (1 << len(up)) <= len(mech.levels):
+        up.append(up[-1][up[-1]])
+    a, b = pairs[:, 0].copy(), pairs[:, 1].copy()
+    swap = depth[a] < depth[b]
+    a[swap], b[swap] = b[swap], a[swap]
+    lift = depth[a] - depth[b]
+    for k, jump in enumerate(up):
+        move = (lift >> k) & 1 == 1
+        a[move] = jump[a[move]]
+    for jump in reversed(up):
+        differ = jump[a] != jump[b]
+        a[differ], b[differ] = jump[a[differ]], jump[b[differ]]
+    return np.where(a == b, depth[a], depth[a] - 1)
 
 
 def relative_speed_bounds(mech, rates, pairs):

@@ -319,7 +319,7 @@ def build_mechanism(vertices, faces, hinges, root=0, drive=0, couplings=(), stat
     # Directed hinge edge as it runs in the parent face.
     axis_index = np.array([d if parent[i] == hinge_faces[i][0] else d[::-1] for i, d in enumerate(directed)])
     if state == "closed":
-        angles, flat_faces, axes = _unfold(vertices, faces, normals, parent, child, order, face_hinge, axis_index)
+        angles, flat_faces, axes = _unfold(vertices, faces, normals, parent, child, levels, face_hinge, axis_index)
     elif state == "flat":
         if closed_angles is None:
             raise ModelError("hinges[0]: closed_angle_deg is required when state is flat")
@@ -352,22 +352,22 @@ def build_mechanism(vertices, faces, hinges, root=0, drive=0, couplings=(), stat
     return mech
 
 
-def _unfold(vertices, faces, normals, parent, child, order, face_hinge, axis_index):
-    """Closing angles, flat face positions and flat axes from a closed shape."""
+def _unfold(vertices, faces, normals, parent, child, levels, face_hinge, axis_index):
+    """Closing angles, flat face positions and flat axes from a closed shape.
+
+    Batched over the hinges of each depth level of the tree, root first.
+    """
     n_hinges = len(parent)
-    angles = np.zeros(n_hinges)
-    unfold = [None] * len(faces)
+    lines = vertices[axis_index].reshape(n_hinges, 2, 3)
+    angles = np.asarray(geometry.signed_angle(normals[parent], normals[child], lines[:, 1] - lines[:, 0]),
+                        float).reshape(n_hinges)
+    rotations = geometry.line_rotations(lines, -angles)
+    unfold = np.broadcast_to(np.eye(4), (len(faces), 4, 4)).copy()
     axes = np.zeros((n_hinges, 2, 3))
-    for f in order:
-        h = face_hinge[f]
-        if h < 0:
-            unfold[f] = np.eye(4)
-            continue
-        line = vertices[axis_index[h]]
-        angles[h] = geometry.signed_angle(normals[parent[h]], normals[f], line[1] - line[0])
-        up = unfold[parent[h]]
-        unfold[f] = up @ geometry.line_rotations(line, -angles[h])
-        axes[h] = geometry.transform_points(up, line)
+    for level in levels:
+        up = unfold[parent[level]]
+        unfold[child[level]] = up @ rotations[level]
+        axes[level] = geometry.transform_points(up[:, None], lines[level])
     flat_faces = tuple(geometry.transform_points(unfold[f], vertices[face]) for f, face in enumerate(faces))
     return angles, flat_faces, axes
 

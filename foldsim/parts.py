@@ -55,15 +55,22 @@ def _closed_normals(mech):
     return closed, normals
 
 
-def _cut_angle(mech, closed, normals, f, k, g):
-    """Fold angle between face f and face g across f's edge k when closed.
+def _cut_angles(mech, closed, normals, cut):
+    """Fold angle between face f and face g across f's edge k when closed, per (f, k) -> g.
 
     Measured like a hinge's: right-handed about the edge as it runs in f, from f's
     normal to g's, so it is the same seen from either face.
     """
-    pts = mech.flat_faces[f]
-    ends = geometry.transform_points(closed[f], pts[[k, (k + 1) % len(pts)]])
-    return float(geometry.signed_angle(normals[f], normals[g], ends[1] - ends[0]))
+    if not cut:
+        return {}
+    keys = list(cut)
+    f = np.array([fk[0] for fk in keys])
+    g = np.array([cut[fk] for fk in keys])
+    ends = np.array([[mech.flat_faces[a][k], mech.flat_faces[a][(k + 1) % len(mech.flat_faces[a])]]
+                     for a, k in keys])
+    posed = geometry.transform_points(closed[f][:, None], ends)
+    angles = geometry.signed_angle(normals[f], normals[g], posed[:, 1] - posed[:, 0])
+    return dict(zip(keys, angles.tolist()))
 
 
 def _edge_features(mech, tol):
@@ -77,6 +84,7 @@ def _edge_features(mech, tol):
     """
     cut = _cut_edges(mech)
     closed, normals = _closed_normals(mech)
+    cut_angle = _cut_angles(mech, closed, normals, cut)
     features = []
     edge_of = {}
     for h in range(mech.n_hinges):
@@ -102,7 +110,7 @@ def _edge_features(mech, tol):
                 role = "parent" if mech.child[h] == f else "child"
                 angle = float(mech.closed_angles[h])
             elif (f, k) in cut:
-                role, angle = "cut", _cut_angle(mech, closed, normals, f, k, cut[(f, k)])
+                role, angle = "cut", cut_angle[(f, k)]
             else:
                 role, angle = "free", None
             row.append((role, angle, gears.get((f, k), [])))
@@ -115,33 +123,57 @@ def _q(value, step):
     return None if value is None else round(value / step)
 
 
-def _sequence(pts, normal, features, forward, size, grid):
-    """Token sequence of one face walked counter-clockwise (``forward``) or backwards.
+def _shape(pts, normal):
+    """Interior angle at every corner and length of every edge (n,) of one face."""
+    incoming, outgoing = pts - np.roll(pts, 1, axis=0), np.roll(pts, -1, axis=0) - pts
+    interior = np.pi - geometry.signed_angle(incoming, outgoing, np.broadcast_to(normal, pts.shape))
+    return interior, np.linalg.norm(outgoing, axis=1)
 
-    ``pts`` (n, 3) are the face's vertices, ``normal`` (3,) its outward normal.
+
+def _shapes(polygons, normals):
+    """`_shape` of every polygon at once: lists of interior angles and edge lengths."""
+    sizes = np.array([len(p) for p in polygons])
+    pts = np.concatenate(polygons)
+    start = np.repeat(np.concatenate([[0], np.cumsum(sizes)[:-1]]), sizes)
+    local = np.arange(len(pts)) - start
+    n = np.repeat(sizes, sizes)
+    prev, nxt = start + (local - 1) % n, start + (local + 1) % n
+    incoming, outgoing = pts - pts[prev], pts[nxt] - pts
+    face_normal = np.repeat(np.asarray(normals, float), sizes, axis=0)
+    interior = (np.pi - geometry.signed_angle(incoming, outgoing, face_normal)).tolist()
+    lengths = np.linalg.norm(outgoing, axis=1).tolist()
+    bounds = np.concatenate([[0], np.cumsum(sizes)]).tolist()
+    return [(interior[s:e], lengths[s:e]) for s, e in zip(bounds[:-1], bounds[1:])]
+
+
+def _sequence(pts, normal, features, forward, size, grid, shape=None):
+    """Token sequence of one face walked forwards or backwards (the mirror image).
+
+    ``pts`` (n, 3) are the face's vertices, ``normal`` (3,) its outward normal;
+    ``shape``, optional, its `_shape` (interior angles and edge lengths).
     """
     n = len(pts)
     order = list(range(n)) if forward else list(range(n - 1, -1, -1))
     position = {k: p for p, k in enumerate(order)}
-    # Interior angle at every corner: pi minus the turn from the edge in to the edge out.
-    incoming, outgoing = pts - np.roll(pts, 1, axis=0), np.roll(pts, -1, axis=0) - pts
-    interior = np.pi - geometry.signed_angle(incoming, outgoing, np.broadcast_to(normal, pts.shape))
-    lengths = np.linalg.norm(outgoing, axis=1)
+    interior, lengths = _shape(pts, normal) if shape is None else shape
     tokens = []
     for p, k in enumerate(order):
-        a, b = pts[k], pts[(k + 1) % n]
         corner = k if forward else (k + 1) % n  # the corner before this edge in walking order
         tokens.append(repr(("corner", _q(float(interior[corner]), grid))))
         role, angle, gears = features[k]
-        start, end = (a, b) if forward else (b, a)
-        along = (end - start) / np.linalg.norm(end - start)
-        items = sorted(repr((kind, _q(factor, grid * max(1.0, abs(factor))),
-                             _q(shape / size if kind == "spur" else shape, grid), carrier,
-                             None if partner is None else (position[partner] - p) % n,
-                             None if apex is None else _q(np.dot(apex - start, along) / size, grid)))
-                       for kind, factor, shape, carrier, partner, apex in gears)
+        items = ()
+        if gears:
+            a, b = pts[k], pts[(k + 1) % n]
+            start, end = (a, b) if forward else (b, a)
+            along = (end - start) / np.linalg.norm(end - start)
+            items = tuple(sorted(
+                repr((kind, _q(factor, grid * max(1.0, abs(factor))),
+                      _q(form / size if kind == "spur" else form, grid), carrier,
+                      None if partner is None else (position[partner] - p) % n,
+                      None if apex is None else _q(np.dot(apex - start, along) / size, grid)))
+                for kind, factor, form, carrier, partner, apex in gears))
         tokens.append(repr(("edge", _q(float(lengths[k]) / size, grid), role, _q(angle, grid),
-                            tuple(items))))
+                            items)))
     return tokens
 
 
@@ -150,7 +182,7 @@ def _canonical(tokens):
     return min(tuple(tokens[s:] + tokens[:s]) for s in range(0, len(tokens), 2))
 
 
-def face_signature(mech, f, mirror=True, features=None, tol=DEFAULT):
+def face_signature(mech, f, mirror=True, features=None, tol=DEFAULT, normal=None, shape=None):
     """Canonical description of face f as a part (equal for faces of one type).
 
     Parameters
@@ -162,6 +194,8 @@ def face_signature(mech, f, mirror=True, features=None, tol=DEFAULT):
     features : list, optional
         Precomputed edge features (internal).
     tol : Tolerances
+    normal, shape : optional
+        Precomputed normal and `_shape` of the face (internal).
 
     Returns
     -------
@@ -169,10 +203,11 @@ def face_signature(mech, f, mirror=True, features=None, tol=DEFAULT):
     """
     features = _edge_features(mech, tol) if features is None else features
     pts = mech.flat_faces[f]
-    normal = geometry.newell_normals([pts])[0]
+    normal = geometry.newell_normals([pts])[0] if normal is None else normal
+    shape = _shape(pts, normal) if shape is None else shape
     # Walking the loop backwards describes the mirror image.
     walks = (True, False) if mirror else (True,)
-    return min(_canonical(_sequence(pts, normal, features[f], forward, mech.size, tol.planar))
+    return min(_canonical(_sequence(pts, normal, features[f], forward, mech.size, tol.planar, shape))
                for forward in walks)
 
 
@@ -203,7 +238,9 @@ def part_types(mech, mirror=True, tol=DEFAULT):
     [[0, 2], [1]]
     """
     features = _edge_features(mech, tol)
+    normals = geometry.newell_normals(mech.flat_faces)
+    shapes = _shapes(mech.flat_faces, normals)
     groups = {}
     for f in range(mech.n_faces):
-        groups.setdefault(face_signature(mech, f, mirror, features, tol), []).append(f)
+        groups.setdefault(face_signature(mech, f, mirror, features, tol, normals[f], shapes[f]), []).append(f)
     return sorted(groups.values())

@@ -183,6 +183,63 @@ def test_colliding_pairs_on_random_poses(seed):
                               reference.colliding_pairs(mech, poses, clearance=clearance, pan=pan))
 
 
+def brute_force_colliding(mech, pan, poses, eps, clearance=0.0):
+    """Face pairs colliding at one pose set: every triangle pair of every unskipped face pair tested.
+
+    Brute force (common practice) over the reference kernels of `triangles`
+    (crossing overlap beyond the contact tolerance; with a clearance, distance below
+    it for pairs not in contact by design).
+    """
+    tri = np.stack([geometry_posed(poses[f], pan.tri_points[k]) for k, f in enumerate(pan.tri_face)])
+    i, j = np.triu_indices(len(tri), 1)
+    fa, fb = pan.tri_face[i], pan.tri_face[j]
+    keys = fa * mech.n_faces + fb
+    keep = (fa != fb) & ~np.isin(keys, pan.skip_keys)
+    i, j, keys = i[keep], j[keep], keys[keep]
+    hit = triangles.crossing_overlap(tri[i], tri[j], eps) > eps
+    if clearance > 0:
+        by_design = np.isin(keys, pan.touch_keys) | np.isin(keys, pan.pivot_keys)
+        hit |= ~by_design & (triangles.triangle_distance(tri[i], tri[j]) < clearance)
+    hit_keys = np.unique(keys[hit])
+    return np.column_stack([hit_keys // mech.n_faces, hit_keys % mech.n_faces])
+
+
+def geometry_posed(pose, points):
+    return points @ pose[:3, :3].T + pose[:3, 3]
+
+
+@pytest.mark.parametrize("shape, jitter", [("prism:60", 0.0), ("antiprism:30", 0.0), ("prism:24", 1e-8)])
+def test_plane_pruning_keeps_every_colliding_pair_of_large_polygons(shape, jitter):
+    # References: brute force over every triangle pair (common practice) with the
+    # reference kernels of analysis.triangles, and python-fcl for the bound. The
+    # caps are large polygons whose triangles' boxes overlap many side panels, the
+    # case the face-plane and triangle-plane pruning of colliding_pairs is for. With
+    # ``jitter`` the vertices move off their faces' planes by up to that share of the
+    # size (within the model tolerance, beyond collision.PLANAR), so those planes
+    # must not prune.
+    solid = solids.builtin(shape)
+    if jitter:
+        vertices = np.asarray(solid.vertices, float)
+        size = float(np.linalg.norm(np.ptp(vertices, axis=0)))
+        moved_solid = type("Solid", (), {})()
+        moved_solid.vertices = vertices + np.random.default_rng(2).uniform(-1, 1, vertices.shape) * jitter * size
+        moved_solid.faces = solid.faces
+        solid = moved_solid
+    mech = mechanism_from_solid(solid, couplings="none")
+    pan = collision.panels(mech)
+    eps = DEFAULT.contact * mech.size
+    crossing = 0
+    for poses in over_folded_poses(mech, [0.3, 0.8, 1.0, 1.1, 1.25]):
+        ours = collision.colliding_pairs(mech, poses, pan=pan)
+        np.testing.assert_array_equal(ours, brute_force_colliding(mech, pan, poses, eps).reshape(-1, 2))
+        assert {tuple(p) for p in ours.tolist()} <= fcl_pairs(mech, poses)
+        crossing += len(ours)
+        clearance = 0.02 * mech.size
+        np.testing.assert_array_equal(collision.colliding_pairs(mech, poses, clearance=clearance, pan=pan),
+                                      brute_force_colliding(mech, pan, poses, eps, clearance).reshape(-1, 2))
+    assert crossing > 0  # the over-folded poses really cross
+
+
 # ---------------------------------------------------------------- the sweep
 
 
@@ -225,6 +282,53 @@ def test_sweep_matches_reference_with_clearance():
     for clearance in (0.02 * mech.size, 0.2 * mech.size):
         same_intervals(collision.collision_intervals(mech, schedule, clearance=clearance),
                        reference.collision_intervals(mech, schedule, clearance=clearance))
+
+
+@pytest.mark.parametrize("shape", ["geodesic:1", "prism:12", "dodecahedron"])
+def test_stretch_rates_bound_the_sampled_separation(shape):
+    # Reference: brute-force sampling (plain numerics) of the exact panel distance
+    # (analysis.triangles.triangle_distance over every triangle pair) at 33 values in
+    # each stretch: it never changes faster than the stretch's rate bound.
+    from foldsim.analysis import sweep
+
+    mech = mechanism_from_solid(solids.builtin(shape), couplings="chain")
+    schedule = fold_schedule(mech)
+    pan = collision.panels(mech)
+    ev = sweep.Evaluator(mech, schedule, pan, 0.0, DEFAULT)
+    rng = np.random.default_rng(5)
+    # Pairs that touch by design (they close in near the ends of the motion) and random ones.
+    touch = rng.choice(pan.touch_keys, min(20, len(pan.touch_keys)), replace=False)
+    pairs = np.concatenate([np.column_stack([touch // mech.n_faces, touch % mech.n_faces]),
+                            np.sort(rng.integers(0, mech.n_faces, (20, 2)), axis=1)])
+    keys = pairs[:, 0] * mech.n_faces + pairs[:, 1]
+    pairs = pairs[(pairs[:, 0] < pairs[:, 1]) & ~np.isin(keys, pan.skip_keys) & ~np.isin(keys, pan.pivot_keys)]
+    bound, pivot = ev.rates(pairs)
+    turn = ev.turns(pairs)
+    reach = pan.radius[pairs].max(axis=1)
+    tighter = 0
+    for t0, t1 in ((0.0, 1 / 64), (0.5, 0.5 + 1 / 128), (1 - 1 / 256, 1.0), (0.25, 0.5)):
+        ts = np.linspace(t0, t1, 33)
+        poses = face_poses(mech, fold_angles(schedule, ts))
+        omega, lin = ev.twists(poses[[0, -1]])
+        ends = []
+        for k in (0, 1):
+            frame = np.full(len(pairs), k)
+            centre = np.einsum("nsij,nsj->nsi", poses[[0, -1]][frame[:, None], pairs, :3, :3],
+                               pan.centre[pairs]) + poses[[0, -1]][frame[:, None], pairs, :3, 3]
+            ends.append(ev.spin(omega, lin, frame, pairs, centre, pivot))
+        rate = sweep._stretch_rates(bound, turn, reach, pivot, ends[0][0], ends[1][0], ends[0][1], ends[1][1],
+                                    np.full(len(pairs), t1 - t0))
+        tighter += int((rate < 0.5 * bound).sum())
+        for n, (a, b) in enumerate(pairs):
+            ia, ib, _ = collision.triangle_pairs(pan, np.array([[a, b]]))
+            dist = []
+            for pose in poses:
+                ta = pan.tri_points[ia] @ pose[a, :3, :3].T + pose[a, :3, 3]
+                tb = pan.tri_points[ib] @ pose[b, :3, :3].T + pose[b, :3, 3]
+                dist.append(triangles.triangle_distance(ta, tb).min())
+            change = np.abs(np.diff(dist)).max() / (ts[1] - ts[0])
+            assert change <= rate[n] * (1 + 1e-9) + 1e-9 * mech.size
+    assert tighter > 0  # the end twists do tighten the bound somewhere
 
 
 @pytest.mark.parametrize("shape", ["cube", "prism:5", "prism:6", "antiprism:4", "cuboctahedron"])

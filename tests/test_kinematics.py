@@ -282,3 +282,46 @@ def test_relative_speed_bounds_hold_for_vertex_distances():
     hops = nx.single_source_shortest_path_length(tree, mech.root)
     pc = np.column_stack([mech.parent, mech.child])
     np.testing.assert_array_equal(common_depth(mech, pc), [hops[p] for p in mech.parent])
+
+
+@pytest.mark.parametrize("name", sorted(SOLIDS))
+def test_face_twists_are_the_derivative_of_the_poses(name):
+    # Reference: central finite differences of face_poses (plain numerics). A
+    # vertex's velocity is omega x p + lin at its posed position p.
+    from foldsim.kinematics import face_twists
+
+    mech = mechanism_from_solid(SOLIDS[name](), couplings="chain")
+    rates = fold_schedule(mech).rates
+    t = np.array([-0.7, 0.0, 0.4, 0.95])
+    h = 1e-6
+    omega, lin = face_twists(mech, face_poses(mech, t[:, None] * rates), rates)
+    ahead, behind = face_poses(mech, (t + h)[:, None] * rates), face_poses(mech, (t - h)[:, None] * rates)
+    here = face_poses(mech, t[:, None] * rates)
+    for f, p in enumerate(mech.flat_faces):
+        at = np.einsum("tij,kj->tki", here[:, f, :3, :3], p) + here[:, f, None, :3, 3]
+        fwd = np.einsum("tij,kj->tki", ahead[:, f, :3, :3], p) + ahead[:, f, None, :3, 3]
+        back = np.einsum("tij,kj->tki", behind[:, f, :3, :3], p) + behind[:, f, None, :3, 3]
+        numeric = (fwd - back) / (2 * h)
+        exact = np.cross(omega[:, f, None], at) + lin[:, f, None]
+        np.testing.assert_allclose(exact, numeric, atol=1e-6 * mech.size * (1 + np.abs(rates).sum()))
+
+
+def test_turn_profile_is_the_sum_of_path_rates():
+    # Reference: networkx shortest paths in the hinge tree; the hinges on the path
+    # between two faces are the edges of that path.
+    import networkx as nx
+    from foldsim.kinematics import common_depth, turn_profile
+
+    mech = mechanism_from_solid(SOLIDS[sorted(SOLIDS)[0]](), couplings="chain")
+    rates = fold_schedule(mech).rates
+    tree = nx.Graph()
+    for h, (a, b) in enumerate(mech.hinge_faces.tolist()):
+        tree.add_edge(a, b, hinge=h)
+    turn = turn_profile(mech, rates)
+    rng = np.random.default_rng(3)
+    pairs = np.array([p for p in rng.integers(0, mech.n_faces, (40, 2)) if p[0] != p[1]])
+    depth = common_depth(mech, pairs)
+    for (a, b), d in zip(pairs, depth):
+        path = nx.shortest_path(tree, a, b)
+        expected = sum(abs(rates[tree.edges[u, v]["hinge"]]) for u, v in zip(path, path[1:]))
+        np.testing.assert_allclose(turn[a, d] + turn[b, d], expected, rtol=1e-12)

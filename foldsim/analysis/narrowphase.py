@@ -24,6 +24,9 @@ from .panels import _in_sorted, _keys, triangle_pairs
 CHUNK = 4096
 """Triangle pairs per block of work."""
 
+PIVOT_APART = 1e-6
+"""Wedge separation (radians) beyond which a pivoting pair is known apart without triangle tests."""
+
 
 def _dot(u, v):
     return u[0] * v[0] + u[1] * v[1] + u[2] * v[2]
@@ -553,46 +556,6 @@ def _cone_separation(ga, gb):
 def pair_state(mech, pan, poses, frame, pairs, clearance, eps, separation=True, need=None):
     """Separation and collision flag of face pairs (the fast kernels of this module).
 
-    Items that pivot about a shared point and both have a corner there
-    (``pan.pivot_cones``) first take the angle between their corner cones
-    (`_cone_separation`): convex items lie inside their cones, so a positive
-    angle rules out contact; where it already reaches ``need`` no triangle is
-    tested. (Without a clearance only: the cones say nothing about distances.)
-    See `_pair_state` for the parameters and the result.
-    """
-    n = len(pairs)
-    if pan.pivot_cones is None or clearance > 0 or not separation or not n:
-        return _pair_state(mech, pan, poses, frame, pairs, clearance, eps, separation, need)
-    is_pivot, pos = _in_sorted(_keys(pairs, pan.n), pan.pivot_keys)
-    rows = np.flatnonzero(is_pivot)
-    cones = pan.pivot_cones[pos[rows]]
-    ok = ~np.isnan(cones[:, :, 0, 0]).any(axis=1)
-    rows, cones = rows[ok], cones[ok]
-    angle = np.zeros(n)
-    if len(rows):
-        rot_a = poses[frame[rows], pairs[rows, 0], :3, :3]
-        rot_b = poses[frame[rows], pairs[rows, 1], :3, :3]
-        angle[rows] = _cone_separation(np.einsum("nij,ngj->ngi", rot_a, cones[:, 0]),
-                                       np.einsum("nij,ngj->ngi", rot_b, cones[:, 1]))
-    settled = angle > 0
-    if need is not None:
-        settled &= angle >= np.asarray(need, float)
-    else:
-        settled[:] = False
-    sep, hit = np.empty(n), np.zeros(n, bool)
-    sep[settled] = angle[settled]
-    rest = np.flatnonzero(~settled)
-    if len(rest):
-        sub_sep, sub_hit = _pair_state(mech, pan, poses, frame[rest], pairs[rest], clearance, eps, separation,
-                                       None if need is None else np.asarray(need, float)[rest])
-        sep[rest] = np.where(sub_hit, 0.0, np.maximum(sub_sep, angle[rest]))
-        hit[rest] = sub_hit
-    return sep, hit
-
-
-def _pair_state(mech, pan, poses, frame, pairs, clearance, eps, separation=True, need=None):
-    """Separation and collision flag of face pairs (the fast kernels of this module).
-
     Parameters
     ----------
     mech : Mechanism
@@ -616,9 +579,69 @@ def _pair_state(mech, pan, poses, frame, pairs, clearance, eps, separation=True,
     -------
     sep : (n,) float
         Distance (less the clearance), or, for pairs pivoting about a shared point,
-        the wedge angle (thin panels) or the distance over the reach (items with
-        ``pivot_reach``); 0 where colliding.
+        the wedge angle (thin panels), or the corner cones' angle or the distance
+        over the reach (items, ``pan.pivot_reach``); 0 where colliding.
     hit : (n,) bool
+
+    Notes
+    -----
+    Thin panels: a pivoting pair's panels are convex and lie in the wedges their
+    two edges span at the shared point; wedges more than `PIVOT_APART` apart meet
+    only at that point, so such a pair cannot collide and its triangles are not
+    tested. Items (solids) that pivot and both have a corner at the shared point
+    (``pan.pivot_cones``) take the angle between their corner cones
+    (`_cone_separation`) in the same way: convex items lie inside their cones, so a
+    positive angle rules out contact, and where it already reaches ``need`` no
+    triangle is tested (without a clearance only: the cones say nothing about
+    distances).
+    """
+    pairs = np.asarray(pairs, np.int64).reshape(-1, 2)
+    frame = np.asarray(frame)
+    n = len(pairs)
+    is_pivot, pos = _in_sorted(_keys(pairs, pan.n), pan.pivot_keys)
+    measure = separation or clearance > 0
+    angle = np.zeros(n)
+    if pan.pivot_reach is None:
+        # Thin panels: the wedges.
+        angle = np.full(n, np.inf)
+        if is_pivot.any():
+            rows = np.flatnonzero(is_pivot)
+            dirs = pan.pivot_dirs[pos[rows]]
+            rot_a = poses[frame[rows], pairs[rows, 0], :3, :3]
+            rot_b = poses[frame[rows], pairs[rows, 1], :3, :3]
+            wa = unit(np.einsum("nij,nkj->nki", rot_a, dirs[:, 0]))
+            wb = unit(np.einsum("nij,nkj->nki", rot_b, dirs[:, 1]))
+            angle[rows] = _wedge_separation(wa, wb)
+        apart = is_pivot & (angle > PIVOT_APART)
+    elif pan.pivot_cones is not None and clearance == 0 and separation and is_pivot.any():
+        rows = np.flatnonzero(is_pivot)
+        cones = pan.pivot_cones[pos[rows]]
+        ok = ~np.isnan(cones[:, :, 0, 0]).any(axis=1)
+        rows, cones = rows[ok], cones[ok]
+        if len(rows):
+            rot_a = poses[frame[rows], pairs[rows, 0], :3, :3]
+            rot_b = poses[frame[rows], pairs[rows, 1], :3, :3]
+            angle[rows] = _cone_separation(np.einsum("nij,ngj->ngi", rot_a, cones[:, 0]),
+                                           np.einsum("nij,ngj->ngi", rot_b, cones[:, 1]))
+        apart = (angle > 0) & (angle >= (np.asarray(need, float) if need is not None else np.inf))
+    else:
+        apart = np.zeros(n, bool)
+    if not apart.any():
+        return _pair_state(mech, pan, poses, frame, pairs, clearance, eps, separation, need, angle)
+    sep = np.where(apart, angle, np.inf) if measure else np.full(n, np.inf)
+    hit = np.zeros(n, bool)
+    rest = np.flatnonzero(~apart)
+    if len(rest):
+        sep[rest], hit[rest] = _pair_state(mech, pan, poses, frame[rest], pairs[rest], clearance, eps, separation,
+                                           None if need is None else np.asarray(need, float)[rest], angle[rest])
+    return sep, hit
+
+
+def _pair_state(mech, pan, poses, frame, pairs, clearance, eps, separation, need, angle):
+    """`pair_state` with the pivoting pairs' angles ``angle`` (n,) given.
+
+    Thin panels: the wedge separations. Items: the corner cones' angles (0 where
+    unknown), a lower bound on the separation besides the distance over the reach.
     """
     keys = _keys(pairs, pan.n)
     is_pivot, pos = _in_sorted(keys, pan.pivot_keys)
@@ -637,14 +660,14 @@ def _pair_state(mech, pan, poses, frame, pairs, clearance, eps, separation=True,
             reach = np.where(is_pivot, pan.pivot_reach[pos] if len(pan.pivot_reach) else 1.0, 1.0)
             if need is not None:
                 limit = np.where(is_pivot, np.asarray(need, float) * reach + clearance, limit)
-        else:
+        elif pan.pivot_reach is None:
             limit[is_pivot] = 0.0
         hit, sep = _many_triangles(pan, poses, frame, pairs, eps, measure, limit)
         if not measure:
             return np.full(len(pairs), np.inf), hit
         if reach is not None:
             hit |= is_pivot & (sep < clearance)
-            weighted = np.where(is_pivot, np.maximum(sep - clearance, 0.0) / reach, np.inf)
+            weighted = np.where(is_pivot, np.maximum(np.maximum(sep - clearance, 0.0) / reach, angle), np.inf)
         sep[is_pivot | hit] = np.inf
     else:
         ia, ib, row = triangle_pairs(pan, pairs)
@@ -655,20 +678,18 @@ def _pair_state(mech, pan, poses, frame, pairs, clearance, eps, separation=True,
             return sep, hit
         measured = ~is_pivot & ~hit
         sep[measured] = dist[measured]
+        if pan.pivot_reach is not None and is_pivot.any():
+            reach = np.where(is_pivot, pan.pivot_reach[pos] if len(pan.pivot_reach) else 1.0, 1.0)
+            hit |= is_pivot & (dist < clearance)
+            weighted = np.where(is_pivot, np.maximum(np.maximum(dist - clearance, 0.0) / reach, angle), np.inf)
     if clearance > 0:
         touching, _ = _in_sorted(keys, pan.touch_keys)
         hit |= ~touching & ~is_pivot & (sep < clearance)
         sep = np.where(touching | is_pivot, sep, np.maximum(sep - clearance, 0.0))
     if pan.pivot_reach is not None:
-        if is_pivot.any() and measure:
+        if is_pivot.any():
             sep = np.where(is_pivot, weighted, sep)
     elif is_pivot.any():
-        rows = np.flatnonzero(is_pivot)
-        dirs = pan.pivot_dirs[pos[rows]]
-        rot_a = poses[frame[rows], pairs[rows, 0], :3, :3]
-        rot_b = poses[frame[rows], pairs[rows, 1], :3, :3]
-        wa = unit(np.einsum("nij,nkj->nki", rot_a, dirs[:, 0]))
-        wb = unit(np.einsum("nij,nkj->nki", rot_b, dirs[:, 1]))
-        sep[rows] = _wedge_separation(wa, wb)
+        sep[is_pivot] = angle[is_pivot]
     sep[hit] = 0.0
     return sep, hit

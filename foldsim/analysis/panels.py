@@ -112,18 +112,56 @@ def _is_convex(poly, normal):
     return bool((turn > -1e-12 * np.abs(turn).max()).all())
 
 
-def _chains(mech):
-    """(F, H) bool: the hinges on each face's path from the root."""
-    chain = np.zeros((mech.n_faces, mech.n_hinges), bool)
-    for level in mech.levels:
-        chain[mech.child[level]] = chain[mech.parent[level]]
-        chain[mech.child[level], level] = True
-    return chain
-
-
 def _face_starts(mech):
     sizes = np.array([len(p) for p in mech.flat_faces])
     return np.concatenate([[0], np.cumsum(sizes)[:-1]])
+
+
+def _paths_through(mech, fa, fb, point, eps):
+    """Which face pairs' tree paths run only through hinges whose lines pass a point.
+
+    Parameters
+    ----------
+    fa, fb : (n,) int
+        Face pairs (different faces).
+    point : (n, 3) float
+        A flat-frame point per pair.
+    eps : float
+        Distance within which a hinge line passes the point.
+
+    Returns
+    -------
+    ok : (n,) bool
+        Every hinge on the path between fa and fb passes within eps of the point.
+    steps : (rows, hinges)
+        The path's hinges of the pairs that are ok, as two (m,) int arrays.
+    """
+    depth = np.zeros(mech.n_faces, np.int64)
+    for d, level in enumerate(mech.levels, start=1):
+        depth[mech.child[level]] = d
+    up = np.arange(mech.n_faces)
+    up[mech.child] = mech.parent
+    ok = np.ones(len(fa), bool)
+    x, y = np.asarray(fa, np.int64).copy(), np.asarray(fb, np.int64).copy()
+    live = np.flatnonzero(x != y)
+    rows, hinges = [], []
+    while len(live):
+        deeper = np.where(depth[x[live]] >= depth[y[live]], x[live], y[live])
+        h = mech.face_hinge[deeper]
+        u = mech.axes[h, 1] - mech.axes[h, 0]
+        w = point[live] - mech.axes[h, 0]
+        c = np.cross(u, w)
+        ok[live] &= (c * c).sum(axis=1) <= eps * eps * (u * u).sum(axis=1)
+        rows.append(live)
+        hinges.append(h)
+        move_x = depth[x[live]] >= depth[y[live]]
+        x[live[move_x]] = up[x[live[move_x]]]
+        y[live[~move_x]] = up[y[live[~move_x]]]
+        live = live[(x[live] != y[live]) & ok[live]]
+    rows = np.concatenate(rows) if rows else np.zeros(0, np.int64)
+    hinges = np.concatenate(hinges) if hinges else np.zeros(0, np.int64)
+    keep = ok[rows]
+    return ok, (rows[keep].tolist(), hinges[keep].tolist())
 
 
 def panels(mech, tol=DEFAULT):
@@ -154,22 +192,20 @@ def panels(mech, tol=DEFAULT):
         touch.append(_keys(np.column_stack([fa, fb])[fa != fb], n))
     hinged = {tuple(sorted(p)) for p in mech.hinge_faces.tolist()}
     hinged_keys = np.unique(_keys(mech.hinge_faces, n))
-    chain = _chains(mech)
     shared = {}
     ij = cKDTree(flat_pts).query_pairs(eps, output_type="ndarray")
     fa, fb = pt_face[ij[:, 0]], pt_face[ij[:, 1]]
     ij = ij[(fa != fb) & ~_in_sorted(_keys(np.column_stack([fa, fb]), n), hinged_keys)[0]]
-    for i, j in ij.tolist():
-        a, b = pt_face[i], pt_face[j]
-        if a > b:
-            i, j, a, b = j, i, b, a
-        path = chain[a] ^ chain[b]
-        axes = mech.axes[path]
-        u, w = (axes[:, 1] - axes[:, 0]).T, (flat_pts[i] - axes[:, 0]).T
-        d2 = ((u[1] * w[2] - u[2] * w[1]) ** 2 + (u[2] * w[0] - u[0] * w[2]) ** 2
-              + (u[0] * w[1] - u[1] * w[0]) ** 2)
-        if (d2 <= eps * eps * (u * u).sum(axis=0)).all():
-            shared.setdefault((a, b), []).append((pt_local[i], pt_local[j], path))
+    swap = pt_face[ij[:, 0]] > pt_face[ij[:, 1]]
+    ij[swap] = ij[swap, ::-1]
+    ok, steps = _paths_through(mech, pt_face[ij[:, 0]], pt_face[ij[:, 1]], flat_pts[ij[:, 0]], eps)
+    paths = {}
+    for row, h in zip(*steps):
+        paths.setdefault(row, []).append(h)
+    for row in np.flatnonzero(ok).tolist():
+        i, j = ij[row]
+        shared.setdefault((int(pt_face[i]), int(pt_face[j])), []).append(
+            (pt_local[i], pt_local[j], paths.get(row, [])))
     skip = set(hinged)
     pivots = []
     convex = [len(p) == 3 or _is_convex(p, np.cross(p[1] - p[0], p[2] - p[0])) for p in mech.flat_faces]
@@ -184,7 +220,9 @@ def panels(mech, tol=DEFAULT):
         for f, k in ((a, la), (b, lb)):
             poly = mech.flat_faces[f]
             dirs.append([poly[(k + 1) % len(poly)] - poly[k], poly[k - 1] - poly[k]])
-        pivots.append(((a, b), dirs, path))
+        row = np.zeros(mech.n_hinges, bool)
+        row[path] = True
+        pivots.append(((a, b), dirs, row))
     pivots.sort(key=lambda p: p[0][0] * n + p[0][1])
     centre = np.add.reduceat(flat_pts, _face_starts(mech)) / np.bincount(pt_face)[:, None]
     radius = np.maximum.reduceat(np.linalg.norm(flat_pts - centre[pt_face], axis=1), _face_starts(mech))

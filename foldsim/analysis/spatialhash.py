@@ -24,12 +24,12 @@ ROW_BUDGET = 100_000
 
 
 def _cell_size(lo, hi):
-    """One cell edge for all boxes: a high quantile of their largest extents."""
+    """One cell edge for all boxes: the median of their largest extents."""
     extent = (hi - lo).max(axis=-1)
     extent = extent[np.isfinite(extent) & (extent > 0)]
     if not len(extent):
         return 1.0
-    return float(np.quantile(extent, 0.9))
+    return float(np.quantile(extent, 0.5))
 
 
 def _block_pairs(lo, hi, frame, cell, origin):
@@ -54,18 +54,22 @@ def _block_pairs(lo, hi, frame, cell, origin):
     key = ((frame[owner] * dims[0] + cx) * dims[1] + cy) * dims[2] + cz
     order = np.argsort(key, kind="stable")
     key, owner = key[order], owner[order]
+    at = np.stack([cx, cy, cz])[:, order]
     # Pair every entry with the later entries of its cell.
     run_end = np.searchsorted(key, key, side="right")
     per = run_end - np.arange(1, len(key) + 1)
     i = np.repeat(np.arange(len(key)), per)
     j = i + 1 + (np.arange(per.sum()) - np.repeat(np.cumsum(per) - per, per))
     ia, ib = owner[i], owner[j]
-    low = np.maximum(lo[ia], lo[ib])
-    keep = (low <= np.minimum(hi[ia], hi[ib])).all(axis=1)
-    cell_of = np.floor((low - origin) / cell).astype(np.int64)
-    home = ((frame[ia] * dims[0] + cell_of[:, 0]) * dims[1] + cell_of[:, 1]) * dims[2] + cell_of[:, 2]
-    keep &= home == key[i]
-    ia, ib = ia[keep], ib[keep]
+    # Keep a pair only in the cell of its boxes' intersection's lower corner (the
+    # larger of the two first cells on each axis), then test the boxes, one axis at
+    # a time on the pairs still left.
+    for axis in range(3):
+        home = np.maximum(first[ia, axis], first[ib, axis]) == at[axis, i]
+        i, ia, ib = i[home], ia[home], ib[home]
+    for axis in range(3):
+        meet = np.maximum(lo[ia, axis], lo[ib, axis]) <= np.minimum(hi[ia, axis], hi[ib, axis])
+        ia, ib = ia[meet], ib[meet]
     rows = [np.column_stack([ia, ib])]
     if big.any():
         rows.append(_big_pairs(lo, hi, frame, big, cell * COARSE, origin))

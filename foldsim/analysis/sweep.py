@@ -17,6 +17,12 @@ little work it takes to get there:
 - The boxes and the bounding-sphere centres at the grid values are computed once
   and reused by every stretch that ends there; each (grid value, pair) is evaluated
   once, though two stretches share it.
+- L is per stretch: the bound that holds at every t (the reference's), or, where
+  smaller, one from the pairs' relative twists at the stretch's two ends and a bound
+  on how fast that rate can change (`_stretch_rates`); each half of a split stretch
+  takes the smaller of its own and its parent's. Pairs that close in slowly, as
+  pairs touching by design do near the ends of the motion, then leave few stretches
+  open.
 - Distances are lazy: a stretch whose sphere gaps at both ends are positive and add
   up to more than L (t1 - t0) is settled without any triangle test; the exact test
   runs only at the ends of the others, and only where the sphere gap is below the
@@ -29,8 +35,8 @@ little work it takes to get there:
 import numpy as np
 
 from ..gearing import fold_angles
-from ..geometry import transform_points
-from ..kinematics import common_depth, face_poses, speed_profile
+from ..geometry import cross, transform_points
+from ..kinematics import common_depth, face_poses, face_twists, speed_profile, turn_profile
 from ..tolerances import DEFAULT
 from . import spatialhash
 from .narrowphase import pair_state
@@ -60,20 +66,21 @@ class Evaluator:
         self.owner = pan.owner
         self.profile = speed_profile(mech, schedule.rates) if profile is None else profile
         self.speed = self.profile[:, 0]
-        speeds = np.abs(schedule.rates)
-        self.pivot_rate = np.concatenate(
-            [pan.pivot_path[k:k + 1024] @ speeds for k in range(0, len(pan.pivot_path), 1024)]
-            or [np.zeros(0)])
+        self.turn = turn_profile(mech, schedule.rates)
+        # The sum of the fold rates of the hinges between each pivoting pair's faces
+        # (for items, their carrying faces').
+        self.pivot_rate = self.turns(np.column_stack([pan.pivot_keys // self.n, pan.pivot_keys % self.n]))
         self.chunk = max(1, POSE_BUDGET // (16 * max(self.n, mech.n_faces)))
         self.stats = stats if stats is not None else {}
         self.stats.setdefault("t_values", 0)
         self.stats.setdefault("pair_tests", 0)
 
-    def poses(self, t):
-        """(T, F, 4, 4) poses at drive values t (T,)."""
+    def poses(self, t, faces=False):
+        """(T, F, 4, 4) poses of the items at drive values t (T,); with ``faces``, also the faces' poses."""
         self.stats["t_values"] += len(t)
-        poses = face_poses(self.mech, fold_angles(self.schedule, t))
-        return poses if self.owner is None else poses[:, self.owner]
+        at = face_poses(self.mech, fold_angles(self.schedule, t))
+        items = at if self.owner is None else at[:, self.owner]
+        return (items, at) if faces else items
 
     def rates(self, pairs):
         """(n,) bound on d(separation)/dt for face pairs (n, 2)."""
@@ -85,6 +92,51 @@ class Evaluator:
         out = np.where(is_pivot, self.pivot_rate[pos] if len(self.pivot_rate) else 0.0, linear)
         return out[back], is_pivot[back]
 
+    def turns(self, pairs):
+        """(n,) bound on how fast face pairs (n, 2) turn relative to each other, per unit t.
+
+        The sum of the fold rates of the hinges on the tree path between the two
+        faces (`kinematics.turn_profile`).
+        """
+        pairs = np.asarray(pairs, np.int64).reshape(-1, 2)
+        if self.owner is not None:
+            pairs = self.owner[pairs]
+        depth = common_depth(self.mech, pairs)
+        return self.turn[pairs[:, 0], depth] + self.turn[pairs[:, 1], depth]
+
+    def twists(self, faces):
+        """Twists omega, lin (T, F, 3) of the items, from the faces' poses (T, faces, 4, 4).
+
+        `kinematics.face_twists`; an item moves with the face that carries it.
+        """
+        omega, lin = face_twists(self.mech, faces, self.schedule.rates)
+        if self.owner is not None:
+            omega, lin = omega[:, self.owner], lin[:, self.owner]
+        return omega, lin
+
+    def spin(self, omega, lin, frame, pairs, centre, pivot):
+        """How fast each pair's separation changes at one node, and its centres' distance.
+
+        ``omega``, ``lin`` (T, F, 3) are face twists (`twists`), ``frame`` (n,) the
+        node of each pair (n, 2), ``centre`` (n, 2, 3) the two faces' posed sphere
+        centres there. Returns ``speed`` (n,): for a pivoting pair (``pivot``) the
+        relative angular speed ``|w|``, for any other a bound on d(distance)/dt, the
+        largest relative speed ``|w x p + v|`` over the points p of either face's
+        bounding sphere, where ``(w, v)`` is face b's twist less face a's (the part
+        of a relative velocity that changes the distance); and ``dist`` (n,), the
+        distance between the two centres.
+        """
+        a, b = pairs[:, 0], pairs[:, 1]
+        w = omega[frame, b] - omega[frame, a]
+        v = lin[frame, b] - lin[frame, a]
+        turn = np.sqrt((w * w).sum(axis=1))
+        speed = np.full(len(pairs), np.inf)
+        for side, f in ((0, a), (1, b)):
+            x = cross(w, centre[:, side]) + v
+            np.minimum(speed, np.sqrt((x * x).sum(axis=1)) + turn * self.pan.radius[f], out=speed)
+        d = centre[:, 0] - centre[:, 1]
+        return np.where(pivot, turn, speed), np.sqrt((d * d).sum(axis=1))
+
     def gap(self, centre, pairs, frame):
         """Sphere gap (less the clearance) of pairs at the centres ``centre[frame]``."""
         d = centre[frame, pairs[:, 0]] - centre[frame, pairs[:, 1]]
@@ -95,25 +147,30 @@ class Evaluator:
         self.stats["pair_tests"] += len(pairs)
         return pair_state(self.mech, self.pan, poses, frame, pairs, self.clearance, self.eps, need=need)
 
-    def evaluate(self, t, pairs, need, pivot):
+    def evaluate(self, t, pairs, need, pivot, motion=False):
         """Separation (n,) and collision flag (n,) of face pairs (n, 2) at t (n,).
 
         Where the panels' bounding spheres are already ``need`` (n,) apart, that gap
         is the separation (a lower bound is all the advancement needs) and the exact
         test is skipped; pivoting pairs (``pivot``) always take the exact test.
+        With ``motion``, also returns the pairs' `spin` (speed and centre distance).
         """
         times, t_index = np.unique(t, return_inverse=True)
         sep = np.empty(len(pairs))
         hit = np.zeros(len(pairs), bool)
+        speed, dist = np.empty(len(pairs)), np.empty(len(pairs))
         order = np.argsort(t_index, kind="stable")
         bounds = np.searchsorted(t_index[order], np.arange(0, len(times) + self.chunk, self.chunk))
         for k, (s, e) in enumerate(zip(bounds[:-1], bounds[1:])):
             if s == e:
                 continue
             rows = order[s:e]
-            poses = self.poses(times[k * self.chunk:(k + 1) * self.chunk])
+            poses, faces = self.poses(times[k * self.chunk:(k + 1) * self.chunk], faces=True)
             frame = t_index[rows] - k * self.chunk
             centre = transform_points(poses[frame[:, None], pairs[rows]], self.pan.centre[pairs[rows]])
+            if motion:
+                omega, lin = self.twists(faces)
+                speed[rows], dist[rows] = self.spin(omega, lin, frame, pairs[rows], centre, pivot[rows])
             d = centre[:, 0] - centre[:, 1]
             gap = np.sqrt((d * d).sum(axis=1)) - self.pan.radius[pairs[rows]].sum(axis=1) - self.clearance
             far = (gap >= need[rows]) & ~pivot[rows]
@@ -121,6 +178,8 @@ class Evaluator:
             near = rows[~far]
             if len(near):
                 sep[near], hit[near] = self.state(poses, frame[~far], pairs[near], need[near])
+        if motion:
+            return sep, hit, speed, dist
         return sep, hit
 
 
@@ -155,7 +214,8 @@ def _grid(mech, pan, speed, lo_t, hi_t):
 def _merge_runs(cand, k, n_faces):
     """Join candidate fine steps into the coarse steps they fill, bottom up.
 
-    ``cand`` rows (fine step, a, b). Two sibling stretches (fine-step blocks 2j and
+    ``cand`` rows (first fine step, level, a, b): runs of ``2**level`` fine steps
+    aligned to their length (`_candidates`). Two sibling stretches (fine-step blocks 2j and
     2j + 1 of one level) that are both candidates for a pair become their parent
     stretch, up to the reference's steps (level k). A pair near all along is then
     tested at the coarse grid's values, and the advancement halves only where it has
@@ -169,10 +229,10 @@ def _merge_runs(cand, k, n_faces):
         The stretch is 2**level fine steps long.
     pairs : (n, 2) int
     """
-    key = cand[:, 1] * n_faces + cand[:, 2]
+    key = cand[:, 2] * n_faces + cand[:, 3]
     order = np.lexsort((cand[:, 0], key))
-    key, block = key[order], cand[order, 0]
-    level = np.zeros(len(key), np.int64)
+    key, level = key[order], cand[order, 1]
+    block = cand[order, 0] >> level
     for lev in range(1, k + 1):
         if len(key) < 2:
             break
@@ -189,24 +249,60 @@ def _merge_runs(cand, k, n_faces):
 
 
 def _grid_geometry(ev, grid):
-    """Face boxes lo, hi (T, F, 3) and sphere centres (T, F, 3) at every grid value."""
+    """Face boxes lo, hi, sphere centres and twists omega, lin (T, F, 3) at every grid value (F: items)."""
     n, f = len(grid), ev.n
     lo, hi, centre = np.empty((n, f, 3)), np.empty((n, f, 3)), np.empty((n, f, 3))
+    omega, lin = np.empty((n, f, 3)), np.empty((n, f, 3))
     step = max(1, ev.chunk // max(1, int(np.ceil(len(ev.pan.tri_face) / f))))
     for k in range(0, n, step):
-        poses = ev.poses(grid[k:k + step])
+        poses, faces = ev.poses(grid[k:k + step], faces=True)
         lo[k:k + step], hi[k:k + step] = _face_boxes(ev.pan, poses)
         centre[k:k + step] = np.einsum("tfij,fj->tfi", poses[..., :3, :3], ev.pan.centre) + poses[..., :3, 3]
-    return lo, hi, centre
+        omega[k:k + step], lin[k:k + step] = ev.twists(faces)
+    return lo, hi, centre, omega, lin
+
+
+def _stretch_rates(bound, turn, reach, pivot, speed0, speed1, dist0, dist1, dt):
+    """A bound on d(separation)/dt over each stretch of t, from its two ends' speeds.
+
+    ``bound`` (n,) is the bound valid at every t (`Evaluator.rates`); ``speed0``,
+    ``speed1`` bound the rate at the stretch's ends (`Evaluator.spin`), ``dist0``,
+    ``dist1`` are the centre distances there, ``dt`` the stretch's length, ``turn``
+    the pair's `Evaluator.turns` W and ``reach`` the larger sphere radius r. The rate
+    at a node changes at most by K per unit t, so over the stretch it stays below
+    ``(speed0 + speed1 + K dt) / 2``:
+
+    - pivoting pairs: the relative angular velocity is a sum of the path's hinge
+      rates times their posed unit axes, each axis turning at most at W, so
+      K = W**2;
+    - others: the relative acceleration of a point p of one face, in the other's
+      frame, is at most 3 W sum_h |rate_h| |p - a_h| over the path's hinges (one
+      term per hinge for its axis turning, two for p and the axis point moving
+      apart); the hinges on p's side of the common ancestor contribute at most
+      ``bound`` (their levers, as `kinematics.speed_profile`), those on the other
+      side at most W (r + C) more, with C the centre distance, which changes at
+      most at ``bound``. So K = 3 W (bound + W (r + (dist0 + dist1 + bound dt) / 2)).
+
+    Returns
+    -------
+    (n,) float
+        At most ``bound``.
+    """
+    centre = 0.5 * (dist0 + dist1 + bound * dt)
+    k = np.where(pivot, turn * turn, 3.0 * turn * (bound + turn * (reach + centre)))
+    return np.minimum(bound, 0.5 * (speed0 + speed1 + k * dt))
 
 
 def _candidates(ev, grid, lo, hi, k):
-    """Candidate (fine step, a, b) rows: swept boxes that overlap, grown by half the clearance.
+    """Candidate (first fine step, level, a, b) rows: swept boxes that overlap, grown by half the clearance.
 
     The spatial hash runs once per block of ``2**min(k, 2)`` fine steps, on the union
     of the block's swept boxes; each pair it finds is then checked against the
     swept boxes of the block's fine steps directly. The blocks' pairs hold every
     fine step's pairs, so nothing is lost, and the hash is built a quarter as often.
+    A pair whose boxes meet at every fine step of a block is one row for the whole
+    block (level ``min(k, 2)``); any other gives a row (level 0) per fine step where
+    they meet.
     """
     grow = (ev.speed[None, :] * np.diff(grid)[:, None] / 2 + ev.clearance / 2)[..., None]
     swept_lo = np.minimum(lo[:-1], lo[1:]) - grow
@@ -219,17 +315,28 @@ def _candidates(ev, grid, lo, hi, k):
     if ev.pan.passive is not None:
         skip |= ev.pan.passive[rows[:, 1]] & ev.pan.passive[rows[:, 2]]
     rows = rows[~skip]
-    if block > 1:
-        out = []
-        for k in range(0, len(rows), ROW_CHUNK):
-            part = rows[k:k + ROW_CHUNK]
-            step = (part[:, :1] * block + np.arange(block)[None, :]).ravel()
-            a, b = np.repeat(part[:, 1], block), np.repeat(part[:, 2], block)
-            meet = (np.maximum(swept_lo[step, a], swept_lo[step, b])
-                    <= np.minimum(swept_hi[step, a], swept_hi[step, b])).all(axis=1)
-            out.append(np.column_stack([step[meet], a[meet], b[meet]]))
-        rows = np.concatenate(out) if out else np.zeros((0, 3), dtype=int)
-    return rows
+    if block == 1:
+        return np.column_stack([rows[:, 0], np.zeros(len(rows), rows.dtype), rows[:, 1:]])
+    out = [np.zeros((0, 4), dtype=rows.dtype)]
+    for k in range(0, len(rows), ROW_CHUNK):
+        part = rows[k:k + ROW_CHUNK]
+        step = part[:, :1] * block + np.arange(block)[None, :]
+        a, b = part[:, 1:2], part[:, 2:3]
+        meet = np.ones(step.shape, bool)
+        for axis in range(3):
+            meet &= (np.maximum(swept_lo[step, a, axis], swept_lo[step, b, axis])
+                     <= np.minimum(swept_hi[step, a, axis], swept_hi[step, b, axis]))
+        full = meet.all(axis=1)
+        out.append(np.column_stack([step[full, 0], np.full(full.sum(), int(np.log2(block))),
+                                    part[full, 1:]]))
+        s, j = np.nonzero(meet & ~full[:, None])
+        out.append(np.column_stack([step[s, j], np.zeros(len(s), rows.dtype), part[s, 1:]]))
+    return np.concatenate(out)
+
+
+def _settled(g0, g1, need):
+    """Stretches whose sphere gaps g0, g1 at the ends (n,) are positive and add up to more than ``need``."""
+    return (g0 > 0) & (g1 > 0) & (g0 + g1 > need)
 
 
 def _node_states(ev, grid, centre, start, end, pairs, need, pivot):
@@ -243,7 +350,7 @@ def _node_states(ev, grid, centre, start, end, pairs, need, pivot):
     g1 = np.where(pivot, -np.inf, ev.gap(centre, pairs, end))
     sep0, sep1 = g0.copy(), g1.copy()
     hit0, hit1 = np.zeros(n, bool), np.zeros(n, bool)
-    settled = (g0 > 0) & (g1 > 0) & (g0 + g1 > need)
+    settled = _settled(g0, g1, need)
     # Nodes that need the exact test: an end of an unsettled stretch whose sphere gap
     # is below the stretch's need.
     ends = [(0, np.flatnonzero(~settled & (g0 < need))), (1, np.flatnonzero(~settled & (g1 < need)))]
@@ -300,17 +407,29 @@ def collision_intervals(mech, schedule, t_from=0.0, t_to=1.0, clearance=0.0, tol
     if hi_t - lo_t == 0:
         return []
     grid, k = _grid(mech, pan, ev.speed, lo_t, hi_t)
-    lo, hi, centre = _grid_geometry(ev, grid)
+    lo, hi, centre, omega, lin = _grid_geometry(ev, grid)
     cand = _candidates(ev, grid, lo, hi, k)
     del lo, hi
-    ev.stats["candidates"] = len(cand)
+    ev.stats["candidates"] = int((1 << cand[:, 1]).sum())
     ev.stats["grid_steps"] = len(grid) - 1
     start, level, pairs = _merge_runs(cand, k, ev.n)
     end = start + (1 << level)
     t0, t1 = grid[start], grid[end]
-    rate, pivot = ev.rates(pairs) if len(pairs) else (np.zeros(0), np.zeros(0, bool))
+    bound, pivot = ev.rates(pairs) if len(pairs) else (np.zeros(0), np.zeros(0, bool))
+    turn = ev.turns(pairs)
+    reach = pan.radius[pairs].max(axis=1) if len(pairs) else np.zeros(0)
+    # Stretches the sphere gaps settle under the bound that holds everywhere need no
+    # tighter one (they never open); the others take it from their ends' twists.
+    loose = np.flatnonzero(pivot | ~_settled(ev.gap(centre, pairs, start), ev.gap(centre, pairs, end),
+                                             bound * (t1 - t0)))
+    speed0, speed1 = np.full(len(pairs), np.inf), np.full(len(pairs), np.inf)
+    dist0, dist1 = np.zeros(len(pairs)), np.zeros(len(pairs))
+    for speed, dist, node in ((speed0, dist0, start), (speed1, dist1, end)):
+        speed[loose], dist[loose] = ev.spin(omega, lin, node[loose], pairs[loose],
+                                            centre[node[loose, None], pairs[loose]], pivot[loose])
+    rate = _stretch_rates(bound, turn, reach, pivot, speed0, speed1, dist0, dist1, t1 - t0)
     sep0, hit0, sep1, hit1 = _node_states(ev, grid, centre, start, end, pairs, rate * (t1 - t0), pivot)
-    del centre, cand
+    del centre, cand, omega, lin
     found = []
     earliest = None
     resolution = tol.t_resolution / 2
@@ -339,13 +458,23 @@ def collision_intervals(mech, schedule, t_from=0.0, t_to=1.0, clearance=0.0, tol
         pairs, t0, t1, rate, pivot = pairs[open_], t0[open_], t1[open_], rate[open_], pivot[open_]
         u0, u1 = u0[open_], u1[open_]
         sep0, hit0, sep1, hit1 = sep0[open_], hit0[open_], sep1[open_], hit1[open_]
+        bound, turn, reach = bound[open_], turn[open_], reach[open_]
+        speed0, speed1, dist0, dist1 = speed0[open_], speed1[open_], dist0[open_], dist1[open_]
         if progress is not None:
             progress(1.0 - float((t1 - t0).sum()) / total)
         if not len(pairs):
             break
         mid = _dyadic_split(u0, u1, lo_t, hi_t - lo_t)
-        sep_m, hit_m = ev.evaluate(mid, pairs, rate * np.maximum(mid - t0, t1 - mid), pivot)
-        pairs, rate = np.concatenate([pairs, pairs]), np.concatenate([rate, rate])
+        sep_m, hit_m, speed_m, dist_m = ev.evaluate(mid, pairs, rate * np.maximum(mid - t0, t1 - mid), pivot,
+                                                    motion=True)
+        # Each half takes the tighter of its own bound and its parent's (both hold).
+        rate = np.concatenate([
+            np.minimum(rate, _stretch_rates(bound, turn, reach, pivot, speed0, speed_m, dist0, dist_m, mid - t0)),
+            np.minimum(rate, _stretch_rates(bound, turn, reach, pivot, speed_m, speed1, dist_m, dist1, t1 - mid))])
+        bound, turn, reach = (np.concatenate([x, x]) for x in (bound, turn, reach))
+        speed0, speed1 = np.concatenate([speed0, speed_m]), np.concatenate([speed_m, speed1])
+        dist0, dist1 = np.concatenate([dist0, dist_m]), np.concatenate([dist_m, dist1])
+        pairs = np.concatenate([pairs, pairs])
         pivot = np.concatenate([pivot, pivot])
         t0, t1 = np.concatenate([t0, mid]), np.concatenate([mid, t1])
         sep0, sep1 = np.concatenate([sep0, sep_m]), np.concatenate([sep_m, sep1])
