@@ -153,12 +153,13 @@ def _check(a, b):
 
 
 def crossing_overlap(a, b, eps=triangles.DEFAULT_EPS):
-    """`triangles.crossing_overlap` with a cheap rejection first (same values).
+    """`triangles.crossing_overlap` with a cheap rejection first (the same values, to rounding).
 
     Pairs in which a triangle lies beyond ``2 eps`` on one side of the other's plane
     get ``-inf`` at once, which is the reference's value for them: such a triangle
     neither strictly crosses the other's plane nor is coplanar with it. The rest go
-    through the reference.
+    through `_crossing`, the reference's steps on coordinate arrays; coplanar pairs
+    through the reference itself.
     """
     a, b = _check(a, b)
     out = np.full(len(a), -np.inf)
@@ -167,7 +168,78 @@ def crossing_overlap(a, b, eps=triangles.DEFAULT_EPS):
         _, maybe = _block(_soa(ca), _soa(cb), eps, distance=False)
         if maybe.any():
             rows = np.flatnonzero(maybe)
-            out[k + rows] = triangles.crossing_overlap(ca[rows], cb[rows], eps)
+            out[k + rows] = _crossing(ca[rows], cb[rows], eps)
+    return out
+
+
+def _unit_normal(t, eps):
+    """Unit normal (3 arrays) of `_soa` triangles and whether each is degenerate (as the reference)."""
+    v0, v1 = _sub(t[1], t[0]), _sub(t[2], t[0])
+    raw = (v0[1] * v1[2] - v0[2] * v1[1], v0[2] * v1[0] - v0[0] * v1[2], v0[0] * v1[1] - v0[1] * v1[0])
+    twice = np.sqrt(_dot(raw, raw))
+    longest = np.sqrt(np.maximum.reduce([_dot(e, e) for e in (v0, _sub(t[2], t[1]), v1)]))
+    degenerate = ~(twice > eps * longest)
+    safe = np.where(degenerate, 1.0, twice)
+    return tuple(np.where(degenerate, 0.0, c / safe) for c in raw), degenerate
+
+
+def _heights(t, origin, normal, eps):
+    """Signed distances of the 3 vertices to planes (origin, normal); |d| <= eps -> 0."""
+    out = []
+    for p in t:
+        d = _dot(_sub(p, origin), normal)
+        out.append(np.where(np.abs(d) <= eps, 0.0, d))
+    return out
+
+
+def _chord_soa(t, d, origin, line):
+    """Interval (lo, hi) of triangle t on the line where d = 0 (`triangles._chord`)."""
+    lo = np.full(len(d[0]), np.inf)
+    hi = np.full(len(d[0]), -np.inf)
+    for i in range(3):
+        p, q, dp, dq = t[i], t[(i + 1) % 3], d[i], d[(i + 1) % 3]
+        crosses = dp * dq < 0.0
+        frac = np.where(crosses, dp / np.where(crosses, dp - dq, 1.0), 0.0)
+        s = _dot(tuple(p[j] + frac * (q[j] - p[j]) - origin[j] for j in range(3)), line)
+        lo = np.where(crosses, np.minimum(lo, s), lo)
+        hi = np.where(crosses, np.maximum(hi, s), hi)
+        on = dp == 0.0
+        s = _dot(_sub(p, origin), line)
+        lo = np.where(on, np.minimum(lo, s), lo)
+        hi = np.where(on, np.maximum(hi, s), hi)
+    return lo, hi
+
+
+def _crossing(a, b, eps):
+    """`triangles.crossing_overlap` of (n, 3, 3) pairs, in coordinate arrays (coplanar pairs by the reference)."""
+    av, bv = _soa(a), _soa(b)
+    na, deg_a = _unit_normal(av, eps)
+    nb, deg_b = _unit_normal(bv, eps)
+    da = _heights(av, bv[0], nb, eps)
+    db = _heights(bv, av[0], na, eps)
+    usable = ~(deg_a | deg_b)
+
+    def strictly(d):
+        return (np.maximum.reduce(d) > 0.0) & (np.minimum.reduce(d) < 0.0)
+
+    crossing = usable & strictly(da) & strictly(db)
+    coplanar = usable & (da[0] == 0.0) & (da[1] == 0.0) & (da[2] == 0.0) & (db[0] == 0.0) & (
+        db[1] == 0.0) & (db[2] == 0.0)
+    out = np.full(len(a), -np.inf)
+    if crossing.any():
+        rows = np.flatnonzero(crossing)
+        pick = [tuple(c[rows] for c in v) for v in av], [tuple(c[rows] for c in v) for v in bv]
+        u, w = tuple(c[rows] for c in na), tuple(c[rows] for c in nb)
+        line = (u[1] * w[2] - u[2] * w[1], u[2] * w[0] - u[0] * w[2], u[0] * w[1] - u[1] * w[0])
+        length = np.sqrt(_dot(line, line))
+        safe = np.where(length > 0.0, length, 1.0)
+        line = tuple(np.where(length > 0.0, c / safe, 0.0) for c in line)
+        origin = pick[0][0]
+        lo_a, hi_a = _chord_soa(pick[0], [d[rows] for d in da], origin, line)
+        lo_b, hi_b = _chord_soa(pick[1], [d[rows] for d in db], origin, line)
+        out[rows] = np.minimum(hi_a, hi_b) - np.maximum(lo_a, lo_b)
+    if coplanar.any():
+        out[coplanar] = triangles.crossing_overlap(a[coplanar], b[coplanar], eps)
     return out
 
 
@@ -250,7 +322,7 @@ def triangle_states(pan, poses, frame, ia, ib, eps, distance, enough=None):
             dist[k + work] = np.sqrt(d2)
         if maybe.any():
             rows = np.flatnonzero(maybe)
-            overlap[k + work[rows]] = triangles.crossing_overlap(_stack(av, rows), _stack(bv, rows), eps)
+            overlap[k + work[rows]] = _crossing(_stack(av, rows), _stack(bv, rows), eps)
     return overlap, dist
 
 
@@ -335,7 +407,7 @@ def _states_posed(a, b, eps, distance):
             dist[k:k + CHUNK] = np.sqrt(d2)
         if maybe.any():
             rows = np.flatnonzero(maybe)
-            overlap[k + rows] = triangles.crossing_overlap(_stack(av, rows), _stack(bv, rows), eps)
+            overlap[k + rows] = _crossing(_stack(av, rows), _stack(bv, rows), eps)
     return overlap, dist
 
 
