@@ -122,6 +122,12 @@ def _rgba(rgb, alpha=1.0):
     return (*palette.unit_rgb(rgb), alpha)
 
 
+def _edge_key(a, b, scale):
+    """The same key for a segment either way round, its end points rounded to ``scale``."""
+    ka, kb = (tuple(np.round(np.asarray(p) / scale).astype(np.int64)) for p in (a, b))
+    return (ka, kb) if ka <= kb else (kb, ka)
+
+
 class PanelLayer(gl.GLGraphicsItem.GLGraphicsItem):
     """Every rigid panel of a mechanism, built once and moved by setting poses.
 
@@ -159,14 +165,21 @@ class PanelLayer(gl.GLGraphicsItem.GLGraphicsItem):
         hinges_of = [[] for _ in range(n_faces)]
         for h, f in enumerate(hinge_parent):
             hinges_of[f].append(h)
+        # A panel's outline leaves out its hinge edges: the hinge line is drawn there,
+        # wider and on top, and lines are half of a large model's drawing.
+        ends = np.asarray(hinge_lines, dtype=float).reshape(-1, 2, 3)
+        scale = max(float(np.abs(np.concatenate([np.asarray(p, float) for p in outlines])).max()), 1.0) * 1e-9
+        hinge_edges = {_edge_key(a, b, scale) for a, b in ends}
         for f, (poly, tri) in enumerate(zip(outlines, triangles)):
             poly = np.asarray(poly, dtype=float)
             centre = poly.mean(axis=0)
             normal = unit(np.cross(poly - centre, np.roll(poly, -1, axis=0) - centre).sum(axis=0))
             # Alpha 0: the fill takes the panel's colour (``set_colors``).
             fills.append(self._rows(poly[np.asarray(tri)].reshape(-1, 3), normal, f, (1, 1, 1, 0)))
-            loop = np.stack([poly, np.roll(poly, -1, axis=0)], axis=1).reshape(-1, 3)
-            rows = [self._rows(loop, normal, f, line_color)]
+            pairs = np.stack([poly, np.roll(poly, -1, axis=0)], axis=1)
+            loop = pairs.reshape(-1, 3)
+            edge = pairs[[_edge_key(a, b, scale) not in hinge_edges for a, b in pairs]].reshape(-1, 3)
+            rows = [self._rows(edge, normal, f, line_color)]
             if f == root:
                 inset = centre + 0.82 * (loop - centre)
                 rows.append(self._rows(inset, normal, f, _rgba(palette.ROOT_MARK)))
