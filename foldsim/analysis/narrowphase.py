@@ -280,23 +280,15 @@ def _stack(tri, rows):
     return np.stack([np.stack([c[rows] for c in v], axis=1) for v in tri], axis=1)
 
 
-def triangle_states(pan, poses, frame, ia, ib, eps, distance, enough=None):
+def triangle_states(pan, poses, frame, ia, ib, eps, distance):
     """Crossing overlap and distance of triangle pairs ia, ib (n,) at ``poses[frame]``.
-
-    Parameters
-    ----------
-    enough : (n,) float, optional
-        Lazy distances: where the two triangles' bounding spheres are at least this
-        far apart, the gap between the spheres is returned as the distance (a lower
-        bound) and neither test runs; spheres apart also rule out crossing.
 
     Returns
     -------
     overlap : (n,) float
         `triangles.crossing_overlap` of each pair (``-inf`` where ruled out cheaply).
     dist : (n,) float or None
-        Distances (exact, or a lower bound of at least ``enough``); None without
-        ``distance``.
+        Exact distances; None without ``distance``.
     """
     n = len(ia)
     overlap = np.full(n, -np.inf)
@@ -305,37 +297,18 @@ def triangle_states(pan, poses, frame, ia, ib, eps, distance, enough=None):
         sl = slice(k, k + CHUNK)
         av = _posed_soa(poses, frame[sl], pan.tri_face[ia[sl]], pan.tri_points[ia[sl]])
         bv = _posed_soa(poses, frame[sl], pan.tri_face[ib[sl]], pan.tri_points[ib[sl]])
-        if enough is not None:
-            gap = _sphere_gap(av, bv)
-            work = np.flatnonzero(~(gap >= np.maximum(enough[sl], 0.0)) | ~(gap > 0))
-            if distance:
-                dist[sl] = gap
-            if not len(work):
-                continue
-            if len(work) < len(gap):
-                av = [tuple(c[work] for c in v) for v in av]
-                bv = [tuple(c[work] for c in v) for v in bv]
-        else:
-            work = np.arange(len(av[0][0]))
-        d2, maybe = _block(av, bv, eps, distance)
-        if distance:
-            dist[k + work] = np.sqrt(d2)
-        if maybe.any():
-            rows = np.flatnonzero(maybe)
-            overlap[k + work[rows]] = _crossing(_stack(av, rows), _stack(bv, rows), eps)
+        _block_states(av, bv, eps, distance, overlap[sl], None if dist is None else dist[sl])
     return overlap, dist
 
 
-def _sphere_gap(av, bv):
-    """Gap (n,) between spheres about the triangles' centroids through their farthest corners."""
-    out = []
-    for tri in (av, bv):
-        c = tuple((tri[0][j] + tri[1][j] + tri[2][j]) / 3.0 for j in range(3))
-        r2 = np.maximum.reduce([_dot(_sub(v, c), _sub(v, c)) for v in tri])
-        out.append((c, np.sqrt(r2)))
-    (ca, ra), (cb, rb) = out
-    d = _sub(ca, cb)
-    return np.sqrt(_dot(d, d)) - ra - rb
+def _block_states(av, bv, eps, distance, overlap, dist):
+    """Fill one block's crossing overlaps and (with ``distance``) distances, `_soa` triangles."""
+    d2, maybe = _block(av, bv, eps, distance)
+    if distance:
+        dist[:] = np.sqrt(d2)
+    if maybe.any():
+        rows = np.flatnonzero(maybe)
+        overlap[rows] = _crossing(_stack(av, rows), _stack(bv, rows), eps)
 
 
 def _arc_distance(p, a1, a2):
@@ -401,13 +374,8 @@ def _states_posed(a, b, eps, distance):
     overlap = np.full(n, -np.inf)
     dist = np.empty(n) if distance else None
     for k in range(0, n, CHUNK):
-        av, bv = _soa(a[k:k + CHUNK]), _soa(b[k:k + CHUNK])
-        d2, maybe = _block(av, bv, eps, distance)
-        if distance:
-            dist[k:k + CHUNK] = np.sqrt(d2)
-        if maybe.any():
-            rows = np.flatnonzero(maybe)
-            overlap[k + rows] = _crossing(_stack(av, rows), _stack(bv, rows), eps)
+        sl = slice(k, k + CHUNK)
+        _block_states(_soa(a[sl]), _soa(b[sl]), eps, distance, overlap[sl], None if dist is None else dist[sl])
     return overlap, dist
 
 

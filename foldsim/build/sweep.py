@@ -3,7 +3,7 @@ against each other (`panel_clashes`), over the whole motion.
 
 The sweep covers every gear body (and rod) against every prism and every other
 gear body carried by another panel, except the contacts that are allowed by
-design (`allowed_contact`):
+design (`allowed_pairs`):
 
 - a gear against its own mate (the two gears of one coupling, and their rods);
 - a gear against its own hinge's other panel, the carrier (its axle sits in it).
@@ -50,29 +50,13 @@ RESOLUTION = 1e-3
 """Distance resolution of the sweep, relative to the model size."""
 
 
-def allowed_contact(a, b, carrier):
-    """Whether two solids may touch by design.
-
-    Parameters
-    ----------
-    a, b : Solid
-    carrier : dict
-        Coupling -> carrier face.
-
-    Returns
-    -------
-    bool
-    """
-    if a.kind != "panel" and b.kind != "panel" and a.coupling == b.coupling:
-        return True  # a gear and its mate
-    for g, other in ((a, b), (b, a)):
-        if g.kind != "panel" and other.kind == "panel" and other.face == carrier[g.coupling]:
-            return True  # a gear and its own hinge's other panel
-    return False
-
-
 def allowed_pairs(solids, carrier):
-    """(n, 2) int: the solid pairs that may touch by design (`allowed_contact`)."""
+    """(n, 2) int: the solid pairs that may touch by design.
+
+    A gear and its own mate (the bodies of one coupling, rods included), and a gear
+    and its own hinge's other panel, the carrier (its axle sits in it), given as
+    ``carrier`` (coupling -> carrier face).
+    """
     gears = [i for i, s in enumerate(solids) if s.kind != "panel"]
     panel_of = {s.face: i for i, s in enumerate(solids) if s.kind == "panel"}
     by_coupling = {}
@@ -250,9 +234,6 @@ def gear_clearance(mech, spec, schedule=None, t_from=0.0, t_to=1.0, pairs=None, 
         near = {tuple(p): (lo_t, hi_t) for p in body_pairs(solids, carrier).tolist()
                 if active[p[0]] or active[p[1]]}
     if not near:
-        for c in tested:
-            if c in rows and rows[c]["guaranteed_min"] is None:
-                rows[c]["guaranteed_min"] = float(enough)
         return list(rows.values())
     keys = sorted(near)
     work = np.array(keys, np.int64).reshape(-1, 2)
