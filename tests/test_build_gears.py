@@ -499,3 +499,21 @@ def test_sizing_grows_past_a_pair_that_shares_its_corner():
     for i, j in body_pairs(solids, carrier):
         if first["coupling"] in (solids[i].coupling, solids[j].coupling):
             assert _dense_fcl(fcl, mech, solids, (i, j), t).min() >= 0.5 - 5e-3 * mech.size
+
+
+def test_gear_clearance_over_a_range_shorter_than_its_resolution_still_measures():
+    # A swept range of 1e-6 in t: the bodies are measured at least once, and the
+    # distance is the one python-fcl finds there (the solids barely move).
+    fcl = pytest.importorskip("fcl")
+    from foldsim.build.gears import build_solids
+    from foldsim.build.sweep import gear_clearance
+
+    mech, spec, pairs = _pairs(cube_doc([{"coupling": 0, "teeth": [20, 20], "face_width": 4.0,
+                                          "corner_distance": 8.0}]))
+    (row,) = gear_clearance(mech, spec, t_from=1.0, t_to=1.0 - 1e-6, enough=1.0)
+    assert row["min_clearance"] is not None and row["guaranteed_min"] <= row["min_clearance"]
+    solids = build_solids(mech, spec, tip=True)
+    label = {s.label: i for i, s in enumerate(solids)}
+    pair = (label[row["body"]], label[row["with"]])
+    d = _dense_fcl(fcl, mech, solids, pair, np.array([row["at_t"]]))[0]
+    assert row["min_clearance"] == pytest.approx(d, abs=1e-6 * mech.size)

@@ -245,7 +245,8 @@ def gear_clearance(mech, spec, schedule=None, t_from=0.0, t_to=1.0, pairs=None, 
     centre, radius = _spheres(solids)
     couplings = [[solids[i].coupling for i in pair if solids[i].kind != "panel"] for pair in work]
     spans = [near[k] for k in keys]
-    grids = [np.linspace(max(lo_t, a), min(hi_t, b), INITIAL_STEPS + 1) if b > a else np.array([a, a])
+    # A pair near only at one drive value (the first pose) is measured there.
+    grids = [np.linspace(max(lo_t, a), min(hi_t, b), INITIAL_STEPS + 1) if b > a else np.array([a])
              for a, b in spans]
     first = [_sphere_bounds(centre, radius, pair, faces, poses_at(mech, schedule, g)) for pair, g in zip(work, grids)]
     best = {}
@@ -263,9 +264,11 @@ def gear_clearance(mech, spec, schedule=None, t_from=0.0, t_to=1.0, pairs=None, 
             ends = np.zeros(len(ts), bool)
             ends[:-1] |= active_
             ends[1:] |= active_
-            if not len(span):
-                ends[:] = True
             todo = np.flatnonzero(ends & ~exact & (lows < goal))
+            if not len(todo) and not exact.any():
+                # Every pair near enough to be here is measured once at least, where
+                # its bound is least (a range shorter than the resolution, or one t).
+                todo = np.array([int(np.argmin(lows))])
             if len(todo):
                 d = solid_distances(mech, solids, pair, poses_at(mech, schedule, ts[todo]))
                 lows[todo], exact[todo] = d, True
