@@ -565,6 +565,20 @@ def _survivor_pairs(ta, la, tb, lb, n):
     return ta[sa[row] + local // cb[row]], tb[sb[row] + local % cb[row]], row
 
 
+def pivot_wedges(pan, poses, frame, pairs, pos):
+    """Wedge separation (n,) of pivoting face pairs (n, 2) at ``poses[frame]``.
+
+    ``pos`` (n,): each pair's row in ``pan.pivot_keys``; its two edge directions
+    leaving the shared point are posed with their faces (`_wedge_separation`).
+    """
+    dirs = pan.pivot_dirs[pos]
+    rot_a = poses[frame, pairs[:, 0], :3, :3]
+    rot_b = poses[frame, pairs[:, 1], :3, :3]
+    wa = unit(np.einsum("nij,nkj->nki", rot_a, dirs[:, 0]))
+    wb = unit(np.einsum("nij,nkj->nki", rot_b, dirs[:, 1]))
+    return _wedge_separation(wa, wb)
+
+
 def _cone_separation(ga, gb):
     """Lower bound (n,) on the angle between convex cones with a common apex.
 
@@ -646,12 +660,7 @@ def pair_state(mech, pan, poses, frame, pairs, clearance, eps, separation=True, 
         angle = np.full(n, np.inf)
         if is_pivot.any():
             rows = np.flatnonzero(is_pivot)
-            dirs = pan.pivot_dirs[pos[rows]]
-            rot_a = poses[frame[rows], pairs[rows, 0], :3, :3]
-            rot_b = poses[frame[rows], pairs[rows, 1], :3, :3]
-            wa = unit(np.einsum("nij,nkj->nki", rot_a, dirs[:, 0]))
-            wb = unit(np.einsum("nij,nkj->nki", rot_b, dirs[:, 1]))
-            angle[rows] = _wedge_separation(wa, wb)
+            angle[rows] = pivot_wedges(pan, poses, frame[rows], pairs[rows], pos[rows])
         apart = is_pivot & (angle > PIVOT_APART)
     elif pan.pivot_cones is not None and clearance == 0 and separation and is_pivot.any():
         rows = np.flatnonzero(is_pivot)

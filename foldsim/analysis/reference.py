@@ -9,12 +9,12 @@ two side by side.
 
 import numpy as np
 
-from ..geometry import transform_points, unit
+from ..geometry import transform_points
 from ..gearing import fold_angles
 from ..kinematics import common_depth, face_poses, speed_profile
 from ..tolerances import DEFAULT
 from . import broadphase, triangles
-from .narrowphase import _wedge_separation
+from .narrowphase import pivot_wedges
 from .panels import _face_boxes, _in_sorted, _keys, _posed_triangles, panels, triangle_pairs
 
 POSE_CHUNK = 256
@@ -122,12 +122,7 @@ def pair_state(mech, pan, poses, frame, pairs, clearance, eps, separation=True):
         sep = np.where(touching, sep, np.maximum(sep - clearance, 0.0))
     if is_pivot.any():
         rows = np.flatnonzero(is_pivot)
-        dirs = pan.pivot_dirs[pos[rows]]
-        rot_a = poses[frame[rows], pairs[rows, 0], :3, :3]
-        rot_b = poses[frame[rows], pairs[rows, 1], :3, :3]
-        wa = unit(np.einsum("nij,nkj->nki", rot_a, dirs[:, 0]))
-        wb = unit(np.einsum("nij,nkj->nki", rot_b, dirs[:, 1]))
-        sep[rows] = _wedge_separation(wa, wb)
+        sep[rows] = pivot_wedges(pan, poses, frame[rows], pairs[rows], pos[rows])
     sep[hit] = 0.0
     return sep, hit
 
