@@ -74,6 +74,20 @@ class Panels:
         pivot point, unit directions (flat frame) of its mesh edges leaving that
         corner, which generate the convex cone that holds a convex item; NaN rows
         where an item has no corner there (`narrowphase._cone_separation`).
+    hull_points, hull_normals, hull_ok : (F, V, 3), (F, P, 3) float, (F,) bool, optional
+        For items that are convex solids (``hull_ok``): their corners and outward
+        face normals (flat frame, `hulls.convex_items`). Pairs of such items that
+        the separating-axis bound (`hulls.hull_gap`) already puts far enough apart
+        skip the triangle tests (`narrowphase.pair_state`).
+    core : Panels, optional
+        For items that hold a thin panel (thick panels): that panel's triangles, one
+        run per item (``core.tri_face`` the item), posed with the item. Items without
+        one have an empty run.
+    core_reach : (F,) float, optional
+        With ``core``: how far the item reaches beyond its core (every point of it
+        lies within this distance of the core; inf without a core). Two such items
+        are at least their cores' distance less both reaches apart
+        (`narrowphase.pair_state`).
     """
 
     tri_face: np.ndarray
@@ -95,6 +109,11 @@ class Panels:
     pivot_points: np.ndarray = None
     pivot_reach: np.ndarray = None
     pivot_cones: np.ndarray = None
+    hull_points: np.ndarray = None
+    hull_normals: np.ndarray = None
+    hull_ok: np.ndarray = None
+    core: "Panels" = None
+    core_reach: np.ndarray = None
 
     @property
     def n(self):

@@ -10,7 +10,9 @@ bounded memory for solids of any number of triangles.
 
 import numpy as np
 
-from ..analysis.panels import Panels, _keys, oriented_boxes
+from ..analysis.hulls import convex_items
+from ..analysis.panels import Panels, _is_convex, _keys, oriented_boxes
+from ..analysis.triangles import newell_normal, point_triangle_distance
 from ..kinematics import speed_profile
 
 
@@ -33,6 +35,8 @@ def body_panels(mech, solids, skip=(), passive=None, pivots=None, cone_solids=No
         their separation is measured as an angle about it (``pivot_reach``,
         ``pivot_cones``), which settles such neighbours, close all along the
         motion near their shared corner, in a few steps instead of hundreds.
+        Convex prisms also get their thin panel as a core (``core``,
+        ``core_reach``; `_cores`), a cheap bound on their distance.
     cone_solids : list of Solid, optional
         Solids that hold ``solids`` one for one and have their corners at the
         pivot points (the prisms before `panel_clashes` shrinks them, or
@@ -70,13 +74,56 @@ def body_panels(mech, solids, skip=(), passive=None, pivots=None, cone_solids=No
                        np.linalg.norm(centre[b] - points, axis=1) + radius[b])
     cones = (_corner_cones(cone_solids, keys, points, 1e-9 * mech.size)
              if len(keys) and cone_solids is not None else None)
+    hull_points, hull_normals, hull_ok = convex_items(tri_points, start, count)
+    core, core_reach = (_cores(mech, solids, pivots, hull_ok, hull_points) if pivots is not None
+                        else (None, None))
     return Panels(
         tri_face=tri_item, tri_points=tri_points, start=start, count=count,
         skip_keys=skip_keys, touch_keys=np.zeros(0, np.int64),
         pivot_keys=keys, pivot_dirs=np.zeros((len(keys), 2, 2, 3)),
         pivot_path=paths, pivot_points=points, pivot_reach=reach, pivot_cones=cones, centre=centre, radius=radius, owner=owner,
         passive=None if passive is None else np.asarray(passive, bool),
-        box_centre=box_centre, box_axes=box_axes, box_half=box_half)
+        box_centre=box_centre, box_axes=box_axes, box_half=box_half,
+        hull_points=hull_points, hull_normals=hull_normals, hull_ok=hull_ok, core=core, core_reach=core_reach)
+
+
+def _cores(mech, solids, thin, convex, corners):
+    """The thin panel inside each convex thick panel, and how far the solid reaches beyond it.
+
+    A convex solid lies within distance r of a convex polygon (the set of such
+    points is convex) as soon as its corners do, so r is the farthest corner's
+    distance to the polygon. Gear bodies and solids or panels that are not convex
+    get no core (an empty run, reach inf).
+
+    Returns
+    -------
+    core : Panels
+        ``tri_face`` the item; per-item runs of the thin triangles.
+    reach : (S,) float
+    """
+    n = len(solids)
+    reach = np.full(n, np.inf)
+    runs = []
+    for i, s in enumerate(solids):
+        f = s.face
+        poly = mech.flat_faces[f]
+        if s.kind != "panel" or not convex[i] or not _is_convex(poly, newell_normal(poly)):
+            runs.append(np.zeros((0, 3, 3)))
+            continue
+        tri = thin.tri_points[thin.start[f]:thin.start[f] + thin.count[f]]
+        points = corners[i]
+        reach[i] = float(point_triangle_distance(points[:, None], tri[None]).min(axis=1).max())
+        runs.append(tri)
+    count = np.array([len(r) for r in runs], np.int64)
+    start = np.concatenate([[0], np.cumsum(count)[:-1]]).astype(np.int64)
+    points = np.concatenate(runs) if count.sum() else np.zeros((0, 3, 3))
+    owners = np.array([s.face for s in solids], np.int64)
+    empty = np.zeros(0, np.int64)
+    core = Panels(tri_face=np.repeat(np.arange(n), count), tri_points=points, start=start, count=count,
+                  skip_keys=empty, touch_keys=empty, pivot_keys=empty, pivot_dirs=np.zeros((0, 2, 2, 3)),
+                  pivot_path=np.zeros((0, mech.n_hinges), bool), centre=thin.centre[owners],
+                  radius=thin.radius[owners])
+    return core, reach
 
 
 def _pivot_items(mech, owner, skip_keys, pivots):
@@ -112,25 +159,45 @@ CONE_GENERATORS = 8
 
 
 def _corner_cones(solids, keys, points, eps):
-    """(P, 2, G, 3) edge directions leaving each pivot point, per item of each pair (NaN: no corner there).
+    """(P, 2, G, 3) extreme edge directions leaving each pivot point, per item of each pair (NaN: no corner there).
 
     Only convex solids (the prisms of convex panels) are held by the cone their
     edges span at a corner; a gear body never has a corner at a panel's vertex,
     and a prism that is not convex gets NaN too.
     """
     n = len(solids)
-    out = np.full((len(keys), 2, CONE_GENERATORS, 3), np.nan)
     cache = {}
+    found = []
     for k, (key, point) in enumerate(zip(keys.tolist(), points)):
         for side, item in enumerate(divmod(key, n)):
             token = (item, tuple(np.round(point, 9)))
             if token not in cache:
                 cache[token] = _cone_at(solids[item], point, eps)
-            dirs = cache[token]
-            if dirs is not None:
-                out[k, side, :len(dirs)] = dirs
-                out[k, side, len(dirs):] = dirs[0]
-    return out
+            found.append(cache[token])
+    # As many generators as the largest cone has (repeats pad the others).
+    width = max([len(d) for d in found if d is not None], default=1)
+    out = np.full((len(keys) * 2, width, 3), np.nan)
+    for row, dirs in enumerate(found):
+        if dirs is not None:
+            out[row] = dirs[np.minimum(np.arange(width), len(dirs) - 1)]
+    return out.reshape(len(keys), 2, width, 3)
+
+
+def _extreme(dirs, eps=1e-9):
+    """The generators (m, 3) of a pointed convex cone that no two others span (unit rows in, unit rows out).
+
+    A mesh edge that splits a flat face (a triangulation's diagonal) lies in the
+    plane of two of the face's edges, between them, and generates nothing more.
+    """
+    m = len(dirs)
+    normal = np.cross(dirs[:, None], dirs[None])  # (i, j, 3)
+    ok = np.linalg.norm(normal, axis=2) > eps
+    plane = np.abs(np.einsum("ijx,kx->kij", normal, dirs)) <= eps
+    left = np.einsum("ikx,ijx->kij", np.cross(dirs[:, None], dirs[None]), normal) >= 0
+    right = np.einsum("kjx,ijx->kij", np.cross(dirs[:, None], dirs[None]), normal) >= 0
+    k, i, j = np.ogrid[:m, :m, :m]
+    spans = ok[None] & plane & left & right & (i != k) & (j != k) & (i != j)
+    return dirs[~spans.reshape(m, -1).any(axis=1)]
 
 
 def _cone_at(solid, point, eps):
@@ -154,6 +221,7 @@ def _cone_at(solid, point, eps):
     d = others - point
     d = d[np.linalg.norm(d, axis=1) > eps]
     d = np.unique(np.round(d / np.linalg.norm(d, axis=1, keepdims=True), 12), axis=0)
+    d = _extreme(d / np.linalg.norm(d, axis=1, keepdims=True))
     if len(d) > CONE_GENERATORS or len(d) < 2:
         return None
     return d

@@ -1,0 +1,187 @@
+"""Convex items and their cheap distance bounds (`foldsim.analysis.hulls`), and their use in the narrow phase."""
+
+import itertools
+import json
+from dataclasses import replace
+from pathlib import Path
+
+import numpy as np
+import pytest
+from scipy.spatial import ConvexHull
+
+from foldsim.analysis.hulls import convex_items, hull_distance_bounds, hull_gap
+
+ROOT = Path(__file__).resolve().parent.parent
+
+
+def _hull_triangles(points):
+    """Outward-wound triangles of the convex hull of points (scipy's Qhull)."""
+    hull = ConvexHull(points)
+    tri = points[hull.simplices]
+    centre = points.mean(axis=0)
+    normal = np.cross(tri[:, 1] - tri[:, 0], tri[:, 2] - tri[:, 0])
+    flip = np.einsum("ij,ij->i", normal, tri[:, 0] - centre) < 0
+    tri[flip] = tri[flip][:, ::-1]
+    return tri
+
+
+def _fcl_distance(fcl, ta, tb):
+    objects = []
+    for tri in (ta, tb):
+        model = fcl.BVHModel()
+        model.beginModel(3 * len(tri), len(tri))
+        model.addSubModel(tri.reshape(-1, 3), np.arange(3 * len(tri)).reshape(-1, 3))
+        model.endModel()
+        objects.append(fcl.CollisionObject(model, fcl.Transform()))
+    if fcl.collide(objects[0], objects[1], fcl.CollisionRequest(), fcl.CollisionResult()):
+        return 0.0
+    return fcl.distance(objects[0], objects[1], fcl.DistanceRequest(), fcl.DistanceResult())
+
+
+def _items(*meshes):
+    tri = np.concatenate(meshes)
+    count = np.array([len(m) for m in meshes])
+    start = np.concatenate([[0], np.cumsum(count)[:-1]])
+    return tri, start, count
+
+
+CUBE = np.array(list(itertools.product((0.0, 1.0), repeat=3)))
+
+
+def test_convex_items_takes_convex_solids_only():
+    # A cube has 8 corners and 6 face planes (Euler, common practice); an L-shaped
+    # prism is not convex and a lone triangle is no solid.
+    cube = _hull_triangles(CUBE)
+    l_shape = np.array([[0, 0], [2, 0], [2, 1], [1, 1], [1, 2], [0, 2]], float)
+    bottom = np.column_stack([l_shape, np.zeros(6)])
+    top = bottom + [0, 0, 1]
+    quads = [[bottom[i], bottom[(i + 1) % 6], top[(i + 1) % 6], top[i]] for i in range(6)]
+    sides = [t for q in quads for t in ([q[0], q[1], q[2]], [q[0], q[2], q[3]])]
+    fan = [[bottom[0], bottom[k + 1], bottom[k]] for k in (1, 2, 3, 4)]
+    l_mesh = np.array(sides + fan + [[top[0], top[k], top[k + 1]] for k in (1, 2, 3, 4)])
+    single = np.array([[[0, 0, 0], [1, 0, 0], [0, 1, 0]]], float)
+    points, normals, ok = convex_items(*_items(cube, l_mesh, single))
+    assert ok.tolist() == [True, False, False]
+    assert len(np.unique(points[0], axis=0)) == 8
+    np.testing.assert_allclose(np.sort(np.abs(np.unique(np.round(normals[0], 9), axis=0)).sum(axis=1)), np.ones(6))
+
+
+def test_separating_axes_and_gilbert_bound_the_fcl_distance():
+    # Reference: python-fcl's exact distance between the same convex meshes (random
+    # hulls of 5-12 points, random placements). Every bound must hold, and with
+    # enough steps Gilbert's two bounds close in on it.
+    fcl = pytest.importorskip("fcl")
+    rng = np.random.default_rng(11)
+    meshes, want = [], []
+    for _ in range(60):
+        a = rng.normal(size=(rng.integers(5, 13), 3))
+        b = rng.normal(size=(rng.integers(5, 13), 3)) + rng.normal(scale=3.0, size=3)
+        ta, tb = _hull_triangles(a), _hull_triangles(b)
+        meshes += [ta, tb]
+        want.append(_fcl_distance(fcl, ta, tb))
+    points, normals, ok = convex_items(*_items(*meshes))
+    assert ok.all()
+    pa, pb, na, nb = points[0::2], points[1::2], normals[0::2], normals[1::2]
+    want = np.array(want)
+    gap = hull_gap(pa, na, pb, nb)
+    assert (gap <= want + 1e-9).all()
+    assert (gap[want == 0.0] <= 1e-9).all()
+    lower, upper = hull_distance_bounds(pa, pb, gap, np.full(len(pa), np.inf), 1e-9, steps=4000)
+    assert (lower <= want + 1e-9).all() and (upper >= want - 1e-9).all()
+    apart = want > 0.05
+    assert apart.sum() >= 20
+    # Gilbert's steps close in slowly at the end; 1 % is what 4,000 steps give here.
+    np.testing.assert_allclose(lower[apart], want[apart], rtol=1e-2)
+    np.testing.assert_allclose(upper[apart], want[apart], rtol=1e-2)
+
+
+def test_gilbert_stops_within_its_slack():
+    # Two unit cubes a corner's diagonal apart (distance sqrt 3, corner to corner;
+    # elementary geometry): a slack of 0.25 stops with the lower bound at least 3/4
+    # of the upper, and the distance between them.
+    a = CUBE[None]
+    b = CUBE[None] + 2.0
+    lower, upper = hull_distance_bounds(a, b, np.array([-np.inf]), np.array([np.inf]), 0.25)
+    assert lower[0] - 1e-12 <= np.sqrt(3) <= upper[0] + 1e-12
+    assert lower[0] >= 0.75 * upper[0]
+
+
+def test_extreme_generators_drop_a_face_diagonal():
+    # A cube's corner: its three edges generate the cone; the diagonal of a face
+    # (1, 1, 0)/sqrt 2 lies between two of them and is dropped, the body diagonal
+    # (1, 1, 1)/sqrt 3 is inside and kept (it only costs time).
+    from foldsim.build.bodies import _extreme
+
+    dirs = np.array([[1, 0, 0], [0, 1, 0], [0, 0, 1], [1, 1, 0]], float)
+    dirs /= np.linalg.norm(dirs, axis=1, keepdims=True)
+    np.testing.assert_allclose(_extreme(dirs), np.eye(3))
+
+
+def _gift_box(thickness=2.0):
+    from foldsim.io.mechanism_json import loads
+
+    doc = json.loads((ROOT / "assets" / "gift-box.mech.json").read_text())
+    doc["build"] = {"thickness": thickness}
+    return loads(json.dumps(doc), source="gift-box")
+
+
+def test_thick_panels_reach_their_thickness_beyond_the_thin_panel():
+    # A prism with its material behind the panel lies within its thickness of the
+    # thin panel (bevels only take material away); the inner face's corners are
+    # exactly that far (hand geometry).
+    from foldsim.analysis.panels import panels
+    from foldsim.build.bodies import body_panels
+    from foldsim.build.prisms import panel_solids
+    from foldsim.build.spec import build_spec
+
+    mech = _gift_box(2.0)
+    solids = panel_solids(mech, build_spec(mech))
+    pan = body_panels(mech, solids, skip=mech.hinge_faces, pivots=panels(mech))
+    assert pan.hull_ok.all()
+    np.testing.assert_allclose(pan.core_reach, 2.0, rtol=1e-9)
+    np.testing.assert_array_equal(pan.core.tri_face, np.repeat(np.arange(pan.n), pan.core.count))
+
+
+def test_cheap_bounds_keep_the_narrow_phase_answers():
+    # The gift box's thick panels at 40 drive values: with the cheap bounds the
+    # collision flags are those of the triangle tests alone, and every separation is
+    # at most python-fcl's distance (less the clearance) and at least the exact one
+    # shrunk by the larger slack, or the need.
+    fcl = pytest.importorskip("fcl")
+    from foldsim.analysis.narrowphase import CORE_SLACK, HULL_SLACK, pair_state
+    from foldsim.analysis.panels import panels
+    from foldsim.build.bodies import body_panels
+    from foldsim.build.prisms import panel_solids
+    from foldsim.build.spec import build_spec
+    from foldsim.gearing import fold_schedule
+    from foldsim.kinematics import poses_at
+
+    mech = _gift_box(2.0)
+    solids = panel_solids(mech, build_spec(mech))
+    pan = body_panels(mech, solids, skip=mech.hinge_faces, pivots=panels(mech))
+    plain = replace(pan, core=None, core_reach=None, hull_ok=None)
+    poses = poses_at(mech, fold_schedule(mech), np.linspace(0.0, 1.0, 40))
+    skip = set(pan.skip_keys.tolist())
+    pairs = np.array([(a, b) for a in range(pan.n) for b in range(a + 1, pan.n) if a * pan.n + b not in skip])
+    frame = np.repeat(np.arange(len(poses)), len(pairs))
+    pairs = np.tile(pairs, (len(poses), 1))
+    rng = np.random.default_rng(3)
+    for clearance, need in ((0.0, np.full(len(pairs), np.inf)), (0.5, np.full(len(pairs), np.inf)),
+                            (0.0, rng.uniform(0.0, 40.0, len(pairs))), (0.5, rng.uniform(0.0, 40.0, len(pairs)))):
+        sep, hit = pair_state(mech, pan, poses, frame, pairs, clearance, 1e-9 * mech.size, need=need)
+        ref_sep, ref_hit = pair_state(mech, plain, poses, frame, pairs, clearance, 1e-9 * mech.size, need=need)
+        np.testing.assert_array_equal(hit, ref_hit)
+        pivot = np.isin(pairs[:, 0] * pan.n + pairs[:, 1], pan.pivot_keys)
+        plain_rows = ~pivot & ~hit
+        # Where the triangle tests are exact (below the need), the cheap separation is
+        # no larger, and no smaller than the slack allows unless it reaches the need.
+        exact = plain_rows & (ref_sep < need)
+        assert exact.sum() > (150 if np.isinf(need).all() else 10)
+        assert (sep[exact] <= ref_sep[exact] + 1e-9).all()
+        slack = max(CORE_SLACK, HULL_SLACK)
+        assert ((sep[exact] >= (1 - slack) * ref_sep[exact] - 1e-9) | (sep[exact] >= need[exact])).all()
+        for k in np.flatnonzero(plain_rows)[::37]:
+            a, b = pairs[k]
+            ta = solids[a].triangles @ poses[frame[k], a, :3, :3].T + poses[frame[k], a, :3, 3]
+            tb = solids[b].triangles @ poses[frame[k], b, :3, :3].T + poses[frame[k], b, :3, 3]
+            assert sep[k] <= _fcl_distance(fcl, ta, tb) - clearance + 1e-6
