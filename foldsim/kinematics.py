@@ -12,7 +12,7 @@ from . import geometry
 from .gearing import fold_angles
 
 
-def face_poses(mech, angles):
+def face_poses(mech, angles, faces=None):
     """Pose of every face for many sets of fold angles.
 
     Parameters
@@ -20,11 +20,15 @@ def face_poses(mech, angles):
     mech : Mechanism
     angles : (T, H) float
         Fold angle of every hinge, radians.
+    faces : (k,) int, optional
+        Only these faces: the walk then covers only their chains to the root, which
+        for a few faces of a large model is a small share of the work.
 
     Returns
     -------
     (T, F, 4, 4) float
-        Transforms taking each face's flat coordinates to its posed position.
+        Transforms taking each face's flat coordinates to its posed position
+        ((T, k, 4, 4) with ``faces``, in their order).
 
     Examples
     --------
@@ -38,10 +42,16 @@ def face_poses(mech, angles):
     """
     angles = np.asarray(angles, dtype=float)
     n_t = angles.shape[0]
+    if faces is None:
+        hinges, levels = np.arange(mech.n_hinges), mech.levels
+    else:
+        hinges, levels = _chains(mech, faces)
+        angles = angles[:, hinges]
     # Rotation x -> R (x - a) + a about each hinge line (Rodrigues' formula, as
-    # `geometry.line_rotations`), kept as its 3 x 4 part [R | a - R a], hinge-major.
-    a = mech.axes[:, 0]
-    u = geometry.unit(mech.axes[:, 1] - a)
+    # `geometry.line_rotations`), kept as its 3 x 4 part [R | a - R a], hinge-major
+    # (row k for hinge ``hinges[k]``).
+    a = mech.axes[hinges, 0]
+    u = geometry.unit(mech.axes[hinges, 1] - a)
     skew = np.zeros((len(u), 3, 3))
     skew[:, 0, 1], skew[:, 0, 2], skew[:, 1, 2] = -u[:, 2], u[:, 1], -u[:, 0]
     skew -= skew.transpose(0, 2, 1)
@@ -59,15 +69,32 @@ def face_poses(mech, angles):
     # Face-major while walking the tree, so each level gathers whole rows.
     work = np.empty((mech.n_faces, n_t, 3, 4))
     work[mech.root] = np.eye(4)[:3]
-    for level in mech.levels:
+    row = np.empty(mech.n_hinges, np.int64)
+    row[hinges] = np.arange(len(hinges))
+    for level in levels:
         parent = work[mech.parent[level]]
-        child = parent[..., :3] @ rot[level]
+        child = parent[..., :3] @ rot[row[level]]
         child[..., 3] += parent[..., 3]
         work[mech.child[level]] = child
-    poses = np.empty((n_t, mech.n_faces, 4, 4))
+    if faces is not None:
+        work = work[np.asarray(faces, np.int64)]
+    poses = np.empty((n_t, len(work), 4, 4))
     poses[:, :, :3] = work.transpose(1, 0, 2, 3)
     poses[:, :, 3] = (0.0, 0.0, 0.0, 1.0)
     return poses
+
+
+def _chains(mech, faces):
+    """Sorted hinges on the given faces' paths to the root, and the tree's levels cut down to them."""
+    on = np.zeros(mech.n_hinges, bool)
+    cur = np.unique(np.asarray(faces, np.int64))
+    while len(cur):
+        h = mech.face_hinge[cur]
+        h = h[h >= 0]
+        h = h[~on[h]]
+        on[h] = True
+        cur = mech.parent[h]
+    return np.flatnonzero(on), [level[on[level]] for level in mech.levels]
 
 
 def face_twists(mech, poses, rates):
@@ -147,7 +174,7 @@ def turn_profile(mech, rates):
     return out
 
 
-def poses_at(mech, schedule, t):
+def poses_at(mech, schedule, t, faces=None):
     """Face poses at drive values t.
 
     Parameters
@@ -155,12 +182,15 @@ def poses_at(mech, schedule, t):
     mech : Mechanism
     schedule : Schedule
     t : (T,) float
+    faces : (k,) int, optional
+        Only these faces (`face_poses`).
 
     Returns
     -------
     (T, F, 4, 4) float
+        (T, k, 4, 4) with ``faces``.
     """
-    return face_poses(mech, fold_angles(schedule, np.atleast_1d(t)))
+    return face_poses(mech, fold_angles(schedule, np.atleast_1d(t)), faces)
 
 
 def posed_faces(mech, poses):

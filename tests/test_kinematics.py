@@ -189,6 +189,27 @@ def test_poses_match_rotations_composed_with_scipy(seed, root, angles):
         np.testing.assert_allclose(ours[f], reference[f], rtol=0, atol=1e-11)
 
 
+@PROPERTY
+@given(seeds, st.integers(0, 3), st.lists(st.floats(-np.pi, np.pi), min_size=3, max_size=3),
+       st.lists(st.integers(0, 3), min_size=1, max_size=3))
+def test_poses_of_some_faces_match_scipy(seed, root, angles, faces):
+    # Only the chains of the faces asked for are walked; each pose must still be the
+    # subtree turns composed with scipy's Rotation (independent reference).
+    pts, quads, hinges = flat_chain(seed)
+    mech = build_mechanism(pts, quads, hinges, root=root, state="flat", closed_angles=[1.0, 1.0, 1.0])
+    angles = np.array(angles)
+    some = face_poses(mech, np.stack([angles, -angles]), faces=faces)
+    assert some.shape == (2, len(faces), 4, 4)
+    reference = turn_subtrees([pts[f] for f in quads], quads, hinges, root, angles)
+    for k, f in enumerate(faces):
+        np.testing.assert_allclose(posed_one(some[0, k], mech.flat_faces[f]), reference[f], rtol=0, atol=1e-11)
+    np.testing.assert_array_equal(some, face_poses(mech, np.stack([angles, -angles]))[:, faces])
+
+
+def posed_one(pose, points):
+    return points @ pose[:3, :3].T + pose[:3, 3]
+
+
 def test_chain_folded_square_by_hand():
     """Four unit squares in a row, each hinge at 90°: a closed square tube (hand check)."""
     pts = np.array([(x, y, 0.0) for y in (0.0, 1.0) for x in range(5)])

@@ -89,7 +89,17 @@ def convex_items(tri_points, start, count, rel=1e-9):
     return points, normals, ok
 
 
-def hull_gap(pa, na, pb, nb):
+def nearest_corners(pa, pb):
+    """(n, 3) the difference a - b of each pair's nearest two corners, a point of A - B."""
+    sa, sb = (pa * pa).sum(axis=2), (pb * pb).sum(axis=2)
+    # |a - b|^2 = |a|^2 + |b|^2 - 2 a.b, only to choose the pair.
+    d2 = sa[:, :, None] + sb[:, None, :] - 2.0 * (pa @ pb.transpose(0, 2, 1))
+    k = np.argmin(d2.reshape(len(pa), -1), axis=1)
+    rows = np.arange(len(pa))
+    return pa[rows, k // pb.shape[1]] - pb[rows, k % pb.shape[1]]
+
+
+def hull_gap(pa, na, pb, nb, near=None):
     """Lower bound (n,) on the distance between posed convex items; negative where they may overlap.
 
     Parameters
@@ -98,6 +108,8 @@ def hull_gap(pa, na, pb, nb):
         Posed corners of the two items of each pair (padding repeats a corner).
     na, nb : (n, P, 3) float
         Their posed outward unit face normals.
+    near : (n, 3) float, optional
+        `nearest_corners`, when the caller has it.
 
     Returns
     -------
@@ -116,21 +128,19 @@ def hull_gap(pa, na, pb, nb):
     >>> float(hull_gap(cube[None], faces[None], cube[None] + [2.0, 0, 0], faces[None])[0])
     1.0
     """
-    d = pa[:, :, None] - pb[:, None]
-    nearest = np.argmin((d * d).sum(axis=3).reshape(len(pa), -1), axis=1)
-    near = d.reshape(len(pa), -1, 3)[np.arange(len(pa)), nearest]
+    near = nearest_corners(pa, pb) if near is None else near
     mid = pa.mean(axis=1) - pb.mean(axis=1)
     extra = np.stack([near, mid], axis=1)
     length = np.sqrt((extra * extra).sum(axis=2, keepdims=True))
     extra = np.where(length > 0, extra / np.where(length > 0, length, 1.0), na[:, :1])
     # Axes pointing from b towards a: a's normals reversed, b's as they are.
     axes = np.concatenate([-na, nb, extra], axis=1)
-    on_a = np.einsum("nkj,nvj->nkv", axes, pa)
-    on_b = np.einsum("nkj,nvj->nkv", axes, pb)
+    on_a = axes @ pa.transpose(0, 2, 1)
+    on_b = axes @ pb.transpose(0, 2, 1)
     return (on_a.min(axis=2) - on_b.max(axis=2)).max(axis=1)
 
 
-def hull_distance_bounds(pa, pb, low, need, slack, offset=0.0, steps=24):
+def hull_distance_bounds(pa, pb, low, need, slack, offset=0.0, steps=24, near=None):
     """Lower and upper bounds (n,) on the distance of convex corner sets, by Gilbert's algorithm.
 
     Parameters
@@ -146,6 +156,8 @@ def hull_distance_bounds(pa, pb, low, need, slack, offset=0.0, steps=24):
         ``(1 - slack)`` times its upper bound less ``offset``.
     offset : float or (n,) float
         What the caller takes off the distance (a clearance).
+    near : (n, 3) float, optional
+        The start, `nearest_corners` (computed when not given).
     steps : int
         Most steps per pair.
 
@@ -167,10 +179,8 @@ def hull_distance_bounds(pa, pb, low, need, slack, offset=0.0, steps=24):
     (True, True)
     """
     n = len(pa)
-    d = pa[:, :, None] - pb[:, None]
-    flat = d.reshape(n, -1, 3)
     # Start from the nearest two corners: a point of the difference set A - B.
-    x = flat[np.arange(n), np.argmin((flat * flat).sum(axis=2), axis=1)]
+    x = nearest_corners(pa, pb) if near is None else near
     lower = np.asarray(low, float).copy()
     upper = np.sqrt((x * x).sum(axis=1))
     rows = np.arange(n)

@@ -19,7 +19,7 @@ import numpy as np
 
 from ..geometry import cross, unit
 from . import triangles
-from .hulls import hull_distance_bounds, hull_gap
+from .hulls import hull_distance_bounds, hull_gap, nearest_corners
 from .panels import _in_sorted, _keys, triangle_pairs
 
 CHUNK = 4096
@@ -604,6 +604,9 @@ def _cheap_separations(pan, poses, frame, pairs, clearance, eps, need):
     ``need`` None: only the collision flag is wanted, and any positive bound
     settles a pair.
 
+    A bound within twice the contact tolerance ``eps`` of the clearance settles
+    nothing: there the triangle tests decide.
+
     Returns
     -------
     clear : (n,) bool
@@ -624,17 +627,18 @@ def _cheap_separations(pan, poses, frame, pairs, clearance, eps, need):
             dist = _core_distances(pan.core, poses, frame[rows], pairs[rows], eps) - room[rows]
             low = dist - pan.core_reach[pairs[rows]].sum(axis=1)
             bound[rows] = low
-            ok = (low > 0.0) & ((low >= wanted[rows]) | (low >= (1.0 - CORE_SLACK) * dist))
+            ok = (low > 2.0 * eps) & ((low >= wanted[rows]) | (low >= (1.0 - CORE_SLACK) * dist))
             clear[rows] = ok
     if pan.hull_ok is not None:
         rows = np.flatnonzero(~clear & pan.hull_ok[pairs].all(axis=1))
         if len(rows):
             pa, na, pb, nb = _posed_hulls(pan, poses, frame[rows], pairs[rows])
-            low = np.maximum(hull_gap(pa, na, pb, nb), bound[rows] + room[rows])
-            low, high = hull_distance_bounds(pa, pb, low, wanted[rows], HULL_SLACK, offset=room[rows])
+            near = nearest_corners(pa, pb)
+            low = np.maximum(hull_gap(pa, na, pb, nb, near), bound[rows] + room[rows])
+            low, high = hull_distance_bounds(pa, pb, low, wanted[rows], HULL_SLACK, offset=room[rows], near=near)
             low, high = low - room[rows], high - room[rows]
             bound[rows] = low
-            clear[rows] = (low > 0.0) & ((low >= wanted[rows]) | (low >= (1.0 - HULL_SLACK) * high))
+            clear[rows] = (low > 2.0 * eps) & ((low >= wanted[rows]) | (low >= (1.0 - HULL_SLACK) * high))
     return clear, bound
 
 

@@ -91,11 +91,11 @@ def _spheres(solids):
     return centre, radius
 
 
-def _sphere_bounds(centre, radius, pair, faces, poses):
-    """(T,) lower bound on the distance of a pair of solids from their spheres."""
+def _sphere_bounds(centre, radius, pair, poses):
+    """(T,) lower bound on the distance of a pair of solids from their spheres; poses (T, 2, 4, 4) of their faces."""
     a, b = pair
-    ca = np.einsum("tij,j->ti", poses[:, faces[a], :3, :3], centre[a]) + poses[:, faces[a], :3, 3]
-    cb = np.einsum("tij,j->ti", poses[:, faces[b], :3, :3], centre[b]) + poses[:, faces[b], :3, 3]
+    ca = np.einsum("tij,j->ti", poses[:, 0, :3, :3], centre[a]) + poses[:, 0, :3, 3]
+    cb = np.einsum("tij,j->ti", poses[:, 1, :3, :3], centre[b]) + poses[:, 1, :3, 3]
     return np.maximum(np.linalg.norm(ca - cb, axis=1) - radius[a] - radius[b], 0.0)
 
 
@@ -104,7 +104,7 @@ def _corners(solid):
     return np.unique(solid.triangles.reshape(-1, 3), axis=0)
 
 
-def solid_distances(mech, solids, pair, poses):
+def solid_distances(mech, solids, pair, poses, columns=None):
     """Exact distance between two posed solids at many poses.
 
     Parameters
@@ -113,6 +113,9 @@ def solid_distances(mech, solids, pair, poses):
     solids : list of Solid
     pair : (int, int)
     poses : (T, F, 4, 4) float
+    columns : (int, int), optional
+        Where the two solids' faces are along the poses' second axis (default: the
+        faces themselves; poses of only the two faces come with ``(0, 1)``).
 
     Returns
     -------
@@ -120,14 +123,15 @@ def solid_distances(mech, solids, pair, poses):
         0 where the meshes cross, touch or one holds the other.
     """
     a, b = solids[pair[0]], solids[pair[1]]
-    pa = np.einsum("tij,nkj->tnki", poses[:, a.face, :3, :3], a.triangles) + poses[:, a.face, None, None, :3, 3]
-    pb = np.einsum("tij,nkj->tnki", poses[:, b.face, :3, :3], b.triangles) + poses[:, b.face, None, None, :3, 3]
+    fa, fb = (a.face, b.face) if columns is None else columns
+    pa = np.einsum("tij,nkj->tnki", poses[:, fa, :3, :3], a.triangles) + poses[:, fa, None, None, :3, 3]
+    pb = np.einsum("tij,nkj->tnki", poses[:, fb, :3, :3], b.triangles) + poses[:, fb, None, None, :3, 3]
     ca, cb = pa.mean(axis=2), pb.mean(axis=2)
     ra = np.linalg.norm(a.triangles - a.triangles.mean(axis=1, keepdims=True), axis=2).max(axis=1)
     rb = np.linalg.norm(b.triangles - b.triangles.mean(axis=1, keepdims=True), axis=2).max(axis=1)
     va, vb = _corners(a), _corners(b)
-    pva = np.einsum("tij,nj->tni", poses[:, a.face, :3, :3], va) + poses[:, a.face, None, :3, 3]
-    pvb = np.einsum("tij,nj->tni", poses[:, b.face, :3, :3], vb) + poses[:, b.face, None, :3, 3]
+    pva = np.einsum("tij,nj->tni", poses[:, fa, :3, :3], va) + poses[:, fa, None, :3, 3]
+    pvb = np.einsum("tij,nj->tni", poses[:, fb, :3, :3], vb) + poses[:, fb, None, :3, 3]
     out = np.empty(len(poses))
     for start in range(0, len(poses), CHUNK):
         sl = slice(start, start + CHUNK)
@@ -248,7 +252,9 @@ def gear_clearance(mech, spec, schedule=None, t_from=0.0, t_to=1.0, pairs=None, 
     # A pair near only at one drive value (the first pose) is measured there.
     grids = [np.linspace(max(lo_t, a), min(hi_t, b), INITIAL_STEPS + 1) if b > a else np.array([a])
              for a, b in spans]
-    first = [_sphere_bounds(centre, radius, pair, faces, poses_at(mech, schedule, g)) for pair, g in zip(work, grids)]
+    # Each pair's two faces are posed alone (`kinematics.face_poses` walks only their chains).
+    first = [_sphere_bounds(centre, radius, pair, poses_at(mech, schedule, g, faces=faces[pair]))
+             for pair, g in zip(work, grids)]
     best = {}
     for n in np.argsort([f.min() for f in first]):
         pair, lip = work[n], rate[n]
@@ -270,7 +276,8 @@ def gear_clearance(mech, spec, schedule=None, t_from=0.0, t_to=1.0, pairs=None, 
                 # its bound is least (a range shorter than the resolution, or one t).
                 todo = np.array([int(np.argmin(lows))])
             if len(todo):
-                d = solid_distances(mech, solids, pair, poses_at(mech, schedule, ts[todo]))
+                d = solid_distances(mech, solids, pair, poses_at(mech, schedule, ts[todo], faces=faces[pair]),
+                                    columns=(0, 1))
                 lows[todo], exact[todo] = d, True
                 for c in couplings[n]:
                     best[c] = min(best.get(c, np.inf), float(d.min()))
@@ -279,7 +286,8 @@ def gear_clearance(mech, spec, schedule=None, t_from=0.0, t_to=1.0, pairs=None, 
                 break
             mid = 0.5 * (ts[:-1][active_] + ts[1:][active_])
             ts = np.concatenate([ts, mid])
-            lows = np.concatenate([lows, _sphere_bounds(centre, radius, pair, faces, poses_at(mech, schedule, mid))])
+            lows = np.concatenate([lows, _sphere_bounds(centre, radius, pair,
+                                                        poses_at(mech, schedule, mid, faces=faces[pair]))])
             exact = np.concatenate([exact, np.zeros(len(mid), bool)])
         floor = float(bound.min()) if len(bound) else float(lows.min())
         for c in couplings[n]:
