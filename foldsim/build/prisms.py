@@ -19,6 +19,7 @@ dihedral too, so the closed shell meets flush all round; open boundary edges
 stay square.
 """
 
+import weakref
 from dataclasses import dataclass
 
 import numpy as np
@@ -220,9 +221,23 @@ def panel_solid(mech, spec, f, closing, erode=0.0, tol=DEFAULT):
 
 
 def panel_solids(mech, spec, erode=0.0, tol=DEFAULT):
-    """The prism of every panel (list of `Solid`, in face order)."""
-    closing = edge_closing_angles(mech)
-    return [panel_solid(mech, spec, f, closing, erode, tol) for f in range(mech.n_faces)]
+    """The prism of every panel (list of `Solid`, in face order).
+
+    Kept per mechanism (while it lives) and per thickness, side, axis, erosion and
+    tolerances: a check builds the same prisms for several of its sweeps.
+    """
+    key = (np.asarray(spec.thickness, float).tobytes(), spec.material, spec.axis, float(erode), tol)
+    known = _PRISMS.setdefault(mech, {})
+    if key not in known:
+        closing = edge_closing_angles(mech)
+        known[key] = tuple(panel_solid(mech, spec, f, closing, erode, tol) for f in range(mech.n_faces))
+        for solid in known[key]:
+            solid.triangles.flags.writeable = False  # shared between callers
+    return list(known[key])
+
+
+_PRISMS = weakref.WeakKeyDictionary()
+"""The prisms of each mechanism, by what they depend on (`panel_solids`)."""
 
 
 def outer_surface_points(mech, spec):

@@ -390,21 +390,24 @@ def _near_pairs(mech, schedule, pan, profile, lo_t, hi_t, enough, tol):
 
 
 def _contained(pan, poses, pairs):
-    """(n,) bool: for item pairs whose boxes overlap, whether one item holds a corner of the other."""
+    """(n,) bool: for item pairs whose boxes overlap, whether one item holds a corner of the other.
+
+    ``poses`` (F, 4, 4) per item; the winding number of the other item's first
+    corner about each item's mesh, for all pairs of a triangle count at once.
+    """
     out = np.zeros(len(pairs), bool)
-    for k, (a, b) in enumerate(pairs.tolist()):
-        ta = _item_triangles(pan, poses, a)
-        tb = _item_triangles(pan, poses, b)
-        wa = _winding_batch(ta[None, 0, 0], tb[None])
-        wb = _winding_batch(tb[None, 0, 0], ta[None])
-        out[k] = max(abs(wa[0]), abs(wb[0])) > 0.5
+    for side in (0, 1):
+        holder, guest = pairs[:, side], pairs[:, 1 - side]
+        m = poses[guest]
+        point = np.einsum("nij,nj->ni", m[:, :3, :3], pan.tri_points[pan.start[guest], 0]) + m[:, :3, 3]
+        count = pan.count[holder]
+        for c in np.unique(count).tolist():
+            for rows in np.array_split(np.flatnonzero(count == c), max(1, int(np.sum(count == c)) * c // 65536 + 1)):
+                h = poses[holder[rows]]
+                tri = pan.tri_points[pan.start[holder[rows]][:, None] + np.arange(c)]
+                tri = np.einsum("nij,nckj->ncki", h[:, :3, :3], tri) + h[:, None, None, :3, 3]
+                out[rows] |= np.abs(_winding_batch(point[rows], tri)) > 0.5
     return out
-
-
-def _item_triangles(pan, poses, i):
-    s, c = pan.start[i], pan.count[i]
-    tri = pan.tri_points[s:s + c]
-    return tri @ poses[i, :3, :3].T + poses[i, :3, 3]
 
 
 ERODE = 1e-4
