@@ -592,14 +592,16 @@ def _cheap_separations(pan, poses, frame, pairs, clearance, eps, need):
 
     - the cores' (`Panels.core`): the thin panels' exact distance, less both items'
       ``core_reach``. It stands in for the separation where it is positive and
-      reaches ``need`` or, since the cores' distance is also an upper bound on the
-      separation, where the reaches take at most `CORE_SLACK` of it: the
-      advancement then steps at least half as far as with the exact value;
+      reaches ``need`` or where the reaches take at most `CORE_SLACK` of the cores'
+      distance, which is about the separation (a core lies in its solid, or just
+      outside one shrunk a little): the advancement then steps about half as far
+      as with the exact value or more;
     - for convex items the cores' bound does not settle: the separating axes
       (`hulls.hull_gap`), then Gilbert's algorithm on their corners
-      (`hulls.hull_distance_bounds`), which also gives an upper bound. The lower
-      bound stands in for the separation where it reaches ``need`` or is within
-      `HULL_SLACK` of the upper one.
+      (`hulls.hull_distance_bounds`), which also gives an upper bound, a distance
+      two points of the solids really are apart. The lower bound stands in for the
+      separation where it reaches ``need`` or is within `HULL_SLACK` of the upper
+      one; an upper bound below the clearance is a collision.
 
     ``need`` None: only the collision flag is wanted, and any positive bound
     settles a pair.
@@ -613,12 +615,15 @@ def _cheap_separations(pan, poses, frame, pairs, clearance, eps, need):
         Pairs settled: apart (beyond the clearance), with ``bound`` their separation.
     bound : (n,) float
         A lower bound on the distance less the clearance (-inf where none).
+    close : (n,) bool
+        Pairs settled as colliding: nearer than the clearance.
     """
     n = len(pairs)
     bound = np.full(n, -np.inf)
     clear = np.zeros(n, bool)
+    close = np.zeros(n, bool)
     if not n:
-        return clear, bound
+        return clear, bound, close
     room = np.where(_in_sorted(_keys(pairs, pan.n), pan.touch_keys)[0], 0.0, clearance)
     wanted = np.full(n, -np.inf) if need is None else need
     if pan.core is not None:
@@ -639,7 +644,8 @@ def _cheap_separations(pan, poses, frame, pairs, clearance, eps, need):
             low, high = low - room[rows], high - room[rows]
             bound[rows] = low
             clear[rows] = (low > 2.0 * eps) & ((low >= wanted[rows]) | (low >= (1.0 - HULL_SLACK) * high))
-    return clear, bound
+            close[rows] = (room[rows] > 0.0) & (high < -2.0 * eps)
+    return clear, bound, close
 
 
 def _core_distances(core, poses, frame, pairs, eps):
@@ -736,7 +742,9 @@ def pair_state(mech, pan, poses, frame, pairs, clearance, eps, separation=True, 
     (`_cone_separation`) in the same way: convex items lie inside their cones, so a
     positive angle rules out contact, and where it already reaches ``need`` no
     triangle is tested (without a clearance only: the cones say nothing about
-    distances).
+    distances). Items with cores or convex hulls first try cheap bounds on their
+    distance (`_cheap_separations`); ``sep`` is then a lower bound below ``need``
+    too, within `CORE_SLACK` or `HULL_SLACK` of the distance.
     """
     pairs = np.asarray(pairs, np.int64).reshape(-1, 2)
     frame = np.asarray(frame)
@@ -770,14 +778,18 @@ def pair_state(mech, pan, poses, frame, pairs, clearance, eps, separation=True, 
         turning = is_pivot & (pan.pivot_reach is not None)
         rows = np.flatnonzero(~apart & (~is_pivot | turning))
         scale = np.where(turning[rows], pan.pivot_reach[pos[rows]] if len(pan.pivot_keys) else 1.0, 1.0)
-        clear, bound = _cheap_separations(pan, poses, frame[rows], pairs[rows], clearance, eps,
-                                          None if not measure else np.asarray(need, float)[rows] * scale)
+        clear, bound, close = _cheap_separations(pan, poses, frame[rows], pairs[rows], clearance, eps,
+                                                 None if not measure else np.asarray(need, float)[rows] * scale)
         if measure:
             sep[rows[clear]] = np.where(turning[rows], np.maximum(bound / scale, angle[rows]), bound)[clear]
-        apart[rows[clear]] = True
+            sep[rows[close]] = 0.0
+        apart[rows[clear | close]] = True
+        hit = np.zeros(n, bool)
+        hit[rows[close]] = True
+    else:
+        hit = np.zeros(n, bool)
     if not apart.any():
         return _pair_state(mech, pan, poses, frame, pairs, clearance, eps, separation, need, angle)
-    hit = np.zeros(n, bool)
     rest = np.flatnonzero(~apart)
     if len(rest):
         sep[rest], hit[rest] = _pair_state(mech, pan, poses, frame[rest], pairs[rest], clearance, eps, separation,

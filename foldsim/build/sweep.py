@@ -381,7 +381,9 @@ def _near_pairs(mech, schedule, pan, profile, lo_t, hi_t, enough, tol):
     pairs = pairs[keep]
     if not len(pairs):
         return near
-    sep, hit = pair_state(mech, pan, poses, np.zeros(len(pairs), np.int64), pairs, enough, tol.contact * mech.size)
+    # Only the flags are wanted: any separation settles a pair (need 0).
+    _, hit = pair_state(mech, pan, poses, np.zeros(len(pairs), np.int64), pairs, enough, tol.contact * mech.size,
+                        need=np.zeros(len(pairs)))
     inside = _contained(pan, poses[0], pairs)
     for a, b in pairs[hit | inside].tolist():
         first, last = near.get((a, b), (lo_t, lo_t))
