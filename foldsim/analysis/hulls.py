@@ -55,28 +55,31 @@ def convex_items(tri_points, start, count, rel=1e-9):
         planes. A single triangle (a thin panel) does not.
     """
     n = len(start)
+    start, count = np.asarray(start, np.int64), np.asarray(count, np.int64)
     found = {}
-    for i, (s, c) in enumerate(zip(np.asarray(start).tolist(), np.asarray(count).tolist())):
-        if c < 4:
-            continue
-        tri = tri_points[s:s + c]
-        corners = np.unique(tri.reshape(-1, 3), axis=0)
-        if len(corners) > HULL_POINTS:
-            continue
-        normal = np.cross(tri[:, 1] - tri[:, 0], tri[:, 2] - tri[:, 0])
-        length = np.linalg.norm(normal, axis=1)
-        size = np.linalg.norm(corners - corners.mean(axis=0), axis=1).max()
-        keep = length > rel * size * size
-        if not keep.any():
-            continue
-        normal = normal[keep] / length[keep, None]
-        offset = np.einsum("fj,fj->f", normal, tri[keep, 0])
-        if (corners @ normal.T - offset > rel * size).any():
-            continue
-        planes = np.unique(np.round(normal, 9), axis=0)
-        if len(planes) > HULL_PLANES:
-            continue
-        found[i] = (corners, planes / np.linalg.norm(planes, axis=1, keepdims=True))
+    # Items of one triangle count at a time, all at once.
+    for c in np.unique(count[count >= 4]).tolist():
+        items = np.flatnonzero(count == c)
+        tri = tri_points[start[items][:, None] + np.arange(c)]  # (m, c, 3, 3)
+        corners, n_corners = _distinct_rows(tri.reshape(len(items), -1, 3))
+        normal = np.cross(tri[:, :, 1] - tri[:, :, 0], tri[:, :, 2] - tri[:, :, 0])
+        length = np.linalg.norm(normal, axis=2)
+        centre = corners.mean(axis=1)  # padding repeats a corner: inside the hull all the same
+        size = np.linalg.norm(corners - centre[:, None], axis=2).max(axis=1)
+        keep = length > rel * (size * size)[:, None]
+        unit_normal = normal / np.where(keep, length, 1.0)[..., None]
+        offset = np.einsum("mcj,mcj->mc", unit_normal, tri[:, :, 0])
+        side = np.einsum("mcj,mvj->mcv", unit_normal, corners) - offset[..., None]
+        convex = ~((side > (rel * size)[:, None, None]) & keep[..., None]).any(axis=(1, 2))
+        # Triangles too small to have a normal take the item's first one that has.
+        first = np.argmax(keep, axis=1)
+        rounded = np.where(keep[..., None], np.round(unit_normal, 9),
+                           np.round(unit_normal[np.arange(len(items)), first], 9)[:, None])
+        planes, n_planes = _distinct_rows(rounded)
+        ok = keep.any(axis=1) & convex & (n_corners <= HULL_POINTS) & (n_planes <= HULL_PLANES)
+        for k in np.flatnonzero(ok).tolist():
+            p = planes[k, :n_planes[k]]
+            found[int(items[k])] = (corners[k, :n_corners[k]], p / np.linalg.norm(p, axis=1, keepdims=True))
     n_points = max([len(c) for c, _ in found.values()], default=1)
     n_planes = max([len(p) for _, p in found.values()], default=1)
     points = np.full((n, n_points, 3), np.nan)
@@ -87,6 +90,21 @@ def convex_items(tri_points, start, count, rel=1e-9):
         normals[i] = planes[np.minimum(np.arange(n_planes), len(planes) - 1)]
         ok[i] = True
     return points, normals, ok
+
+
+def _distinct_rows(rows):
+    """The distinct 3-vectors of each item (m, N, 3), sorted, padded with the first, and their numbers (m,)."""
+    m, width = rows.shape[:2]
+    order = np.lexsort((rows[..., 2], rows[..., 1], rows[..., 0]), axis=-1)
+    ordered = np.take_along_axis(rows, order[..., None], axis=1)
+    new = np.ones((m, width), bool)
+    new[:, 1:] = (ordered[:, 1:] != ordered[:, :-1]).any(axis=2)
+    number = new.sum(axis=1)
+    rank = np.cumsum(new, axis=1) - 1
+    out = np.repeat(ordered[:, :1], width, axis=1)
+    r, k = np.nonzero(new)
+    out[r, rank[r, k]] = ordered[r, k]
+    return out[:, :max(1, int(number.max()))], number
 
 
 def nearest_corners(pa, pb):

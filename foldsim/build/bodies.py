@@ -103,21 +103,20 @@ def _cores(mech, solids, thin, convex, corners):
     """
     n = len(solids)
     reach = np.full(n, np.inf)
-    runs = []
-    for i, s in enumerate(solids):
-        f = s.face
-        poly = mech.flat_faces[f]
-        if s.kind != "panel" or not convex[i] or not _is_convex(poly, newell_normal(poly)):
-            runs.append(np.zeros((0, 3, 3)))
-            continue
-        tri = thin.tri_points[thin.start[f]:thin.start[f] + thin.count[f]]
-        points = corners[i]
-        reach[i] = float(point_triangle_distance(points[:, None], tri[None]).min(axis=1).max())
-        runs.append(tri)
-    count = np.array([len(r) for r in runs], np.int64)
+    faces = np.array([s.face for s in solids], np.int64)
+    cored = np.array([s.kind == "panel" and bool(convex[i]) and _is_convex(mech.flat_faces[s.face],
+                                                                          newell_normal(mech.flat_faces[s.face]))
+                      for i, s in enumerate(solids)], bool)
+    count = np.where(cored, thin.count[faces], 0)
+    for c in np.unique(count[cored]).tolist():
+        rows = np.flatnonzero(cored & (count == c))
+        tri = thin.tri_points[thin.start[faces[rows]][:, None] + np.arange(c)]  # (m, c, 3, 3)
+        dist = point_triangle_distance(corners[rows][:, :, None], tri[:, None])  # (m, V, c)
+        reach[rows] = dist.min(axis=2).max(axis=1)
+    runs = [thin.tri_points[thin.start[f]:thin.start[f] + c] for f, c in zip(faces.tolist(), count.tolist())]
     start = np.concatenate([[0], np.cumsum(count)[:-1]]).astype(np.int64)
     points = np.concatenate(runs) if count.sum() else np.zeros((0, 3, 3))
-    owners = np.array([s.face for s in solids], np.int64)
+    owners = faces
     empty = np.zeros(0, np.int64)
     core = Panels(tri_face=np.repeat(np.arange(n), count), tri_points=points, start=start, count=count,
                   skip_keys=empty, touch_keys=empty, pivot_keys=empty, pivot_dirs=np.zeros((0, 2, 2, 3)),
@@ -159,72 +158,62 @@ CONE_GENERATORS = 8
 
 
 def _corner_cones(solids, keys, points, eps):
-    """(P, 2, G, 3) extreme edge directions leaving each pivot point, per item of each pair (NaN: no corner there).
+    """(P, 2, G, 3) extreme directions leaving each pivot point, per item of each pair (NaN: no corner there).
 
-    Only convex solids (the prisms of convex panels) are held by the cone their
-    edges span at a corner; a gear body never has a corner at a panel's vertex,
-    and a prism that is not convex gets NaN too.
+    A convex solid with a corner at the point lies in the cone the directions to
+    its other corners span there, whose extreme rays are its edges at that corner
+    (`_extreme_rays`). Only convex solids (the prisms of convex panels) qualify; a
+    gear body never has a corner at a panel's vertex.
     """
     n = len(solids)
-    cache = {}
-    found = []
-    for k, (key, point) in enumerate(zip(keys.tolist(), points)):
-        for side, item in enumerate(divmod(key, n)):
-            token = (item, tuple(np.round(point, 9)))
-            if token not in cache:
-                cache[token] = _cone_at(solids[item], point, eps)
-            found.append(cache[token])
-    # As many generators as the largest cone has (repeats pad the others).
-    width = max([len(d) for d in found if d is not None], default=1)
-    out = np.full((len(keys) * 2, width, 3), np.nan)
-    for row, dirs in enumerate(found):
-        if dirs is not None:
-            out[row] = dirs[np.minimum(np.arange(width), len(dirs) - 1)]
+    count = np.array([len(s.triangles) for s in solids], np.int64)
+    start = np.concatenate([[0], np.cumsum(count)[:-1]]).astype(np.int64)
+    corners, _, convex = convex_items(np.concatenate([s.triangles for s in solids]), start, count)
+    panel = np.array([s.kind == "panel" for s in solids], bool)
+    items = np.column_stack([keys // n, keys % n]).reshape(-1)
+    apex_at = np.repeat(np.asarray(points, float).reshape(-1, 3), 2, axis=0)
+    d = corners[items] - apex_at[:, None]
+    length = np.linalg.norm(d, axis=2)
+    apex = length <= eps
+    has = convex[items] & panel[items] & apex.any(axis=1)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        dirs = d / length[..., None]
+    valid = has[:, None] & ~apex & np.isfinite(dirs).all(axis=2)
+    # The padding repeats a corner: only its first copy counts.
+    same = (dirs[:, :, None] == dirs[:, None]).all(axis=3)
+    valid &= ~np.tril(same, -1).any(axis=2)
+    keep = _extreme_rays(np.where(valid[..., None], dirs, 0.0), valid, eps)
+    number = keep.sum(axis=1)
+    ok = has & (number >= 2) & (number <= CONE_GENERATORS)
+    width = max(1, int(number[ok].max())) if ok.any() else 1
+    out = np.full((len(items), width, 3), np.nan)
+    for row in np.flatnonzero(ok).tolist():
+        kept = dirs[row, keep[row]]
+        out[row] = kept[np.minimum(np.arange(width), len(kept) - 1)]
     return out.reshape(len(keys), 2, width, 3)
 
 
-def _extreme(dirs, eps=1e-9):
-    """The generators (m, 3) of a pointed convex cone that no two others span (unit rows in, unit rows out).
+def _extreme_rays(dirs, valid, eps=1e-9):
+    """(T, m) bool: which unit directions (T, m, 3) no two others (``valid`` ones) span.
 
-    A mesh edge that splits a flat face (a triangulation's diagonal) lies in the
-    plane of two of the face's edges, between them, and generates nothing more.
+    A direction in the plane of two others and between them (a triangulation's
+    diagonal, a far corner of a side face) generates nothing more of the cone.
     """
-    m = len(dirs)
-    normal = np.cross(dirs[:, None], dirs[None])  # (i, j, 3)
-    ok = np.linalg.norm(normal, axis=2) > eps
-    plane = np.abs(np.einsum("ijx,kx->kij", normal, dirs)) <= eps
-    left = np.einsum("ikx,ijx->kij", np.cross(dirs[:, None], dirs[None]), normal) >= 0
-    right = np.einsum("kjx,ijx->kij", np.cross(dirs[:, None], dirs[None]), normal) >= 0
+    m = dirs.shape[1]
+    normal = np.cross(dirs[:, :, None], dirs[:, None])  # (T, i, j, 3)
+    ok = (np.linalg.norm(normal, axis=3) > eps) & valid[:, :, None] & valid[:, None, :]
+    plane = np.abs(np.einsum("tijx,tkx->tkij", normal, dirs)) <= eps
+    turn = np.cross(dirs[:, :, None], dirs[:, None])  # turn[t, a, b] = d_a x d_b
+    left = np.einsum("tikx,tijx->tkij", turn, normal) >= 0
+    right = np.einsum("tkjx,tijx->tkij", turn, normal) >= 0
     k, i, j = np.ogrid[:m, :m, :m]
-    spans = ok[None] & plane & left & right & (i != k) & (j != k) & (i != j)
-    return dirs[~spans.reshape(m, -1).any(axis=1)]
+    spans = ok[:, None] & plane & left & right & (i != k) & (j != k) & (i != j)
+    return valid & ~spans.reshape(len(dirs), m, -1).any(axis=2)
 
 
-def _cone_at(solid, point, eps):
-    """Unit directions of a convex solid's mesh edges leaving ``point``, or None."""
-    if solid.kind != "panel":
-        return None
-    tri = solid.triangles
-    at = np.linalg.norm(tri - point, axis=2) <= eps  # (n, 3)
-    if not at.any():
-        return None
-    corners = tri.reshape(-1, 3)
-    centre = corners.mean(axis=0)
-    # Convex: every corner lies on the inner side of every face plane.
-    normal = np.cross(tri[:, 1] - tri[:, 0], tri[:, 2] - tri[:, 0])
-    side = np.einsum("fj,kj->fk", normal, corners) - np.einsum("fj,fj->f", normal, tri[:, 0])[:, None]
-    scale = np.linalg.norm(normal, axis=1)[:, None] * np.linalg.norm(corners - centre, axis=1).max()
-    if (side > 1e-9 * np.maximum(scale, 1e-300)).any():
-        return None
-    rows = np.flatnonzero(at.any(axis=1))
-    others = tri[rows][~at[rows]]
-    d = others - point
-    d = d[np.linalg.norm(d, axis=1) > eps]
-    d = np.unique(np.round(d / np.linalg.norm(d, axis=1, keepdims=True), 12), axis=0)
-    d = _extreme(d / np.linalg.norm(d, axis=1, keepdims=True))
-    if len(d) > CONE_GENERATORS or len(d) < 2:
-        return None
-    return d
+def _extreme(dirs, eps=1e-9):
+    """The rows of unit directions (m, 3) that `_extreme_rays` keeps."""
+    return dirs[_extreme_rays(dirs[None], np.ones((1, len(dirs)), bool), eps)[0]]
 
 
 def body_speed_profile(mech, rates, solids):
