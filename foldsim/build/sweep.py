@@ -271,10 +271,12 @@ def gear_clearance(mech, spec, schedule=None, t_from=0.0, t_to=1.0, pairs=None, 
             ends[:-1] |= active_
             ends[1:] |= active_
             todo = np.flatnonzero(ends & ~exact & (lows < goal))
-            if not len(todo) and not exact.any():
-                # Every pair near enough to be here is measured once at least, where
-                # its bound is least (a range shorter than the resolution, or one t).
-                todo = np.array([int(np.argmin(lows))])
+            if not exact.any():
+                # A pair is first measured where its bound is least: that distance
+                # often settles the rest (bodies in contact, a clear nearest pose).
+                # Every pair near enough to be here is measured once at least (also
+                # over a range shorter than the resolution, or at one t).
+                todo = np.array([int(todo[np.argmin(lows[todo])]) if len(todo) else int(np.argmin(lows))])
             if len(todo):
                 d = solid_distances(mech, solids, pair, poses_at(mech, schedule, ts[todo], faces=faces[pair]),
                                     columns=(0, 1))
