@@ -473,6 +473,41 @@ def test_gear_contacts_are_where_python_fcl_finds_the_body_too_near():
         assert d.min() < 1.0
 
 
+def test_gear_contacts_without_a_clearance_are_where_bodies_touch_by_python_fcl():
+    # A geodesic sphere (80 panels, `foldsim new`'s net) with a default gear pair on
+    # every coupling: pairs that share a hinge put gears on top of each other. With
+    # no clearance a contact is a body within the distance resolution (1/1000 of
+    # the model's size) of another; python-fcl's distance at drive values inside
+    # each stretch must be within it, and every coupling the clearance rows find
+    # touching has a stretch.
+    fcl = pytest.importorskip("fcl")
+    from dataclasses import replace
+
+    from foldsim.build.gears import build_solids
+    from foldsim.build.sweep import RESOLUTION
+    from foldsim.design import build, shape_args
+    from foldsim.report import check
+
+    mech = build(shape_args("geodesic:1", size=100.0))[0]
+    gears = [{"coupling": c} for c in range(len(mech.couplings))]
+    mech = replace(mech, extras={**mech.extras, "build": {"thickness": 0.5, "gears": gears}})
+    report = check(mech)
+    floor = RESOLUTION * mech.size
+    contacts = report["gear_contacts"]
+    touching = {r["coupling"] for r in report["gear_clearance"]
+                if r["min_clearance"] is not None and r["min_clearance"] <= floor}
+    solids = build_solids(mech, build_spec(mech), tip=True)
+    label = {s.label: i for i, s in enumerate(solids)}
+    # A stretch names the couplings of both bodies when both are gears.
+    named = {solids[label[r[side]]].coupling for r in contacts for side in ("body", "with")
+             if solids[label[r[side]]].kind != "panel"}
+    assert touching and touching <= named
+    for row in contacts[::4]:
+        pair = (label[row["body"]], label[row["with"]])
+        t = np.linspace(row["first_t"], row["last_t"], 5)
+        assert (_dense_fcl(fcl, mech, solids, pair, t) <= floor + 1e-9).all()
+
+
 def test_sizing_grows_past_a_pair_that_shares_its_corner():
     # foldsim new octahedron: the drive hinge carries the gears of several pairs, two
     # of them at one corner, where their smallest gears overlap when flat. Sizing

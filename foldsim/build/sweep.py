@@ -313,12 +313,15 @@ def gear_clearance(mech, spec, schedule=None, t_from=0.0, t_to=1.0, pairs=None, 
 
 
 def gear_contacts(mech, spec, schedule=None, t_from=0.0, t_to=1.0, couplings=None, pairs=None, tol=DEFAULT):
-    """When gear bodies come nearer than ``spec.clearance`` (or cross, without one) to what they must not touch.
+    """When gear bodies come nearer than ``spec.clearance`` to what they must not touch.
 
     The collision sweep of `foldsim.analysis.sweep` on the prisms and the gear
     bodies grown to their tip circles, with the build's clearance, over the given
     couplings' bodies only (the report runs it for the couplings `gear_clearance`
-    found too near).
+    found too near). Without a clearance the sweep's distance resolution stands in
+    for it (``RESOLUTION * mech.size``, as `gear_clearance` counts a body that near
+    as touching): bodies that only touch are in contact too, and their stretches are
+    found at once, where a crossing test would refine along all of them.
 
     Returns
     -------
@@ -336,7 +339,8 @@ def gear_contacts(mech, spec, schedule=None, t_from=0.0, t_to=1.0, couplings=Non
         return []
     carrier = {p.coupling: p.carrier for p in pairs}
     pan = body_panels(mech, solids, allowed_pairs(solids, carrier), passive=~active, pivots=panels(mech, tol))
-    found = collision_intervals(mech, schedule, lo_t, hi_t, clearance=spec.clearance, tol=tol, pan=pan,
+    clearance = spec.clearance if spec.clearance > 0 else RESOLUTION * mech.size
+    found = collision_intervals(mech, schedule, lo_t, hi_t, clearance=clearance, tol=tol, pan=pan,
                                 profile=body_speed_profile(mech, schedule.rates, solids))
     out = []
     for row in found:
