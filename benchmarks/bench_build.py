@@ -23,6 +23,9 @@ Rows:
     runs them, and the ratio of the two build sweeps to the thin one.
 (e) gear sizing (`build.sizing.size_gears`, as `foldsim new icosahedron --thickness 2
     --module 1` runs it) on the icosahedron's net.
+(f) the whole `foldsim check` (`report.check`) of the models of (d), with and without
+    their `build` object: what a user waits for, every build check included (stops,
+    sector coverage, the gear clearance, the gear contacts it finds, the clashes).
 """
 
 import argparse
@@ -100,6 +103,8 @@ def main(argv=None):
         for k in (2, 3) if args.large else (2,):
             sweep_rows(k)
         sizing_row()
+        for k in (2, 3) if args.large else (2,):
+            check_row(k)
     return 0 if ok_all else 1
 
 
@@ -136,6 +141,22 @@ def sweep_rows(k):
           f"({len(thin)} intervals); thick-panel clashes {clash_s:.2f} s ({len(clashes)}); gear clearance "
           f"{gear_s:.2f} s ({near} pairs with something within the threshold); build / thin = "
           f"{(clash_s + gear_s) / thin_s:.1f}x")
+
+
+def check_row(k):
+    import time
+
+    mech = designed(k)
+    thin_mech = replace(mech, extras={key: v for key, v in mech.extras.items() if key != "build"})
+    start = time.perf_counter()
+    thin = check(thin_mech)
+    thin_s = time.perf_counter() - start
+    start = time.perf_counter()
+    built = check(mech)
+    build_s = time.perf_counter() - start
+    print(f"(f) check of geodesic:{k} ({mech.n_faces} panels): thin {thin_s:.2f} s ({len(thin['collisions'])} "
+          f"collisions); with the build {build_s:.2f} s ({len(built['gear_contacts'])} gear contact stretches, "
+          f"{len(built['panel_clashes'])} clashes); ratio {build_s / thin_s:.1f}x")
 
 
 def sizing_row():

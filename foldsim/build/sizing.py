@@ -4,14 +4,20 @@ Bigger gears give less play (an angular backlash is the linear backlash over the
 pitch radius), but their size is limited by the point of the motion where they
 must pass other gears and panels. With the module fixed, a cone pair's size grows
 with its teeth: ``k`` times the pair's smallest tooth counts in its ratio. For
-every bevel and remote pair in turn, in coupling order, `size_gears` finds the
-largest ``k`` whose gear bodies keep ``clearance`` from every body they may not
-touch over the whole motion (`foldsim.build.sweep.gear_clearance`), with the pairs
-already sized at their chosen size and the rest at their smallest; the sweep is
-monotone enough in ``k`` for a bisection. The neighbour that stopped the next
-larger size is reported. A pair too near at its smallest size (typically to
-the gear another pair keeps on the same hinge, at the same corner) tries larger
-sizes, each half as large again, and grows from the first that passes. A spur
+every bevel and remote pair `size_gears` finds, in two passes in coupling order,
+the ``k`` whose gear bodies keep ``clearance`` from every body they may not touch
+over the whole motion (`foldsim.build.sweep.gear_clearance`). The first puts
+every pair at its smallest size that passes; a pair too near at its smallest
+(typically to the gear another pair keeps on the same hinge, at the same corner)
+tries larger sizes, each half as large again. The second grows each pair in turn
+to the largest ``k`` the others, as they then stand, leave room for (the sweep is
+monotone enough in ``k`` for a bisection), and reports the neighbour that stopped
+the next larger size. Clearance is symmetric, so a pair that passes keeps passing
+as the others settle and grow, and no pair grows into room another needed to get
+out of a corner (a single greedy pass let that happen). A size passes when the
+sweep proves every distance over the motion above the clearance and above the
+distance resolution of `check` (its ``guaranteed_min``), so that what is written
+also passes the check. A spur
 pair's size is fixed by the distance between its hinges (module ``2 a / (z_i +
 z_j)``); it is checked, not sized.
 """
@@ -23,7 +29,7 @@ from dataclasses import replace
 from ..errors import ModelError
 from ..tolerances import DEFAULT
 from .spec import build_spec
-from .sweep import gear_clearance
+from .sweep import RESOLUTION, gear_clearance
 
 SIZING_RESOLUTION = 5e-3
 """Distance resolution of the sizing sweeps, relative to the model's size (coarser than the check's)."""
@@ -125,44 +131,61 @@ def size_gears(mech, thickness, module, clearance=0.0, max_teeth=200, tol=DEFAUL
 
     for k in base:
         entries[k] = entry(k, scale[k])
+
+    def trial(k, s):
+        entries[k] = entry(k, s)
+        build["gears"] = [entries[c] for c in sorted(entries)]
+        return _clearance_of(mech, dict(build), k, tol, cache)
+
+    # What `check` then reports as touching: nearer than its distance resolution.
+    floor = RESOLUTION * mech.size
+
+    def passes(row):
+        # Proved, not only sampled: no distance over the motion is below the
+        # clearance, nor within the check's resolution (the sweep's guaranteed_min).
+        if row["min_clearance"] is None:
+            return True
+        least = row.get("guaranteed_min")
+        return least is not None and least > max(clearance, floor)
+
+    tops = {k: max(scale[k], max_teeth // max(base[k])) for k in base}
+    # First every pair at the smallest size that passes, the others as they stand:
+    # a pair too near at its smallest, often to the gear another pair keeps on the
+    # same hinge at the same corner, tries larger sizes (a larger pair sits farther
+    # out along the cone), half as many again each time. A pair's clearance to
+    # another is the other's to it, so a pair that passes keeps passing as the
+    # later ones settle, and none has grown yet into room another needs.
+    size, first = {}, {}
+    for k in base:
+        s = scale[k]
+        row = trial(k, s)
+        if kinds[k] != "spur":
+            while not passes(row) and s < tops[k]:
+                s = min(tops[k], max(s + 1, (3 * s) // 2))
+                row = trial(k, s)
+            if not passes(row):
+                s = scale[k]
+                row = trial(k, s)
+        size[k], first[k] = s, row
+        entries[k] = entry(k, s)
+    # Then each pair in turn grows as far as the others, as they stand, leave room
+    # for (a bisection).
     rows = []
     for k in base:
-        zi, zj = base[k]
-        top = max(scale[k], max_teeth // max(zi, zj))
-
-        def trial(s):
-            entries[k] = entry(k, s)
-            build["gears"] = [entries[c] for c in sorted(entries)]
-            return _clearance_of(mech, dict(build), k, tol, cache)
-
-        def passes(row):
-            d = row["min_clearance"]
-            return d is None or d >= max(clearance, 1e-12)
-
-        lo = scale[k]
-        row_lo = trial(lo)
+        lo, row_lo = size[k], first[k]
+        entries[k] = entry(k, lo)
         limited = None
-        if kinds[k] != "spur" and not passes(row_lo):
-            # Too near at its smallest, often to the gear another pair keeps on the
-            # same hinge at the same corner: a larger pair sits farther out along the
-            # cone, so try sizes up to the largest, half as many again each time.
-            s = lo
-            while s < top:
-                s = min(top, max(s + 1, (3 * s) // 2))
-                row = trial(s)
-                if passes(row):
-                    lo, row_lo = s, row
-                    break
         if kinds[k] != "spur" and passes(row_lo):
-            hi = top
-            row_hi = trial(hi)
+            row_lo = trial(k, lo)  # the pairs sized since
+            hi = tops[k]
+            row_hi = trial(k, hi) if hi > lo else row_lo
             if passes(row_hi):
                 lo, row_lo, limited = hi, row_hi, f"at most {max_teeth} teeth"
             else:
                 limited = row_hi["with"]
                 while hi - lo > 1:
                     mid = (lo + hi) // 2
-                    row = trial(mid)
+                    row = trial(k, mid)
                     if passes(row):
                         lo, row_lo = mid, row
                     else:
@@ -170,6 +193,7 @@ def size_gears(mech, thickness, module, clearance=0.0, max_teeth=200, tol=DEFAUL
         elif kinds[k] == "spur":
             limited = "the distance between its hinges"
         else:
+            row_lo = trial(k, lo)
             limited = row_lo["with"]
         entries[k] = entry(k, lo)
         build["gears"] = [entries[c] for c in sorted(entries)]
