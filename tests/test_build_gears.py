@@ -587,3 +587,37 @@ def test_gear_clearance_over_a_range_shorter_than_its_resolution_still_measures(
     pair = (label[row["body"]], label[row["with"]])
     d = _dense_fcl(fcl, mech, solids, pair, np.array([row["at_t"]]))[0]
     assert row["min_clearance"] == pytest.approx(d, abs=1e-6 * mech.size)
+
+
+def test_first_pose_containment_matches_trimesh():
+    # Items packed as the sweep packs them (trimesh's boxes): a cube of side 4, a
+    # unit cube inside it, and a unit cube outside. Whether one holds a corner of
+    # the other is whether that corner lies inside the box (elementary geometry).
+    trimesh = pytest.importorskip("trimesh")
+    import itertools
+
+    from foldsim.analysis.panels import Panels
+    from foldsim.build.sweep import _contained
+
+    def cube(lo, side):
+        box = trimesh.creation.box(extents=[side] * 3)
+        box.apply_translation(np.asarray(lo) + side / 2.0)
+        return box
+
+    meshes = [cube([0, 0, 0], 4.0), cube([1, 1, 1], 1.0), cube([6, 0, 0], 1.0)]
+    tri = np.concatenate([m.triangles for m in meshes])
+    count = np.array([len(m.triangles) for m in meshes])
+    start = np.concatenate([[0], np.cumsum(count)[:-1]])
+    empty = np.zeros(0, np.int64)
+    pan = Panels(tri_face=np.repeat(np.arange(3), count), tri_points=tri, start=start, count=count,
+                 skip_keys=empty, touch_keys=empty, pivot_keys=empty, pivot_dirs=np.zeros((0, 2, 2, 3)),
+                 pivot_path=np.zeros((0, 0), bool), centre=np.zeros((3, 3)), radius=np.ones(3))
+    pairs = np.array(list(itertools.combinations(range(3), 2)))
+    got = _contained(pan, np.repeat(np.eye(4)[None], 3, axis=0), pairs)
+    boxes = [m.bounds for m in meshes]
+
+    def inside(box, point):
+        return bool(((point > box[0]) & (point < box[1])).all())
+
+    want = [inside(boxes[a], tri[start[b], 0]) or inside(boxes[b], tri[start[a], 0]) for a, b in pairs]
+    assert got.tolist() == want == [True, False, False]

@@ -586,7 +586,7 @@ core bound to stand in for their exact distance (`_cheap_separations`)."""
 
 
 def _cheap_separations(pan, poses, frame, pairs, clearance, eps, need):
-    """Item pairs (not pivoting) settled by a cheap lower bound on their distance.
+    """Item pairs settled by a cheap lower bound on their distance (pivoting items: `pair_state` scales it).
 
     Two bounds, each far cheaper than the triangle tests of two solids:
 
