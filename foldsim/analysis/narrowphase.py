@@ -638,7 +638,10 @@ def _cheap_separations(pan, poses, frame, pairs, clearance, eps, need):
         rows = np.flatnonzero(~clear & pan.hull_ok[pairs].all(axis=1))
         if len(rows):
             pa, na, pb, nb = _posed_hulls(pan, poses, frame[rows], pairs[rows])
-            near = nearest_corners(pa, pb)
+            # Start from the nearest two corners, or for solids of many corners from
+            # the centroids (both points of A - B).
+            near = (nearest_corners(pa, pb) if pa.shape[1] <= NEAREST_CORNERS
+                    else pa.mean(axis=1) - pb.mean(axis=1))
             low = np.maximum(hull_gap(pa, na, pb, nb, near), bound[rows] + room[rows])
             low, high = hull_distance_bounds(pa, pb, low, wanted[rows], HULL_SLACK, offset=room[rows], near=near)
             low, high = low - room[rows], high - room[rows]
@@ -657,6 +660,9 @@ def _core_distances(core, poses, frame, pairs, eps):
     hit, dist = _many_triangles(core, poses, frame, pairs, eps, True, np.full(len(pairs), np.inf))
     return np.where(hit, 0.0, dist)
 
+
+NEAREST_CORNERS = 12
+"""Most corners for Gilbert's algorithm to start from the nearest two (`_cheap_separations`)."""
 
 HULL_SLACK = 0.25
 """Share of two convex items' distance that the lower bound from their corners

@@ -311,12 +311,26 @@ def _posed_triangles(pan, poses):
     return transform_points(poses[:, pan.tri_face][:, :, None], pan.tri_points[None])
 
 
+BOX_CORNERS = 12
+"""Most corners a convex item may have for the sweep's boxes to be taken from its corners (`_face_boxes`)."""
+
+
 def _face_boxes(pan, poses):
     """Bounding boxes (T, F, 3) lo and hi of every face at every pose set (T, F, 4, 4).
 
-    Items that are all convex solids (``pan.hull_ok``) take the box of their
-    corners, the same box from fewer points than their triangles' corners.
+    Items with oriented boxes (``pan.box_axes``: solids) take the axis-aligned box
+    of their posed oriented box, a few operations per item whatever its mesh;
+    items that are all convex solids with few corners (``pan.hull_ok``) the box of
+    their corners, the tight box from fewer points than their triangles' corners.
     """
+    if pan.box_axes is not None and (pan.hull_ok is None or pan.hull_points.shape[1] > BOX_CORNERS
+                                     or not pan.hull_ok.all()):
+        rot, move = poses[..., :3, :3], poses[..., :3, 3]
+        centre = np.einsum("tfij,fj->tfi", rot, pan.box_centre) + move
+        # Half extents along the world axes: sum over the box's axes a_k of |R a_k| h_k.
+        axes = np.einsum("tfij,fkj->tfki", rot, pan.box_axes)
+        reach = np.einsum("tfki,fk->tfi", np.abs(axes), pan.box_half)
+        return centre - reach, centre + reach
     if pan.hull_ok is not None and len(pan.hull_ok) and pan.hull_ok.all():
         pts = (np.einsum("tfij,fvj->tfvi", poses[..., :3, :3], pan.hull_points)
                + poses[:, :, None, :3, 3])
