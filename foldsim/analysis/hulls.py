@@ -45,10 +45,10 @@ def convex_items(tri_points, start, count, rel=1e-9):
     Returns
     -------
     points : (F, V, 3) float
-        Corners, padded with the first (NaN for an item that does not qualify); V
+        Corners, padded with the last (NaN for an item that does not qualify); V
         is the most corners of any item that qualifies.
     normals : (F, P, 3) float
-        Outward unit face normals, padded with the first; P likewise.
+        Outward unit face normals, padded with the last; P likewise.
     ok : (F,) bool
         Items that qualify: closed and convex (every corner on the inner side of
         every face plane), with at most `HULL_POINTS` corners and `HULL_PLANES`

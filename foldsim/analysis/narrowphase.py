@@ -635,13 +635,17 @@ def _cheap_separations(pan, poses, frame, pairs, clearance, eps, need):
             ok = (low > 2.0 * eps) & ((low >= wanted[rows]) | (low >= (1.0 - CORE_SLACK) * dist))
             clear[rows] = ok
     if pan.hull_ok is not None:
-        rows = np.flatnonzero(~clear & pan.hull_ok[pairs].all(axis=1))
-        if len(rows):
-            pa, na, pb, nb = _posed_hulls(pan, poses, frame[rows], pairs[rows])
+        todo = np.flatnonzero(~clear & pan.hull_ok[pairs].all(axis=1))
+        corners, planes = _hull_sizes(pan)
+        width = np.stack([corners[pairs[todo]].max(axis=1), planes[pairs[todo]].max(axis=1)], axis=1)
+        # Pairs of one size at a time, their padding cut to it (prisms against
+        # prisms do not pay for the corners of a fine gear body).
+        for v, p in np.unique(width, axis=0).tolist():
+            rows = todo[(width[:, 0] == v) & (width[:, 1] == p)]
+            pa, na, pb, nb = _posed_hulls(pan, poses, frame[rows], pairs[rows], v, p)
             # Start from the nearest two corners, or for solids of many corners from
             # the centroids (both points of A - B).
-            near = (nearest_corners(pa, pb) if pa.shape[1] <= NEAREST_CORNERS
-                    else pa.mean(axis=1) - pb.mean(axis=1))
+            near = nearest_corners(pa, pb) if v <= NEAREST_CORNERS else pa.mean(axis=1) - pb.mean(axis=1)
             low = np.maximum(hull_gap(pa, na, pb, nb, near), bound[rows] + room[rows])
             low, high = hull_distance_bounds(pa, pb, low, wanted[rows], HULL_SLACK, offset=room[rows], near=near)
             low, high = low - room[rows], high - room[rows]
@@ -649,6 +653,15 @@ def _cheap_separations(pan, poses, frame, pairs, clearance, eps, need):
             clear[rows] = (low > 2.0 * eps) & ((low >= wanted[rows]) | (low >= (1.0 - HULL_SLACK) * high))
             close[rows] = (room[rows] > 0.0) & (high < -2.0 * eps)
     return clear, bound, close
+
+
+def _hull_sizes(pan):
+    """(F,) corners and (F,) face planes of each item's hull (its arrays pad with the last)."""
+    out = []
+    for rows in (pan.hull_points, pan.hull_normals):
+        last = (rows == rows[:, -1:]).all(axis=2)
+        out.append(np.argmax(last, axis=1) + 1)
+    return out
 
 
 def _core_distances(core, poses, frame, pairs, eps):
@@ -669,14 +682,17 @@ HULL_SLACK = 0.25
 may fall short by for it to stand in for the exact distance (`_cheap_separations`)."""
 
 
-def _posed_hulls(pan, poses, frame, pairs):
-    """Posed corners and face normals of both items of each pair: pa, na, pb, nb (n, V or P, 3)."""
+def _posed_hulls(pan, poses, frame, pairs, corners=None, planes=None):
+    """Posed corners and face normals of both items of each pair: pa, na, pb, nb (n, V or P, 3).
+
+    ``corners``, ``planes``: keep only that many (the padding repeats the last).
+    """
     out = []
     for side in (0, 1):
         m = poses[frame, pairs[:, side]]
         rot, move = m[:, :3, :3], m[:, :3, 3]
-        out.append(np.einsum("nij,nvj->nvi", rot, pan.hull_points[pairs[:, side]]) + move[:, None])
-        out.append(np.einsum("nij,nvj->nvi", rot, pan.hull_normals[pairs[:, side]]))
+        out.append(np.einsum("nij,nvj->nvi", rot, pan.hull_points[pairs[:, side], :corners]) + move[:, None])
+        out.append(np.einsum("nij,nvj->nvi", rot, pan.hull_normals[pairs[:, side], :planes]))
     return out
 
 
