@@ -283,3 +283,13 @@ def turn_subtrees(start, faces, hinges, root, angles):
         for f in {child} | nx.descendants(tree, child):
             now[f] = turn.apply(now[f] - a) + a
     return now
+
+
+def fcl_object(fcl, triangles):
+    """A python-fcl collision object holding a triangle soup (n, 3, 3), posed already."""
+    tri = np.asarray(triangles, float)
+    model = fcl.BVHModel()
+    model.beginModel(3 * len(tri), len(tri))
+    model.addSubModel(tri.reshape(-1, 3), np.arange(3 * len(tri)).reshape(-1, 3))
+    model.endModel()
+    return fcl.CollisionObject(model, fcl.Transform())

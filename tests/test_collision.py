@@ -10,6 +10,7 @@ from foldsim.gearing import fold_schedule
 from foldsim.kinematics import poses_at
 from foldsim.model import Coupling, build_mechanism
 from foldsim.tolerances import DEFAULT
+from helpers import fcl_object
 
 T_RES = 1e-3  # the reporting resolution promised in docs/cli.md
 
@@ -134,11 +135,7 @@ def test_brief_collision_between_grid_points_is_found():
         for f in (1, 2):
             rows = pan.tri_face == f
             tri = np.einsum("ij,nkj->nki", p[f, :3, :3], pan.tri_points[rows]) + p[f, :3, 3]
-            model = fcl.BVHModel()
-            model.beginModel(3 * len(tri), len(tri))
-            model.addSubModel(tri.reshape(-1, 3), np.arange(3 * len(tri)).reshape(-1, 3))
-            model.endModel()
-            objs.append(fcl.CollisionObject(model, fcl.Transform()))
+            objs.append(fcl_object(fcl, tri))
         if fcl.collide(objs[0], objs[1], fcl.CollisionRequest(), fcl.CollisionResult()):
             hit_t.append(t)
     first, last = min(hit_t), max(hit_t)

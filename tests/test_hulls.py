@@ -10,6 +10,7 @@ import pytest
 from scipy.spatial import ConvexHull
 
 from foldsim.analysis.hulls import convex_items, hull_distance_bounds, hull_gap
+from helpers import fcl_object
 
 ROOT = Path(__file__).resolve().parent.parent
 
@@ -26,13 +27,7 @@ def _hull_triangles(points):
 
 
 def _fcl_distance(fcl, ta, tb):
-    objects = []
-    for tri in (ta, tb):
-        model = fcl.BVHModel()
-        model.beginModel(3 * len(tri), len(tri))
-        model.addSubModel(tri.reshape(-1, 3), np.arange(3 * len(tri)).reshape(-1, 3))
-        model.endModel()
-        objects.append(fcl.CollisionObject(model, fcl.Transform()))
+    objects = [fcl_object(fcl, ta), fcl_object(fcl, tb)]
     if fcl.collide(objects[0], objects[1], fcl.CollisionRequest(), fcl.CollisionResult()):
         return 0.0
     return fcl.distance(objects[0], objects[1], fcl.DistanceRequest(), fcl.DistanceResult())
