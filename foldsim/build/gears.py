@@ -264,6 +264,20 @@ def gear_pairs(mech, spec, tol=DEFAULT):
     ModelError
         Naming ``build.gears[k]`` and the field that does not fit the geometry.
     """
+    # Kept per mechanism and spec while both live: a check resolves its pairs on load
+    # and again for its sweeps, and the pairs key their bodies (`gear_solids`).
+    known = _PAIRS.setdefault(mech, weakref.WeakKeyDictionary()).setdefault(spec, {})
+    if tol not in known:
+        known[tol] = tuple(_resolve_pairs(mech, spec, tol))
+    return list(known[tol])
+
+
+_PAIRS = weakref.WeakKeyDictionary()
+"""The resolved pairs of each mechanism, by spec and tolerances (`gear_pairs`)."""
+
+
+def _resolve_pairs(mech, spec, tol):
+    """`gear_pairs` without the cache."""
     rates = fold_schedule(mech, tol).rates
     hinge_play, mesh_play = _play(mech)
     normal = _unit(geometry.newell_normals([mech.flat_faces[mech.root]])[0])
