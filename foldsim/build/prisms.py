@@ -66,6 +66,25 @@ class Solid:
 
 
 def edge_closing_angles(mech):
+    """The fold angle every face edge closes at (`_edge_closing_angles`, kept per mechanism).
+
+    Returns
+    -------
+    list of (n,) float
+        As `_edge_closing_angles`; callers must not change them.
+    """
+    if mech not in _CLOSING:
+        angles = _edge_closing_angles(mech)
+        for row in angles:
+            row.flags.writeable = False
+        _CLOSING[mech] = angles
+    return _CLOSING[mech]
+
+
+_CLOSING = weakref.WeakKeyDictionary()
+
+
+def _edge_closing_angles(mech):
     """The fold angle every face edge closes at.
 
     Parameters
