@@ -36,6 +36,7 @@ def test_file_without_build_reads_as_before():
     ({"thickness": 1, "gears": [{"coupling": 0}]}, "build.gears[0].coupling: coupling 0 out of range"),
     ({"thickness": 1, "colour": "red"}, "build: unknown key 'colour'"),
     ({"thickness": 6}, "build.thickness: panel 0 is too thick"),
+    ({"thickness": 1, "faces": [{"face": 2, "thickness": 6}]}, "build.faces: panel 2 is too thick"),
 ])
 def test_bad_build_names_the_field(build, message):
     with pytest.raises(ModelError) as err:

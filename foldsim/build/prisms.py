@@ -249,10 +249,70 @@ def panel_solids(mech, spec, erode=0.0, tol=DEFAULT):
     known = _PRISMS.setdefault(mech, {})
     if key not in known:
         closing = edge_closing_angles(mech)
-        known[key] = tuple(panel_solid(mech, spec, f, closing, erode, tol) for f in range(mech.n_faces))
+        sizes = np.array([len(p) for p in mech.flat_faces])
+        out = [None] * mech.n_faces
+        for k in np.unique(sizes).tolist():
+            faces = np.flatnonzero(sizes == k)
+            for f, tris in zip(faces.tolist(), _prisms_of(mech, spec, faces, closing, erode, tol)):
+                out[f] = Solid(int(f), f"panel {f}", "panel", tris)
+        known[key] = tuple(out)
         for solid in known[key]:
             solid.triangles.flags.writeable = False  # shared between callers
     return list(known[key])
+
+
+def _prisms_of(mech, spec, faces, closing, erode, tol):
+    """The triangles (m, 2 c + 2 k (L - 1), 3, 3) of the prisms of faces that all have k corners.
+
+    `panel_solid`'s steps for all of them at once (same values, same order).
+    """
+    poly = np.array([mech.flat_faces[f] for f in faces.tolist()])  # (m, k, 3)
+    m, k = poly.shape[:2]
+    normal = geometry.newell_normals(list(poly))
+    normal = normal / np.linalg.norm(normal, axis=1, keepdims=True)
+    half = np.tan(np.array([np.asarray(closing[f], float) for f in faces.tolist()]) / 2.0)  # (m, k)
+    levels = np.array([_levels(spec, f) for f in faces.tolist()])  # (m, L)
+    levels = (levels + np.where(levels == levels.min(axis=1, keepdims=True), erode, 0.0)
+              - np.where(levels == levels.max(axis=1, keepdims=True), erode, 0.0))
+    d = np.roll(poly, -1, axis=1) - poly
+    length = np.linalg.norm(d, axis=2)
+    unit_d = d / length[..., None]
+    inward = np.cross(normal[:, None], unit_d)
+    prev_d, prev_in = np.roll(unit_d, 1, axis=1), np.roll(inward, 1, axis=1)
+    across_prev = np.einsum("mkj,mkj->mk", unit_d, prev_in)
+    across = np.einsum("mkj,mkj->mk", prev_d, inward)
+    parallel = (np.abs(across_prev) < 1e-12) | (np.abs(across) < 1e-12)
+    rings = []
+    for z in levels.T:  # (m,) one level of every face
+        shift = np.maximum(0.0, -z[:, None] * half) + erode
+        prev_s = np.roll(shift, 1, axis=1)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            x = np.where(parallel, 0.0, shift / across)
+            y = np.where(parallel, 0.0, prev_s / across_prev)
+        ring = np.where(parallel[..., None], poly + shift[..., None] * inward,
+                        poly + x[..., None] * prev_d + y[..., None] * unit_d) + z[:, None, None] * normal[:, None]
+        moved = np.roll(ring, -1, axis=1) - ring
+        thin = (np.einsum("mkj,mkj->mk", moved, d) <= tol.coincident * mech.size * length).any(axis=1)
+        if thin.any():
+            f = int(faces[np.argmax(thin)])
+            field = "build.thickness" if f not in spec.doc.faces else "build.faces"
+            raise ModelError(f"{field}: panel {f} is too thick for the bevels its edges need "
+                             f"(thickness {spec.thickness[f]:.6g} {mech.units})")
+        rings.append(ring)
+    caps = [np.array([[0, 1, 2]]) if k == 3 else triangulate(mech.flat_faces[f]) for f in faces.tolist()]
+    side = np.arange(k)
+    nxt = (side + 1) % k
+    out = []
+    for row in range(m):
+        cap = caps[row]
+        tris = [rings[0][row][cap[:, ::-1]], rings[-1][row][cap]]
+        for lo, hi in zip(rings[:-1], rings[1:]):
+            lo, hi = lo[row], hi[row]
+            quads = np.stack([np.stack([lo[side], lo[nxt], hi[nxt]], axis=1),
+                              np.stack([lo[side], hi[nxt], hi[side]], axis=1)], axis=1)  # (k, 2, 3, 3)
+            tris.append(quads.reshape(-1, 3, 3))
+        out.append(np.concatenate(tris, axis=0))
+    return out
 
 
 _PRISMS = weakref.WeakKeyDictionary()
