@@ -133,31 +133,31 @@ def _inset_polygon(poly, normal, shift):
 
     Parameters
     ----------
-    poly : (k, 3) float
-        Counter-clockwise about ``normal``.
-    normal : (3,) float
+    poly : (..., k, 3) float
+        Counter-clockwise about ``normal``; leading axes for many polygons at once.
+    normal : (..., 3) float
         Unit.
-    shift : (k,) float
+    shift : (..., k) float
 
     Returns
     -------
-    (k, 3) float
+    (..., k, 3) float
         Vertex k where the moved edges k-1 and k cross.
     """
-    d = np.roll(poly, -1, axis=0) - poly
-    d = d / np.linalg.norm(d, axis=1)[:, None]
-    inward = np.cross(normal, d)
-    prev_d, prev_in, prev_s = np.roll(d, 1, axis=0), np.roll(inward, 1, axis=0), np.roll(shift, 1)
+    d = np.roll(poly, -1, axis=-2) - poly
+    d = d / np.linalg.norm(d, axis=-1)[..., None]
+    inward = np.cross(np.asarray(normal)[..., None, :], d)
+    prev_d, prev_in, prev_s = np.roll(d, 1, axis=-2), np.roll(inward, 1, axis=-2), np.roll(shift, 1, axis=-1)
     # p = poly[k] + x d[k-1] + y d[k] with (p - poly[k]) . inward[k-1] = s[k-1] and
     # (p - poly[k]) . inward[k] = s[k]; d[j] . inward[j] = 0.
-    across_prev = np.einsum("ij,ij->i", d, prev_in)
-    across = np.einsum("ij,ij->i", prev_d, inward)
+    across_prev = (d * prev_in).sum(axis=-1)
+    across = (prev_d * inward).sum(axis=-1)
     parallel = (np.abs(across_prev) < 1e-12) | (np.abs(across) < 1e-12)
     with np.errstate(divide="ignore", invalid="ignore"):
         x = np.where(parallel, 0.0, shift / across)
         y = np.where(parallel, 0.0, prev_s / across_prev)
-    out = poly + x[:, None] * prev_d + y[:, None] * d
-    return np.where(parallel[:, None], poly + shift[:, None] * inward, out)
+    out = poly + x[..., None] * prev_d + y[..., None] * d
+    return np.where(parallel[..., None], poly + shift[..., None] * inward, out)
 
 
 def panel_rings(mech, spec, f, closing=None, erode=0.0, tol=DEFAULT):
@@ -184,24 +184,7 @@ def panel_rings(mech, spec, f, closing=None, erode=0.0, tol=DEFAULT):
         When the bevels leave no panel.
     """
     closing = edge_closing_angles(mech) if closing is None else closing
-    poly = mech.flat_faces[f]
-    normal = geometry.newell_normals([poly])[0]
-    normal = normal / np.linalg.norm(normal)
-    half = np.tan(np.asarray(closing[f]) / 2.0)
-    levels = _levels(spec, f)
-    levels = levels + np.where(levels == levels.min(), erode, 0.0) - np.where(levels == levels.max(), erode, 0.0)
-    rings = []
-    d = np.roll(poly, -1, axis=0) - poly
-    for z in levels:
-        shift = np.maximum(0.0, -z * half) + erode
-        ring = _inset_polygon(poly, normal, shift) + z * normal
-        moved = np.roll(ring, -1, axis=0) - ring
-        if (np.einsum("ij,ij->i", moved, d) <= tol.coincident * mech.size * np.linalg.norm(d, axis=1)).any():
-            field = "build.thickness" if f not in spec.doc.faces else "build.faces"
-            raise ModelError(f"{field}: panel {f} is too thick for the bevels its edges need "
-                             f"(thickness {spec.thickness[f]:.6g} {mech.units})")
-        rings.append(ring)
-    return rings
+    return [ring[0] for ring in _rings_of(mech, spec, np.array([f]), closing, erode, tol)]
 
 
 def panel_solid(mech, spec, f, closing, erode=0.0, tol=DEFAULT):
@@ -227,16 +210,8 @@ def panel_solid(mech, spec, f, closing, erode=0.0, tol=DEFAULT):
     ModelError
         When the bevels leave no panel (``build.thickness`` too large for it).
     """
-    poly = mech.flat_faces[f]
-    rings = panel_rings(mech, spec, f, closing, erode, tol)
-    caps = triangulate(poly)
-    n = len(poly)
-    tris = [rings[0][caps[:, ::-1]], rings[-1][caps]]
-    for lo, hi in zip(rings[:-1], rings[1:]):
-        for k in range(n):
-            k1 = (k + 1) % n
-            tris.append(np.array([[lo[k], lo[k1], hi[k1]], [lo[k], hi[k1], hi[k]]]))
-    return Solid(int(f), f"panel {f}", "panel", np.concatenate(tris, axis=0))
+    (tris,) = _prisms_of(mech, spec, np.array([f]), closing, erode, tol)
+    return Solid(int(f), f"panel {f}", "panel", tris)
 
 
 def panel_solids(mech, spec, erode=0.0, tol=DEFAULT):
@@ -261,13 +236,9 @@ def panel_solids(mech, spec, erode=0.0, tol=DEFAULT):
     return list(known[key])
 
 
-def _prisms_of(mech, spec, faces, closing, erode, tol):
-    """The triangles (m, 2 c + 2 k (L - 1), 3, 3) of the prisms of faces that all have k corners.
-
-    `panel_solid`'s steps for all of them at once (same values, same order).
-    """
+def _rings_of(mech, spec, faces, closing, erode, tol):
+    """`panel_rings` of faces that all have k corners, at once: a list of L (m, k, 3) levels."""
     poly = np.array([mech.flat_faces[f] for f in faces.tolist()])  # (m, k, 3)
-    m, k = poly.shape[:2]
     normal = geometry.newell_normals(list(poly))
     normal = normal / np.linalg.norm(normal, axis=1, keepdims=True)
     half = np.tan(np.array([np.asarray(closing[f], float) for f in faces.tolist()]) / 2.0)  # (m, k)
@@ -276,21 +247,10 @@ def _prisms_of(mech, spec, faces, closing, erode, tol):
               - np.where(levels == levels.max(axis=1, keepdims=True), erode, 0.0))
     d = np.roll(poly, -1, axis=1) - poly
     length = np.linalg.norm(d, axis=2)
-    unit_d = d / length[..., None]
-    inward = np.cross(normal[:, None], unit_d)
-    prev_d, prev_in = np.roll(unit_d, 1, axis=1), np.roll(inward, 1, axis=1)
-    across_prev = np.einsum("mkj,mkj->mk", unit_d, prev_in)
-    across = np.einsum("mkj,mkj->mk", prev_d, inward)
-    parallel = (np.abs(across_prev) < 1e-12) | (np.abs(across) < 1e-12)
     rings = []
     for z in levels.T:  # (m,) one level of every face
         shift = np.maximum(0.0, -z[:, None] * half) + erode
-        prev_s = np.roll(shift, 1, axis=1)
-        with np.errstate(divide="ignore", invalid="ignore"):
-            x = np.where(parallel, 0.0, shift / across)
-            y = np.where(parallel, 0.0, prev_s / across_prev)
-        ring = np.where(parallel[..., None], poly + shift[..., None] * inward,
-                        poly + x[..., None] * prev_d + y[..., None] * unit_d) + z[:, None, None] * normal[:, None]
+        ring = _inset_polygon(poly, normal, shift) + z[:, None, None] * normal[:, None]
         moved = np.roll(ring, -1, axis=1) - ring
         thin = (np.einsum("mkj,mkj->mk", moved, d) <= tol.coincident * mech.size * length).any(axis=1)
         if thin.any():
@@ -299,6 +259,13 @@ def _prisms_of(mech, spec, faces, closing, erode, tol):
             raise ModelError(f"{field}: panel {f} is too thick for the bevels its edges need "
                              f"(thickness {spec.thickness[f]:.6g} {mech.units})")
         rings.append(ring)
+    return rings
+
+
+def _prisms_of(mech, spec, faces, closing, erode, tol):
+    """The triangles (2 c + 2 k (L - 1), 3, 3) of the prism of each of faces that all have k corners."""
+    rings = _rings_of(mech, spec, faces, closing, erode, tol)
+    m, k = rings[0].shape[:2]
     caps = [np.array([[0, 1, 2]]) if k == 3 else triangulate(mech.flat_faces[f]) for f in faces.tolist()]
     side = np.arange(k)
     nxt = (side + 1) % k
