@@ -140,6 +140,7 @@ class FoldView(CameraControl, Overlays, gl.GLViewWidget):
         self._stage = None
         self._layer = None
         self._base_colors = None
+        self._colored_hot = None
         self._program = None
         self._program_context = None
         self._press = None
@@ -198,7 +199,7 @@ class FoldView(CameraControl, Overlays, gl.GLViewWidget):
         tris = [self._local_triangles(poly, self.pan.tri_points[s:s + c])
                 for poly, s, c in zip(mech.flat_faces, self.pan.start, self.pan.count)]
         self._layer = PanelLayer(mech.flat_faces, tris, mech.axes, mech.parent, mech.root,
-                                 parentItem=self._stage)
+                                 mech.cut_faces, mech.cut_points, parentItem=self._stage)
         no_depth = {GL.GL_DEPTH_TEST: False, GL.GL_BLEND: True, GL.GL_CULL_FACE: False}
         self._crossings = gl.GLLinePlotItem(parentItem=self._stage, mode="lines", width=4.0,
                                             color=_rgba(palette.INTERSECTION), antialias=True,
@@ -216,6 +217,7 @@ class FoldView(CameraControl, Overlays, gl.GLViewWidget):
             item.setVisible(False)
         self.addItem(self._stage)
         self._base_colors = default_face_colors(mech) if face_colors is None else np.asarray(face_colors)
+        self._colored_hot = None
         self._envelope = None
         self._envelope_errors = None
         self.envelope_poses = None
@@ -245,11 +247,12 @@ class FoldView(CameraControl, Overlays, gl.GLViewWidget):
             tris = [self._local_triangles(poly, self.pan.tri_points[s:s + c])
                     for poly, s, c in zip(mech.flat_faces, self.pan.start, self.pan.count)]
             self._layer = PanelLayer(mech.flat_faces, tris, mech.axes, mech.parent, mech.root,
-                                     parentItem=self._stage)
+                                     mech.cut_faces, mech.cut_points, parentItem=self._stage)
         else:
             self._layer = SolidLayer(solids, mech.n_faces, mech.axes, mech.parent, parentItem=self._stage)
         self.solids = None if solids is None else list(solids)
         self._layer.set_poses(self.poses)
+        self._layer.set_open_cuts(self.open_edge_mask())
         self._refresh_colors()
         self.update()
 
@@ -301,7 +304,8 @@ class FoldView(CameraControl, Overlays, gl.GLViewWidget):
         front[:, :3] = self._base_colors
         back = front.copy()
         back[:, :3] = palette.back_of(self._base_colors)
-        hot = np.unique(self.colliding.ravel())
+        hot = np.unique(self.colliding)
+        self._colored_hot = hot
         front[hot] = _rgba(palette.WARNING)
         back[hot] = _rgba(palette.WARNING_BACK)
         if self.selected_face >= 0:
@@ -342,6 +346,8 @@ class FoldView(CameraControl, Overlays, gl.GLViewWidget):
         known = self.known
         if known is not None and known.lo <= self.t <= known.hi and self.t != 0.0:
             inside = (known.first <= self.t) & (self.t <= known.last)
+            if not inside.any():
+                return np.zeros((0, 2), np.int64)
             return np.unique(known.faces[inside], axis=0).reshape(-1, 2)
         return colliding_pairs(self.mech, poses, pan=self.pan)
 
@@ -361,9 +367,12 @@ class FoldView(CameraControl, Overlays, gl.GLViewWidget):
         self.poses = poses[0]
         self._layer.set_poses(self.poses)
         self.colliding = self._colliding_at(self.poses)
-        self._refresh_colors()
+        # The colours change only with the colliding panels (a scrub mostly keeps them).
+        if not np.array_equal(np.unique(self.colliding), self._colored_hot):
+            self._refresh_colors()
         self._update_crossings()
         self.gaps = cut_edge_gaps(mech, poses)[0] if len(mech.cut_faces) else np.zeros(0)
+        self._layer.set_open_cuts(self.open_edge_mask())
         self._update_gaps()
         self._update_marks()
         self._update_envelope()
