@@ -66,9 +66,8 @@ float lit(vec3 n) {
 
 void main() {
     int slot = int(a_face - u_base + 0.5);
-    mat4 to_eye = u_modelview * u_pose[slot];
-    mat4 to_clip = u_projection * to_eye;
-    vec4 here = to_clip * a_position;
+    mat4 pose = u_pose[slot];
+    vec4 here = u_projection * (u_modelview * (pose * a_position));
     gl_Position = here;
     // Band edges beyond reach (no edge line) unless the corner says otherwise.
     v_outline = vec3(-1.0e4);
@@ -78,7 +77,7 @@ void main() {
         v_back = a_color;
         return;
     }
-    vec3 n = normalize((to_eye * vec4(a_normal, 0.0)).xyz);
+    vec3 n = normalize((u_modelview * (pose * vec4(a_normal, 0.0))).xyz);
     // Solids with a colour of their own (gear bodies) keep it.
     vec4 front = a_color.a > 0.0 ? a_color : u_front[slot];
     vec4 back = a_color.a > 0.0 ? a_color : u_back[slot];
@@ -87,8 +86,8 @@ void main() {
     if (a_kind.x + a_kind.y + a_kind.z < 0.5) {
         return;
     }
-    vec4 next = to_clip * vec4(a_next, 1.0);
-    vec4 prev = to_clip * vec4(a_prev, 1.0);
+    vec4 next = u_projection * (u_modelview * (pose * vec4(a_next, 1.0)));
+    vec4 prev = u_projection * (u_modelview * (pose * vec4(a_prev, 1.0)));
     if (min(here.w, min(next.w, prev.w)) <= 1.0e-6) {
         return;
     }
