@@ -1,6 +1,7 @@
 """The 3D view on its own: display frame, camera, rays and offscreen frames."""
 
 import math
+from pathlib import Path
 
 import numpy as np
 import pytest
@@ -14,6 +15,8 @@ from foldsim.gui.view.viewport import FoldView, stage_transform  # noqa: E402
 from foldsim.io.mechanism_json import from_document  # noqa: E402
 
 from test_gui import strip150_document, warning_pixels  # noqa: E402
+
+ROOT = Path(__file__).resolve().parents[1]
 
 
 @pytest.fixture
@@ -174,3 +177,28 @@ def test_panels_draw_their_outline_and_hinge_lines(view):
         assert _nearest(img, view.model_to_pixels(mid[None])[0], palette.OUTLINE) <= 20
     centre = transform_points(view.poses[0], face.mean(axis=0))
     assert _nearest(img, view.model_to_pixels(centre[None])[0], palette.OUTLINE, reach=2) > 40
+
+
+def test_a_cut_edges_line_follows_whether_it_has_met(qtbot):
+    # The gift box's cut edges all meet at t = 1 (its closed state). Where an edge
+    # has met, each of its two panels draws half the line on its side; an open edge
+    # takes the whole width on its one side, so calling every edge open draws more
+    # line pixels, and closing them again gives the first picture back (common
+    # practice for state kept on the GPU: a change is sent, no change costs nothing).
+    from foldsim.io.mechanism_json import load
+
+    v = FoldView()
+    qtbot.addWidget(v)
+    v.resize(400, 300)
+    v.show()
+    qtbot.waitExposed(v)
+    v.set_mechanism(load(ROOT / "assets" / "gift-box.mech.json"))
+    v.set_t(1.0)
+    v.set_view("iso")
+    assert len(v.mech.cut_faces) and not v.open_edge_mask().any()
+    met = v.render_image(400, 300)
+    v._layer.set_open_cuts(np.ones(len(v.mech.cut_faces), bool))
+    opened = v.render_image(400, 300)
+    assert pixels(opened, palette.OUTLINE, tol=24) > pixels(met, palette.OUTLINE, tol=24) + 100
+    v.set_t(1.0)
+    np.testing.assert_array_equal(v.render_image(400, 300), met)
