@@ -130,7 +130,10 @@ void main() {
 }
 """
 
+_EDGE_ATTRIBUTES = ("a_corner", "a_kind", "a_next", "a_prev", "a_free")
+
 _FLOATS = 23  # position 3, normal 3, face 1, colour 4, corner 3, edge kinds 3, next 3, previous 3
+_PLAIN_FLOATS = 11  # the first four, for a layer without edge bands
 
 OUTLINE_WIDTH = 1.6
 """Width in pixels of a panel's outline (on screen; offscreen frames scale it)."""
@@ -254,6 +257,9 @@ class PanelLayer(gl.GLGraphicsItem.GLGraphicsItem):
     closed = False
     """Whether every mesh is closed and faces outward, so back faces can be culled."""
 
+    edges = True
+    """Whether the fills draw edge bands (flat panels do; solids draw GL lines)."""
+
     def __init__(self, outlines, triangles, hinge_lines, hinge_parent, root, cut_faces=None, cut_points=None,
                  parentItem=None):
         super().__init__(parentItem=parentItem)
@@ -299,7 +305,8 @@ class PanelLayer(gl.GLGraphicsItem.GLGraphicsItem):
         """
         n_faces = len(fills)
         blocks = fills + outline_rows + hinge_rows
-        data = np.zeros((sum(len(b) for b in blocks), _FLOATS), np.float32)
+        # Without edge bands a vertex is only its first 11 floats (a shorter stride to fetch).
+        data = np.zeros((sum(len(b) for b in blocks), _FLOATS if self.edges else _PLAIN_FLOATS), np.float32)
         at = 0
         for b in blocks:
             if len(b):
@@ -394,16 +401,19 @@ class PanelLayer(gl.GLGraphicsItem.GLGraphicsItem):
         offsets = {"a_position": (3, 0), "a_normal": (3, 12), "a_face": (1, 24), "a_color": (4, 28),
                    "a_corner": (3, 44), "a_kind": (3, 56), "a_next": (3, 68), "a_prev": (3, 80)}
         enabled = []
-        if a["a_free"] >= 0:
+        if a["a_free"] >= 0 and self.edges:
             GL.glBindBuffer(GL.GL_ARRAY_BUFFER, self._free_buffer)
             GL.glEnableVertexAttribArray(a["a_free"])
             GL.glVertexAttribPointer(a["a_free"], 3, GL.GL_FLOAT, False, 12, ctypes.c_void_p(0))
             enabled.append(a["a_free"])
         GL.glBindBuffer(GL.GL_ARRAY_BUFFER, self._buffer)
         for name, (size, offset) in offsets.items():
-            if a[name] >= 0:
+            if a[name] >= 0 and not self.edges and name in _EDGE_ATTRIBUTES:
+                # No edge bands: the shader reads zeros, and the vertices are not fetched.
+                GL.glVertexAttrib3f(a[name], 0.0, 0.0, 0.0)
+            elif a[name] >= 0:
                 GL.glEnableVertexAttribArray(a[name])
-                GL.glVertexAttribPointer(a[name], size, GL.GL_FLOAT, False, 4 * _FLOATS,
+                GL.glVertexAttribPointer(a[name], size, GL.GL_FLOAT, False, 4 * self._data.shape[1],
                                          ctypes.c_void_p(offset))
                 enabled.append(a[name])
         scale = view.line_scale()
