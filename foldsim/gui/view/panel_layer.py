@@ -130,6 +130,69 @@ void main() {
 }
 """
 
+# A build's solids (`solid_layer.SolidLayer`) draw their outlines as GL lines and
+# have no edge bands.
+_SOLID_VERTEX_SHADER = """
+uniform mat4 u_projection;
+uniform mat4 u_modelview;
+uniform mat4 u_pose[SLOTS];
+uniform vec4 u_front[SLOTS];
+uniform vec4 u_back[SLOTS];
+uniform float u_base;
+uniform float u_lines;
+attribute vec4 a_position;
+attribute vec3 a_normal;
+attribute float a_face;
+attribute vec4 a_color;
+varying vec3 v_normal;
+varying vec4 v_front;
+varying vec4 v_back;
+void main() {
+    int slot = int(a_face - u_base + 0.5);
+    mat4 pose = u_pose[slot];
+    v_normal = (u_modelview * (pose * vec4(a_normal, 0.0))).xyz;
+    if (u_lines > 0.5 || a_color.a > 0.0) {
+        // Lines, and solids with a colour of their own (gear bodies).
+        v_front = a_color;
+        v_back = a_color;
+    } else {
+        v_front = u_front[slot];
+        v_back = u_back[slot];
+    }
+    gl_Position = u_projection * (u_modelview * (pose * a_position));
+}
+"""
+
+# The same lighting per fragment, for solids: they have many vertices for the
+# area they cover, so lighting their vertices would cost more than their pixels.
+_SOLID_FRAGMENT_SHADER = """
+#ifdef GL_ES
+precision mediump float;
+#endif
+uniform float u_lines;
+varying vec3 v_normal;
+varying vec4 v_front;
+varying vec4 v_back;
+void main() {
+    if (u_lines > 0.5) {
+        gl_FragColor = v_front;
+        return;
+    }
+    vec3 n = normalize(v_normal);
+    vec4 base = v_front;
+    if (!gl_FrontFacing) {
+        n = -n;
+        base = v_back;
+    }
+    vec3 key = normalize(vec3(-0.45, 0.55, 0.70));
+    float light = 0.60 + 0.32 * max(dot(n, key), 0.0) + 0.14 * abs(n.z);
+    gl_FragColor = vec4(min(base.rgb * light, 1.0), base.a);
+}
+"""
+
+_SHADERS = {"panels": (_VERTEX_SHADER, _FRAGMENT_SHADER),
+            "solids": (_SOLID_VERTEX_SHADER, _SOLID_FRAGMENT_SHADER)}
+
 _EDGE_ATTRIBUTES = ("a_corner", "a_kind", "a_next", "a_prev", "a_free")
 
 _FLOATS = 23  # position 3, normal 3, face 1, colour 4, corner 3, edge kinds 3, next 3, previous 3
@@ -160,17 +223,22 @@ def uniform_slots(max_components):
 
 
 class _PanelProgram:
-    """The panel layer's shader program in one GL context, with its locations."""
+    """A layer's shader program in one GL context, with its locations.
 
-    def __init__(self):
+    ``kind`` is "panels" (flat panels with edge bands) or "solids"; a location the
+    program does not use is -1, which GL ignores.
+    """
+
+    def __init__(self, kind="panels"):
         from OpenGL.GL import shaders
 
+        vertex, fragment = _SHADERS[kind]
         limit = int(GL.glGetIntegerv(GL.GL_MAX_VERTEX_UNIFORM_COMPONENTS))
         self.slots = uniform_slots(limit)
         define = f"#define SLOTS {self.slots}\n"
         self.program = shaders.compileProgram(
-            shaders.compileShader(define + _VERTEX_SHADER, GL.GL_VERTEX_SHADER),
-            shaders.compileShader(_FRAGMENT_SHADER, GL.GL_FRAGMENT_SHADER))
+            shaders.compileShader(define + vertex, GL.GL_VERTEX_SHADER),
+            shaders.compileShader(fragment, GL.GL_FRAGMENT_SHADER))
         GL.glBindAttribLocation(self.program, 0, "a_position")
         GL.glLinkProgram(self.program)
         self.attributes = {name: GL.glGetAttribLocation(self.program, name)
@@ -259,6 +327,9 @@ class PanelLayer(gl.GLGraphicsItem.GLGraphicsItem):
 
     edges = True
     """Whether the fills draw edge bands (flat panels do; solids draw GL lines)."""
+
+    shaders = "panels"
+    """Which shader program draws the layer (`_PanelProgram`)."""
 
     def __init__(self, outlines, triangles, hinge_lines, hinge_parent, root, cut_faces=None, cut_points=None,
                  parentItem=None):
@@ -373,7 +444,7 @@ class PanelLayer(gl.GLGraphicsItem.GLGraphicsItem):
 
     def paint(self):
         view = self.view()
-        program = view.panel_program()
+        program = view.panel_program(self.shaders)
         context = QtGui.QOpenGLContext.currentContext()
         if self._buffer is None or self._context is not context:
             self._buffer, self._free_buffer = (int(b) for b in GL.glGenBuffers(2))

@@ -143,7 +143,7 @@ class FoldView(CameraControl, Overlays, gl.GLViewWidget):
         self._layer = None
         self._base_colors = None
         self._colored_hot = None
-        self._program = None
+        self._programs = {}
         self._program_context = None
         self._press = None
         self._line_scale = 1.0
@@ -275,13 +275,15 @@ class FoldView(CameraControl, Overlays, gl.GLViewWidget):
         self._stage = None
         self._layer = None
 
-    def panel_program(self):
-        """The panels' shader program in the current GL context (compiled once)."""
+    def panel_program(self, kind="panels"):
+        """A layer's shader program ("panels" or "solids") in the current GL context (compiled once)."""
         context = QtGui.QOpenGLContext.currentContext()
-        if self._program is None or self._program_context is not context:
-            self._program = _PanelProgram()
+        if self._program_context is not context:
+            self._programs = {}
             self._program_context = context
-        return self._program
+        if kind not in self._programs:
+            self._programs[kind] = _PanelProgram(kind)
+        return self._programs[kind]
 
     def line_scale(self):
         """Factor on line widths: 1 on screen, larger for big offscreen frames."""
