@@ -6,10 +6,38 @@ from the root, each line taken in the flat frame (belcastro & Hull 2002; Tachi,
 at a time, so the Python loop runs over levels, never over faces or drive values.
 """
 
+import weakref
+
 import numpy as np
 
 from . import geometry
 from .gearing import fold_angles
+
+
+_TERMS = weakref.WeakKeyDictionary()
+
+
+def _rodrigues_terms(mech):
+    """The parts of every hinge's rotation that do not depend on its angle (kept per mechanism).
+
+    Rotation x -> R (x - a) + a about each hinge line (Rodrigues' formula, as
+    `geometry.line_rotations`), kept as its 3 x 4 part [R | a - R a]: a point a
+    (H, 3) of each line, u u^T, I - u u^T and [u]x flattened (H, 9), and each of
+    them times a (H, 3).
+    """
+    terms = _TERMS.get(mech)
+    if terms is None:
+        a = mech.axes[:, 0]
+        u = geometry.unit(mech.axes[:, 1] - a)
+        skew = np.zeros((len(u), 3, 3))
+        skew[:, 0, 1], skew[:, 0, 2], skew[:, 1, 2] = -u[:, 2], u[:, 1], -u[:, 0]
+        skew -= skew.transpose(0, 2, 1)
+        outer = u[:, :, None] * u[:, None, :]
+        across = np.eye(3) - outer
+        times_a = [(m @ a[..., None])[..., 0] for m in (outer, across, skew)]
+        terms = (a, outer.reshape(-1, 9), across.reshape(-1, 9), skew.reshape(-1, 9), *times_a)
+        _TERMS[mech] = terms
+    return terms
 
 
 def face_poses(mech, angles, faces=None):
@@ -47,33 +75,25 @@ def face_poses(mech, angles, faces=None):
     else:
         hinges, levels = _chains(mech, faces)
         angles = angles[:, hinges]
-    # Rotation x -> R (x - a) + a about each hinge line (Rodrigues' formula, as
-    # `geometry.line_rotations`), kept as its 3 x 4 part [R | a - R a], hinge-major
-    # (row k for hinge ``hinges[k]``).
-    a = mech.axes[hinges, 0]
-    u = geometry.unit(mech.axes[hinges, 1] - a)
-    skew = np.zeros((len(u), 3, 3))
-    skew[:, 0, 1], skew[:, 0, 2], skew[:, 1, 2] = -u[:, 2], u[:, 1], -u[:, 0]
-    skew -= skew.transpose(0, 2, 1)
-    outer = u[:, :, None] * u[:, None, :]
     # R = u u^T + cos(angle) (I - u u^T) + sin(angle) [u]x, and R a from the same
     # three terms; elementwise, so each drive value's poses do not depend on which
-    # others are computed with it.
+    # others are computed with it. Row k of the terms is hinge ``hinges[k]``.
+    a, outer, across, skew, outer_a, across_a, skew_a = (
+        term if faces is None else term[hinges] for term in _rodrigues_terms(mech))
     c, s = np.cos(angles.T)[..., None], np.sin(angles.T)[..., None]
-    across = np.eye(3) - outer
-    rot = np.empty((len(u), n_t, 3, 4))
-    rot[..., :3] = (outer.reshape(-1, 1, 9) + c * across.reshape(-1, 1, 9)
-                    + s * skew.reshape(-1, 1, 9)).reshape(len(u), n_t, 3, 3)
-    rot[..., 3] = a[:, None] - ((outer @ a[..., None])[..., 0][:, None] + c * (across @ a[..., None])[..., 0][:, None]
-                                + s * (skew @ a[..., None])[..., 0][:, None])
+    rot = np.empty((len(a), n_t, 3, 4))
+    rot[..., :3] = (outer[:, None] + c * across[:, None] + s * skew[:, None]).reshape(len(a), n_t, 3, 3)
+    rot[..., 3] = a[:, None] - (outer_a[:, None] + c * across_a[:, None] + s * skew_a[:, None])
     # Face-major while walking the tree, so each level gathers whole rows.
     work = np.empty((mech.n_faces, n_t, 3, 4))
     work[mech.root] = np.eye(4)[:3]
-    row = np.empty(mech.n_hinges, np.int64)
-    row[hinges] = np.arange(len(hinges))
+    row = None
+    if faces is not None:
+        row = np.empty(mech.n_hinges, np.int64)
+        row[hinges] = np.arange(len(hinges))
     for level in levels:
         parent = work[mech.parent[level]]
-        child = parent[..., :3] @ rot[row[level]]
+        child = parent[..., :3] @ rot[level if row is None else row[level]]
         child[..., 3] += parent[..., 3]
         work[mech.child[level]] = child
     if faces is not None:

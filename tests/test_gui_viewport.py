@@ -1,6 +1,7 @@
 """The 3D view on its own: display frame, camera, rays and offscreen frames."""
 
 import math
+from pathlib import Path
 
 import numpy as np
 import pytest
@@ -13,7 +14,9 @@ from foldsim.gui.view import palette  # noqa: E402
 from foldsim.gui.view.viewport import FoldView, stage_transform  # noqa: E402
 from foldsim.io.mechanism_json import from_document  # noqa: E402
 
-from test_gui import strip150_document  # noqa: E402
+from test_gui import strip150_document, warning_pixels  # noqa: E402
+
+ROOT = Path(__file__).resolve().parents[1]
 
 
 @pytest.fixture
@@ -121,3 +124,81 @@ def test_render_image_needs_a_shown_view(qtbot):
     qtbot.addWidget(v)
     with pytest.raises(RuntimeError, match="shown"):
         v.render_image(10, 10)
+
+
+def test_warning_colour_follows_the_sweeps_collisions_from_frame_to_frame(view):
+    # The strip's outer squares pass through each other for t > 0.8 (hand check in
+    # test_gui.strip150_document). With the sweep's intervals a frame rebuilds the
+    # colours only when the colliding panels change; a cached colour must follow the
+    # state it caches (common practice), so the warning comes and goes with t.
+    from foldsim.analysis.collision import collision_intervals
+
+    intervals = collision_intervals(view.mech, view.schedule, 0.0, 1.0, pan=view.pan)
+    assert [c["faces"] for c in intervals] == [[0, 2]]
+    view.set_known_collisions(intervals, (0.0, 1.0))
+    view.set_view("iso")
+    plain, _ = view.panel_colors()
+    for t, hot in [(0.5, False), (0.95, True), (0.9, True), (0.6, False), (0.99, True), (0.3, False)]:
+        view.set_t(t)
+        assert view.colliding.tolist() == ([[0, 2]] if hot else [])
+        assert (warning_pixels(view.render_image(400, 300)) > 200) is hot
+        front, _ = view.panel_colors()
+        assert np.allclose(front[1], plain[1]) and np.allclose(front[[0, 2]], plain[[0, 2]]) is not hot
+
+
+def _nearest(img, xy, rgb, reach=3):
+    """Smallest colour distance to rgb among the pixels within reach of a pixel position."""
+    x, y = (int(round(c)) for c in xy)
+    patch = img[max(y - reach, 0):y + reach + 1, max(x - reach, 0):x + reach + 1, :3].astype(int)
+    return int(np.abs(patch - np.array(rgb)).max(axis=-1).min())
+
+
+def test_panels_draw_their_outline_and_hinge_lines(view):
+    # The fills draw the outline and hinge lines as bands along their edges
+    # (Baerentzen et al., "Single-pass wireframe rendering", SIGGRAPH 2006): at the
+    # middle of a hinge the hinge colour shows, at the middle of a free edge the
+    # outline colour, and in the middle of a panel neither (common practice for a
+    # wireframe over shaded faces).
+    view.set_t(0.3)
+    view.set_view("top")
+    img = view.render_image(400, 300)
+    mech = view.mech
+    for h in range(mech.n_hinges):
+        pose = view.poses[mech.parent[h]]
+        mid = transform_points(pose, mech.axes[h].mean(axis=0))
+        assert _nearest(img, view.model_to_pixels(mid[None])[0], palette.HINGE) <= 12
+    # Face 0's edges away from the hinge are free: its far edge's middle.
+    face = mech.flat_faces[0]
+    hinge_ends = {tuple(np.round(p, 9)) for p in mech.axes[0]}
+    free = [(a, b) for a, b in zip(face, np.roll(face, -1, axis=0))
+            if not {tuple(np.round(a, 9)), tuple(np.round(b, 9))} <= hinge_ends]
+    for a, b in free:
+        mid = transform_points(view.poses[0], (a + b) / 2)
+        assert _nearest(img, view.model_to_pixels(mid[None])[0], palette.OUTLINE) <= 20
+    centre = transform_points(view.poses[0], face.mean(axis=0))
+    assert _nearest(img, view.model_to_pixels(centre[None])[0], palette.OUTLINE, reach=2) > 40
+
+
+def test_a_cut_edges_line_follows_whether_it_has_met(qtbot):
+    # The gift box's cut edges all meet at t = 1 (its closed state). Where an edge
+    # has met, each of its two panels draws half the line on its side; an open edge
+    # takes the whole width on its one side, so calling every edge open draws more
+    # line pixels, and closing them again gives the first picture back (common
+    # practice for state kept on the GPU: a change is sent, no change costs nothing).
+    from foldsim.io.mechanism_json import load
+
+    v = FoldView()
+    qtbot.addWidget(v)
+    v.resize(400, 300)
+    v.show()
+    qtbot.waitExposed(v)
+    v.set_mechanism(load(ROOT / "assets" / "gift-box.mech.json"))
+    v.set_t(1.0)
+    v.set_view("iso")
+    assert len(v.mech.cut_faces) and not v.open_edge_mask().any()
+    met = v.render_image(400, 300)
+    v._layer.set_open_cuts(np.ones(len(v.mech.cut_faces), bool))
+    opened = v.render_image(400, 300)
+    assert pixels(opened, palette.OUTLINE, tol=24) > pixels(met, palette.OUTLINE, tol=24) + 100
+    v.set_t(1.0)
+    np.testing.assert_array_equal(v.render_image(400, 300), met)

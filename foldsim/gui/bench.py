@@ -8,7 +8,8 @@ panels) on a breadth-first net and prints updates per second for
 - a whole frame: that plus moving every panel and drawing the scene, first with a
   collision query per frame, then with collisions read from the sweep's
   intervals as the app does once its background sweep has passed,
-- drawing alone, with the panels standing still,
+- drawing alone, with the panels standing still, and with no panels at all (what
+  every frame costs: clearing, resolving the samples, the overlays),
 - a whole frame with the panels drawn as prisms (a build's thick panels),
 - on the same sphere designed as `foldsim new` does (its net and gear layout), a
   whole frame with the prisms and every gear body against the thin frame of that
@@ -137,6 +138,9 @@ def main(argv=None):
     swept = _rate(frame, values)
     print(f"whole frame, swept        {swept:8.1f} updates/s")
     print(f"drawing only              {_rate(lambda t: draw(), values):8.1f} frames/s")
+    view._layer.setVisible(False)
+    print(f"  no panels (the floor)   {_rate(lambda t: draw(), values):8.1f} frames/s")
+    view._layer.setVisible(True)
     solids = thick_solids(mech)
     view.set_solids(solids)
     thick = _rate(frame, values)

@@ -96,9 +96,13 @@ class Overlays:
         self._crossings.setData(pos=segments[hit].reshape(-1, 3))
         self._crossings.setVisible(True)
 
+    def open_edge_mask(self):
+        """Whether each cut edge's gap at the current t exceeds the tolerance, (E,) bool."""
+        return self.gaps > self.gap_tolerance
+
     def open_edges(self):
         """Indices (n,) of cut edges whose gap at the current t exceeds the tolerance."""
-        return np.flatnonzero(self.gaps > self.gap_tolerance)
+        return np.flatnonzero(self.open_edge_mask())
 
     def drawn_gaps(self):
         """Indices (n,) of the cut edges whose gap lines are drawn now.

@@ -85,6 +85,8 @@ class SolidLayer(PanelLayer):
     """
 
     closed = True
+    edges = False
+    shaders = "solids"
 
     def __init__(self, solids, n_faces, hinge_lines, hinge_parent, parentItem=None):
         super(PanelLayer, self).__init__(parentItem=parentItem)

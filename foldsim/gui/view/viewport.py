@@ -20,7 +20,9 @@ Why one layer and not one GL item per panel
 A pyqtgraph item per panel costs a few draw calls and a dozen state changes per
 panel per frame; with Mesa's software renderer that held a 1,280-panel model to
 about 4 frames per second. The layer sends each block of panels' poses as one
-uniform array and draws the block in three calls (see `python -m foldsim.gui.bench`).
+uniform array and draws the block in one call, its fills drawing the outlines and
+hinge lines too (GL lines remain only for the root's mark and a build's solids;
+see `python -m foldsim.gui.bench`).
 
 Offscreen frames
 ----------------
@@ -140,7 +142,8 @@ class FoldView(CameraControl, Overlays, gl.GLViewWidget):
         self._stage = None
         self._layer = None
         self._base_colors = None
-        self._program = None
+        self._colored_hot = None
+        self._programs = {}
         self._program_context = None
         self._press = None
         self._line_scale = 1.0
@@ -198,7 +201,7 @@ class FoldView(CameraControl, Overlays, gl.GLViewWidget):
         tris = [self._local_triangles(poly, self.pan.tri_points[s:s + c])
                 for poly, s, c in zip(mech.flat_faces, self.pan.start, self.pan.count)]
         self._layer = PanelLayer(mech.flat_faces, tris, mech.axes, mech.parent, mech.root,
-                                 parentItem=self._stage)
+                                 mech.cut_faces, mech.cut_points, parentItem=self._stage)
         no_depth = {GL.GL_DEPTH_TEST: False, GL.GL_BLEND: True, GL.GL_CULL_FACE: False}
         self._crossings = gl.GLLinePlotItem(parentItem=self._stage, mode="lines", width=4.0,
                                             color=_rgba(palette.INTERSECTION), antialias=True,
@@ -216,6 +219,7 @@ class FoldView(CameraControl, Overlays, gl.GLViewWidget):
             item.setVisible(False)
         self.addItem(self._stage)
         self._base_colors = default_face_colors(mech) if face_colors is None else np.asarray(face_colors)
+        self._colored_hot = None
         self._envelope = None
         self._envelope_errors = None
         self.envelope_poses = None
@@ -245,11 +249,12 @@ class FoldView(CameraControl, Overlays, gl.GLViewWidget):
             tris = [self._local_triangles(poly, self.pan.tri_points[s:s + c])
                     for poly, s, c in zip(mech.flat_faces, self.pan.start, self.pan.count)]
             self._layer = PanelLayer(mech.flat_faces, tris, mech.axes, mech.parent, mech.root,
-                                     parentItem=self._stage)
+                                     mech.cut_faces, mech.cut_points, parentItem=self._stage)
         else:
             self._layer = SolidLayer(solids, mech.n_faces, mech.axes, mech.parent, parentItem=self._stage)
         self.solids = None if solids is None else list(solids)
         self._layer.set_poses(self.poses)
+        self._layer.set_open_cuts(self.open_edge_mask())
         self._refresh_colors()
         self.update()
 
@@ -270,13 +275,15 @@ class FoldView(CameraControl, Overlays, gl.GLViewWidget):
         self._stage = None
         self._layer = None
 
-    def panel_program(self):
-        """The panels' shader program in the current GL context (compiled once)."""
+    def panel_program(self, kind="panels"):
+        """A layer's shader program ("panels" or "solids") in the current GL context (compiled once)."""
         context = QtGui.QOpenGLContext.currentContext()
-        if self._program is None or self._program_context is not context:
-            self._program = _PanelProgram()
+        if self._program_context is not context:
+            self._programs = {}
             self._program_context = context
-        return self._program
+        if kind not in self._programs:
+            self._programs[kind] = _PanelProgram(kind)
+        return self._programs[kind]
 
     def line_scale(self):
         """Factor on line widths: 1 on screen, larger for big offscreen frames."""
@@ -301,7 +308,8 @@ class FoldView(CameraControl, Overlays, gl.GLViewWidget):
         front[:, :3] = self._base_colors
         back = front.copy()
         back[:, :3] = palette.back_of(self._base_colors)
-        hot = np.unique(self.colliding.ravel())
+        hot = np.unique(self.colliding)
+        self._colored_hot = hot
         front[hot] = _rgba(palette.WARNING)
         back[hot] = _rgba(palette.WARNING_BACK)
         if self.selected_face >= 0:
@@ -342,6 +350,8 @@ class FoldView(CameraControl, Overlays, gl.GLViewWidget):
         known = self.known
         if known is not None and known.lo <= self.t <= known.hi and self.t != 0.0:
             inside = (known.first <= self.t) & (self.t <= known.last)
+            if not inside.any():
+                return np.zeros((0, 2), np.int64)
             return np.unique(known.faces[inside], axis=0).reshape(-1, 2)
         return colliding_pairs(self.mech, poses, pan=self.pan)
 
@@ -361,9 +371,12 @@ class FoldView(CameraControl, Overlays, gl.GLViewWidget):
         self.poses = poses[0]
         self._layer.set_poses(self.poses)
         self.colliding = self._colliding_at(self.poses)
-        self._refresh_colors()
+        # The colours change only with the colliding panels (a scrub mostly keeps them).
+        if not np.array_equal(np.unique(self.colliding), self._colored_hot):
+            self._refresh_colors()
         self._update_crossings()
         self.gaps = cut_edge_gaps(mech, poses)[0] if len(mech.cut_faces) else np.zeros(0)
+        self._layer.set_open_cuts(self.open_edge_mask())
         self._update_gaps()
         self._update_marks()
         self._update_envelope()
