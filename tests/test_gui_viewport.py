@@ -202,3 +202,22 @@ def test_a_cut_edges_line_follows_whether_it_has_met(qtbot):
     assert pixels(opened, palette.OUTLINE, tol=24) > pixels(met, palette.OUTLINE, tol=24) + 100
     v.set_t(1.0)
     np.testing.assert_array_equal(v.render_image(400, 300), met)
+
+
+def test_gear_body_outlines_are_its_ends_and_sector_sides():
+    # A quarter sector of a cylinder at the coarse bodies' 12 steps to the turn: 3
+    # steps, circumscribed, so its arc has 4 facets (half a step at each end, whose
+    # corners sit on the circle). Its outline is each end's arc (4 edges each), the
+    # two straight sides along the axis, the axis where the sector's flat sides
+    # meet, and the four radii at the ends: 2 x 4 + 2 + 1 + 4 = 15 edges (counted by
+    # hand). At the panels' 20 degrees the 3 edges between arc facets, 30 degrees
+    # apart, would show too.
+    import math
+
+    from foldsim.build.gears import sector_frustum
+    from foldsim.gui.view.solid_layer import FEATURE_DEG, GEAR_FEATURE_DEG, feature_edges
+
+    tri = sector_frustum(np.zeros(3), np.array([0.0, 0.0, 1.0]), np.array([1.0, 0.0, 0.0]),
+                         np.array([0.0, 1.0, 0.0]), (0.0, 2.0), (5.0, 5.0), (0.0, math.pi / 2), 3)
+    assert len(feature_edges(tri, GEAR_FEATURE_DEG)) == 15
+    assert len(feature_edges(tri, FEATURE_DEG)) == 18

@@ -16,6 +16,12 @@ from .panel_layer import PanelLayer, _rgba
 FEATURE_DEG = 20.0
 """Edges between triangles that turn by more than this are drawn as outlines."""
 
+GEAR_FEATURE_DEG = 45.0
+"""The same for gear bodies: their ends and sector sides, never the facets of their
+arcs (12 to the turn on the coarse bodies a large model draws, 30 degrees apart),
+so coarse and fine bodies show the same outlines, and a large model does not draw
+tens of thousands of lines."""
+
 
 def feature_edges(triangles, min_turn_deg=FEATURE_DEG):
     """The edges of a triangle mesh where its surface turns, and its open edges.
@@ -101,7 +107,7 @@ class SolidLayer(PanelLayer):
             # Alpha 0: a panel's prism takes the panel's colour; a gear keeps its own.
             color = (1.0, 1.0, 1.0, 0.0) if solid.kind == "panel" else gear
             fills[solid.face].append(self._mesh_rows(tri, normals, solid.face, color))
-            edges = feature_edges(tri).reshape(-1, 3)
+            edges = feature_edges(tri, FEATURE_DEG if solid.kind == "panel" else GEAR_FEATURE_DEG).reshape(-1, 3)
             outlines[solid.face].append(self._rows(edges, (0.0, 0.0, 1.0), solid.face, line))
         hinge_rows = [[] for _ in range(n_faces)]
         for h, f in enumerate(hinge_parent):
