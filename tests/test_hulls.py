@@ -102,14 +102,16 @@ def test_gilbert_stops_within_its_slack():
 
 
 def test_extreme_generators_drop_a_face_diagonal():
-    # A cube's corner: its three edges generate the cone; the diagonal of a face
-    # (1, 1, 0)/sqrt 2 lies between two of them and is dropped, the body diagonal
-    # (1, 1, 1)/sqrt 3 is inside and kept (it only costs time).
-    from foldsim.build.bodies import _extreme
+    # A cube's corner: its three edges generate the cone (its extreme rays, always
+    # kept); the diagonal of a face (1, 1, 0)/sqrt 2 lies between x and y, and the
+    # body diagonal (1, 1, 1)/sqrt 3 between z and that face diagonal, so both go
+    # (elementary geometry).
+    from foldsim.build.bodies import _extreme_rays
 
-    dirs = np.array([[1, 0, 0], [0, 1, 0], [0, 0, 1], [1, 1, 0]], float)
+    dirs = np.array([[1, 0, 0], [0, 1, 0], [0, 0, 1], [1, 1, 0], [1, 1, 1]], float)
     dirs /= np.linalg.norm(dirs, axis=1, keepdims=True)
-    np.testing.assert_allclose(_extreme(dirs), np.eye(3))
+    keep = _extreme_rays(dirs[None], np.ones((1, 5), bool))[0]
+    assert keep.tolist() == [True, True, True, False, False]
 
 
 def _gift_box(thickness=2.0):

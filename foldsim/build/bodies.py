@@ -211,11 +211,6 @@ def _extreme_rays(dirs, valid, eps=1e-9):
     return valid & ~spans.reshape(len(dirs), m, -1).any(axis=2)
 
 
-def _extreme(dirs, eps=1e-9):
-    """The rows of unit directions (m, 3) that `_extreme_rays` keeps."""
-    return dirs[_extreme_rays(dirs[None], np.ones((1, len(dirs)), bool), eps)[0]]
-
-
 def body_speed_profile(mech, rates, solids):
     """Speed bounds of every solid, split like `kinematics.speed_profile`.
 
