@@ -19,15 +19,20 @@ from test_gui import strip150_document, warning_pixels  # noqa: E402
 ROOT = Path(__file__).resolve().parents[1]
 
 
-@pytest.fixture
-def view(qtbot):
+def shown_view(qtbot, mech):
+    """A 400 x 300 view on the screen, showing mech."""
     v = FoldView()
     qtbot.addWidget(v)
     v.resize(400, 300)
     v.show()
     qtbot.waitExposed(v)
-    v.set_mechanism(from_document(strip150_document()))
+    v.set_mechanism(mech)
     return v
+
+
+@pytest.fixture
+def view(qtbot):
+    return shown_view(qtbot, from_document(strip150_document()))
 
 
 def display(view, face, points):
@@ -187,12 +192,7 @@ def test_a_cut_edges_line_follows_whether_it_has_met(qtbot):
     # practice for state kept on the GPU: a change is sent, no change costs nothing).
     from foldsim.io.mechanism_json import load
 
-    v = FoldView()
-    qtbot.addWidget(v)
-    v.resize(400, 300)
-    v.show()
-    qtbot.waitExposed(v)
-    v.set_mechanism(load(ROOT / "assets" / "gift-box.mech.json"))
+    v = shown_view(qtbot, load(ROOT / "assets" / "gift-box.mech.json"))
     v.set_t(1.0)
     v.set_view("iso")
     assert len(v.mech.cut_faces) and not v.open_edge_mask().any()

@@ -16,6 +16,19 @@ from PySide6 import QtGui
 from ...geometry import unit
 from . import palette
 
+# What both vertex shaders take per block of panels: the camera, each panel's pose
+# and colours, the block's first panel, and whether lines are being drawn.
+_BLOCK_UNIFORMS = """
+uniform mat4 u_projection;
+uniform mat4 u_modelview;
+uniform mat4 u_pose[SLOTS];
+uniform vec4 u_front[SLOTS];
+uniform vec4 u_back[SLOTS];
+uniform float u_base;
+uniform float u_lines;
+"""
+
+
 # The panels are flat, so each triangle has one normal and its lighting is the
 # same all over it: the vertex shader lights both sides (two-sided lighting in
 # eye space: a key light from the upper left and a little of a head light, over
@@ -34,14 +47,7 @@ from . import palette
 # panel meets (the mesh's border, a cut edge whose gap is open) takes the whole
 # width on its one side. The band's border is smoothed over one pixel. A drawn
 # line of its own cost the software renderer more than the fill it lies on.
-_VERTEX_SHADER = """
-uniform mat4 u_projection;
-uniform mat4 u_modelview;
-uniform mat4 u_pose[SLOTS];
-uniform vec4 u_front[SLOTS];
-uniform vec4 u_back[SLOTS];
-uniform float u_base;
-uniform float u_lines;
+_VERTEX_SHADER = _BLOCK_UNIFORMS + """
 uniform vec2 u_viewport;
 uniform float u_outline_half;
 uniform float u_hinge_half;
@@ -132,14 +138,7 @@ void main() {
 
 # A build's solids (`solid_layer.SolidLayer`) draw their outlines as GL lines and
 # have no edge bands.
-_SOLID_VERTEX_SHADER = """
-uniform mat4 u_projection;
-uniform mat4 u_modelview;
-uniform mat4 u_pose[SLOTS];
-uniform vec4 u_front[SLOTS];
-uniform vec4 u_back[SLOTS];
-uniform float u_base;
-uniform float u_lines;
+_SOLID_VERTEX_SHADER = _BLOCK_UNIFORMS + """
 attribute vec4 a_position;
 attribute vec3 a_normal;
 attribute float a_face;
