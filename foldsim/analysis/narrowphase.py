@@ -795,6 +795,7 @@ def pair_state(mech, pan, poses, frame, pairs, clearance, eps, separation=True, 
     else:
         apart = np.zeros(n, bool)
     sep = np.where(apart, angle, np.inf) if measure else np.full(n, np.inf)
+    hit = np.zeros(n, bool)
     if (pan.core is not None or pan.hull_ok is not None) and (need is not None or not measure):
         # Items pivoting about a point measure their distance over the reach.
         turning = is_pivot & (pan.pivot_reach is not None)
@@ -806,10 +807,7 @@ def pair_state(mech, pan, poses, frame, pairs, clearance, eps, separation=True, 
             sep[rows[clear]] = np.where(turning[rows], np.maximum(bound / scale, angle[rows]), bound)[clear]
             sep[rows[close]] = 0.0
         apart[rows[clear | close]] = True
-        hit = np.zeros(n, bool)
         hit[rows[close]] = True
-    else:
-        hit = np.zeros(n, bool)
     if not apart.any():
         return _pair_state(mech, pan, poses, frame, pairs, clearance, eps, separation, need, angle)
     rest = np.flatnonzero(~apart)

@@ -77,8 +77,8 @@ class Panels:
     hull_points, hull_normals, hull_ok : (F, V, 3), (F, P, 3) float, (F,) bool, optional
         For items that are convex solids (``hull_ok``): their corners and outward
         face normals (flat frame, `hulls.convex_items`). Pairs of such items that
-        the separating-axis bound (`hulls.hull_gap`) already puts far enough apart
-        skip the triangle tests (`narrowphase.pair_state`).
+        the cheap bounds (`narrowphase._cheap_separations`: separating axes,
+        Gilbert's algorithm) already settle skip the triangle tests.
     core : Panels, optional
         For items that hold a thin panel (thick panels): that panel's triangles, one
         run per item (``core.tri_face`` the item), posed with the item. Items without
@@ -318,23 +318,24 @@ BOX_CORNERS = 12
 def _face_boxes(pan, poses):
     """Bounding boxes (T, F, 3) lo and hi of every face at every pose set (T, F, 4, 4).
 
-    Items with oriented boxes (``pan.box_axes``: solids) take the axis-aligned box
-    of their posed oriented box, a few operations per item whatever its mesh;
-    items that are all convex solids with few corners (``pan.hull_ok``) the box of
-    their corners, the tight box from fewer points than their triangles' corners.
+    Items that are all convex solids with few corners (``pan.hull_ok``) take the
+    box of their corners, the tight box from fewer points than their triangles'
+    corners; other items with oriented boxes (``pan.box_axes``: solids) the
+    axis-aligned box of their posed oriented box, a few operations per item
+    whatever its mesh.
     """
-    if pan.box_axes is not None and (pan.hull_ok is None or pan.hull_points.shape[1] > BOX_CORNERS
-                                     or not pan.hull_ok.all()):
+    if (pan.hull_ok is not None and len(pan.hull_ok) and pan.hull_ok.all()
+            and pan.hull_points.shape[1] <= BOX_CORNERS):
+        pts = (np.einsum("tfij,fvj->tfvi", poses[..., :3, :3], pan.hull_points)
+               + poses[:, :, None, :3, 3])
+        return pts.min(axis=2), pts.max(axis=2)
+    if pan.box_axes is not None:
         rot, move = poses[..., :3, :3], poses[..., :3, 3]
         centre = np.einsum("tfij,fj->tfi", rot, pan.box_centre) + move
         # Half extents along the world axes: sum over the box's axes a_k of |R a_k| h_k.
         axes = np.einsum("tfij,fkj->tfki", rot, pan.box_axes)
         reach = np.einsum("tfki,fk->tfi", np.abs(axes), pan.box_half)
         return centre - reach, centre + reach
-    if pan.hull_ok is not None and len(pan.hull_ok) and pan.hull_ok.all():
-        pts = (np.einsum("tfij,fvj->tfvi", poses[..., :3, :3], pan.hull_points)
-               + poses[:, :, None, :3, 3])
-        return pts.min(axis=2), pts.max(axis=2)
     pts = _posed_triangles(pan, poses)
     lo = np.minimum.reduceat(pts.min(axis=2), pan.start, axis=1)
     hi = np.maximum.reduceat(pts.max(axis=2), pan.start, axis=1)

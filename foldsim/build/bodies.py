@@ -116,12 +116,11 @@ def _cores(mech, solids, thin, convex, corners):
     runs = [thin.tri_points[thin.start[f]:thin.start[f] + c] for f, c in zip(faces.tolist(), count.tolist())]
     start = np.concatenate([[0], np.cumsum(count)[:-1]]).astype(np.int64)
     points = np.concatenate(runs) if count.sum() else np.zeros((0, 3, 3))
-    owners = faces
     empty = np.zeros(0, np.int64)
     core = Panels(tri_face=np.repeat(np.arange(n), count), tri_points=points, start=start, count=count,
                   skip_keys=empty, touch_keys=empty, pivot_keys=empty, pivot_dirs=np.zeros((0, 2, 2, 3)),
-                  pivot_path=np.zeros((0, mech.n_hinges), bool), centre=thin.centre[owners],
-                  radius=thin.radius[owners])
+                  pivot_path=np.zeros((0, mech.n_hinges), bool), centre=thin.centre[faces],
+                  radius=thin.radius[faces])
     return core, reach
 
 

@@ -158,14 +158,14 @@ def size_gears(mech, thickness, module, clearance=0.0, max_teeth=200, tol=DEFAUL
     size, first = {}, {}
     for k in base:
         s = scale[k]
-        row = trial(k, s)
+        row = smallest = trial(k, s)
         if kinds[k] != "spur":
             while not passes(row) and s < tops[k]:
                 s = min(tops[k], max(s + 1, (3 * s) // 2))
                 row = trial(k, s)
             if not passes(row):
-                s = scale[k]
-                row = trial(k, s)
+                # None passes: back to the smallest (the others have not moved).
+                s, row = scale[k], smallest
         size[k], first[k] = s, row
         entries[k] = entry(k, s)
     # Then each pair in turn grows as far as the others, as they stand, leave room
