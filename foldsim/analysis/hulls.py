@@ -69,7 +69,7 @@ def convex_items(tri_points, start, count, rel=1e-9):
         keep = length > rel * (size * size)[:, None]
         unit_normal = normal / np.where(keep, length, 1.0)[..., None]
         offset = np.einsum("mcj,mcj->mc", unit_normal, tri[:, :, 0])
-        side = np.einsum("mcj,mvj->mcv", unit_normal, corners) - offset[..., None]
+        side = unit_normal @ corners.swapaxes(1, 2) - offset[..., None]
         convex = ~((side > (rel * size)[:, None, None]) & keep[..., None]).any(axis=(1, 2))
         # Triangles too small to have a normal take the item's first one that has.
         first = np.argmax(keep, axis=1)

@@ -17,7 +17,7 @@ Arrays are (n, 3, 3) as in `triangles`: pair ``k`` is ``a[k]`` against ``b[k]``.
 
 import numpy as np
 
-from ..geometry import cross, unit
+from ..geometry import cross, rotate_rows, unit
 from . import triangles
 from .hulls import hull_distance_bounds, hull_gap, nearest_corners
 from .panels import _in_sorted, _keys, triangle_pairs
@@ -366,7 +366,7 @@ def _posed_items(pan, poses, frame, items):
     tri = pan.start[items][which] + np.arange(count.sum()) - offset[which]
     m = poses[frame[which], items[which]]
     pts = pan.tri_points[tri]
-    return np.einsum("nij,nkj->nki", m[:, :3, :3], pts) + m[:, None, :3, 3], offset
+    return rotate_rows(m[:, :3, :3], pts) + m[:, None, :3, 3], offset
 
 
 def _states_posed(a, b, eps, distance):
@@ -500,7 +500,7 @@ def _posed_boxes(pan, poses, frame, items):
     m = poses[frame, items]
     rot, move = m[:, :3, :3], m[:, :3, 3]
     centre = np.einsum("nij,nj->ni", rot, pan.box_centre[items]) + move
-    axes = np.einsum("nkj,nij->nki", pan.box_axes[items], rot)
+    axes = rotate_rows(rot, pan.box_axes[items])
     return centre, axes
 
 
@@ -575,8 +575,8 @@ def pivot_wedges(pan, poses, frame, pairs, pos):
     dirs = pan.pivot_dirs[pos]
     rot_a = poses[frame, pairs[:, 0], :3, :3]
     rot_b = poses[frame, pairs[:, 1], :3, :3]
-    wa = unit(np.einsum("nij,nkj->nki", rot_a, dirs[:, 0]))
-    wb = unit(np.einsum("nij,nkj->nki", rot_b, dirs[:, 1]))
+    wa = unit(rotate_rows(rot_a, dirs[:, 0]))
+    wb = unit(rotate_rows(rot_b, dirs[:, 1]))
     return _wedge_separation(wa, wb)
 
 
@@ -691,8 +691,8 @@ def _posed_hulls(pan, poses, frame, pairs, corners=None, planes=None):
     for side in (0, 1):
         m = poses[frame, pairs[:, side]]
         rot, move = m[:, :3, :3], m[:, :3, 3]
-        out.append(np.einsum("nij,nvj->nvi", rot, pan.hull_points[pairs[:, side], :corners]) + move[:, None])
-        out.append(np.einsum("nij,nvj->nvi", rot, pan.hull_normals[pairs[:, side], :planes]))
+        out.append(rotate_rows(rot, pan.hull_points[pairs[:, side], :corners]) + move[:, None])
+        out.append(rotate_rows(rot, pan.hull_normals[pairs[:, side], :planes]))
     return out
 
 
@@ -716,8 +716,8 @@ def _cone_separation(ga, gb):
     best = np.zeros(len(ga))
     for sign in (1.0, -1.0):
         u = sign * normals
-        above = np.einsum("nkj,ngj->nkg", u, ga).min(axis=2)
-        below = -np.einsum("nkj,ngj->nkg", u, gb).max(axis=2)
+        above = (u @ ga.swapaxes(1, 2)).min(axis=2)
+        below = -(u @ gb.swapaxes(1, 2)).max(axis=2)
         ok = (above > 0) & (below > 0)
         gap = np.where(ok, np.arcsin(np.clip(above, 0, 1)) + np.arcsin(np.clip(below, 0, 1)), 0.0)
         best = np.maximum(best, gap.max(axis=1))
@@ -789,8 +789,7 @@ def pair_state(mech, pan, poses, frame, pairs, clearance, eps, separation=True, 
         if len(rows):
             rot_a = poses[frame[rows], pairs[rows, 0], :3, :3]
             rot_b = poses[frame[rows], pairs[rows, 1], :3, :3]
-            angle[rows] = _cone_separation(np.einsum("nij,ngj->ngi", rot_a, cones[:, 0]),
-                                           np.einsum("nij,ngj->ngi", rot_b, cones[:, 1]))
+            angle[rows] = _cone_separation(rotate_rows(rot_a, cones[:, 0]), rotate_rows(rot_b, cones[:, 1]))
         apart = (angle > 0) & (angle >= (np.asarray(need, float) if need is not None else np.inf))
     else:
         apart = np.zeros(n, bool)

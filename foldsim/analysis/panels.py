@@ -14,7 +14,7 @@ from dataclasses import dataclass
 import numpy as np
 from scipy.spatial import cKDTree
 
-from ..geometry import transform_points
+from ..geometry import rotate_rows, transform_points
 from ..kinematics import face_poses
 from ..tolerances import DEFAULT
 from . import triangles
@@ -326,14 +326,13 @@ def _face_boxes(pan, poses):
     """
     if (pan.hull_ok is not None and len(pan.hull_ok) and pan.hull_ok.all()
             and pan.hull_points.shape[1] <= BOX_CORNERS):
-        pts = (np.einsum("tfij,fvj->tfvi", poses[..., :3, :3], pan.hull_points)
-               + poses[:, :, None, :3, 3])
+        pts = rotate_rows(poses[..., :3, :3], pan.hull_points) + poses[:, :, None, :3, 3]
         return pts.min(axis=2), pts.max(axis=2)
     if pan.box_axes is not None:
         rot, move = poses[..., :3, :3], poses[..., :3, 3]
         centre = np.einsum("tfij,fj->tfi", rot, pan.box_centre) + move
         # Half extents along the world axes: sum over the box's axes a_k of |R a_k| h_k.
-        axes = np.einsum("tfij,fkj->tfki", rot, pan.box_axes)
+        axes = rotate_rows(rot, pan.box_axes)
         reach = np.einsum("tfki,fk->tfi", np.abs(axes), pan.box_half)
         return centre - reach, centre + reach
     pts = _posed_triangles(pan, poses)

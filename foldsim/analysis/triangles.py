@@ -268,8 +268,8 @@ def _coplanar_overlap(a, b, normal):
     axes = cross(normal[:, None, :], edges)
     axes /= np.linalg.norm(axes, axis=2, keepdims=True)
     origin = a[:, :1, :]
-    pa = np.einsum("nkj,nmj->nmk", a - origin, axes)
-    pb = np.einsum("nkj,nmj->nmk", b - origin, axes)
+    pa = axes @ (a - origin).swapaxes(1, 2)
+    pb = axes @ (b - origin).swapaxes(1, 2)
     overlap = np.minimum(pa.max(axis=2), pb.max(axis=2)) - np.maximum(
         pa.min(axis=2), pb.min(axis=2)
     )

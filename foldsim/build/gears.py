@@ -410,18 +410,24 @@ def _resolve_pairs(mech, spec, tol):
     return out
 
 
-def _arc(lo, hi, radius, segments):
-    """(n + 2, 2) polygon of a circumscribed arc (cos, sin scaled), ends on the circle."""
-    span = hi - lo
-    if span >= 2.0 * math.pi - 1e-12:
+def _arcs(lo, hi, radius, segments, closed):
+    """(n, m, 2) polygons of circumscribed arcs (cos, sin scaled), ends on the circle.
+
+    ``lo``, ``hi``, ``radius`` (n,); one facet count and one kind for all: a closed
+    ring (``m = segments``) or an open arc (``m = segments + 2``, its two ends on the
+    circle, the facets' midpoints between them).
+    """
+    lo, hi, radius = (np.asarray(x, float)[:, None] for x in (lo, hi, radius))
+    if closed:
         step = 2.0 * math.pi / segments
         phi = lo + (np.arange(segments) + 0.5) * step
-        return np.column_stack([np.cos(phi), np.sin(phi)]) * radius / math.cos(step / 2.0), True
-    step = span / segments
-    phi = np.concatenate([[lo], lo + (np.arange(segments) + 0.5) * step, [hi]])
-    scale = np.full(len(phi), radius / math.cos(step / 2.0))
-    scale[[0, -1]] = radius
-    return np.column_stack([np.cos(phi), np.sin(phi)]) * scale[:, None], False
+        scale = radius / math.cos(step / 2.0) * np.ones_like(phi)
+    else:
+        step = (hi - lo) / segments
+        phi = np.concatenate([lo, lo + (np.arange(segments) + 0.5) * step, hi], axis=1)
+        scale = np.repeat(radius / np.cos(step / 2.0), segments + 2, axis=1)
+        scale[:, [0, -1]] = radius
+    return np.stack([np.cos(phi), np.sin(phi)], axis=2) * scale[..., None]
 
 
 def sector_frustum(origin, axial, e1, e2, x_range, r_range, sector, segments):
@@ -444,26 +450,44 @@ def sector_frustum(origin, axial, e1, e2, x_range, r_range, sector, segments):
     (n, 3, 3) float
         Outward-facing triangles.
     """
+    return sector_frusta(*(np.asarray(x, float)[None] for x in (origin, axial, e1, e2, x_range, r_range, sector)),
+                         segments)[0]
+
+
+def sector_frusta(origin, axial, e1, e2, x_range, r_range, sector, segments):
+    """`sector_frustum` for many bodies of one facet count at once.
+
+    ``origin``, ``axial``, ``e1``, ``e2`` (n, 3); ``x_range``, ``r_range``,
+    ``sector`` (n, 2). Returns (n, k, 3, 3): bodies that are whole frusta and
+    sectors have different triangle counts, so one call takes only one kind.
+    """
+    spans = sector[:, 1] - sector[:, 0]
+    closed = bool((spans >= 2.0 * math.pi - 1e-12).all())
+    if not closed and (spans >= 2.0 * math.pi - 1e-12).any():
+        raise ValueError("sector_frusta: whole frusta and sectors in one call")
     rings, centres = [], []
-    closed = False
-    for x, rad in zip(x_range, r_range):
-        ring, closed = _arc(sector[0], sector[1], rad, segments)
-        rings.append(origin + x * axial + ring[:, :1] * e1 + ring[:, 1:] * e2)
-        centres.append(origin + x * axial)
+    for end in (0, 1):
+        ring = _arcs(sector[:, 0], sector[:, 1], r_range[:, end], segments, closed)
+        centre = origin + x_range[:, end, None] * axial
+        rings.append(centre[:, None] + ring[..., :1] * e1[:, None] + ring[..., 1:] * e2[:, None])
+        centres.append(centre)
     a, b = rings
-    m = len(a)
+    n, m = a.shape[:2]
     k = np.arange(m if closed else m - 1)
     k1 = (k + 1) % m
-    tris = [np.stack([np.broadcast_to(centres[0], (len(k), 3)), a[k1], a[k]], axis=1),
-            np.stack([np.broadcast_to(centres[1], (len(k), 3)), b[k], b[k1]], axis=1),
-            np.stack([a[k], a[k1], b[k1]], axis=1), np.stack([a[k], b[k1], b[k]], axis=1)]
+    c0, c1 = (np.broadcast_to(c[:, None], (n, len(k), 3)) for c in centres)
+    tris = [np.stack([c0, a[:, k1], a[:, k]], axis=2), np.stack([c1, b[:, k], b[:, k1]], axis=2),
+            np.stack([a[:, k], a[:, k1], b[:, k1]], axis=2), np.stack([a[:, k], b[:, k1], b[:, k]], axis=2)]
     if not closed:
-        c0, c1 = centres
-        tris.append(np.array([[c0, a[0], b[0]], [c0, b[0], c1], [c0, c1, b[-1]], [c0, b[-1], a[-1]]]))
-    out = np.concatenate(tris)
+        e0, e1_ = centres
+        first, last = a[:, 0], b[:, 0]
+        tris.append(np.stack([np.stack([e0, first, last], axis=1), np.stack([e0, last, e1_], axis=1),
+                              np.stack([e0, e1_, b[:, -1]], axis=1), np.stack([e0, b[:, -1], a[:, -1]], axis=1)],
+                             axis=1))
+    out = np.concatenate(tris, axis=1)
     # Orientation: right-handed (e1, e2, axial) gives outward faces; flip otherwise.
-    if np.cross(e1, e2) @ axial * (x_range[1] - x_range[0]) < 0:
-        out = out[:, ::-1]
+    flip = np.einsum("ij,ij->i", np.cross(e1, e2), axial) * (x_range[:, 1] - x_range[:, 0]) < 0
+    out[flip] = out[flip][:, :, ::-1]
     return out
 
 
@@ -499,40 +523,56 @@ def gear_solids(mech, spec, pairs=None, tip=False, tol=DEFAULT, coarse=False):
         Two (or, for ``remote``, four) per pair, in pair order.
     """
     pairs = gear_pairs(mech, spec, tol) if pairs is None else pairs
-    out = []
-    for p in pairs:
-        known = _SOLIDS.setdefault(p, {})
-        if (tip, coarse) not in known:
-            known[(tip, coarse)] = _pair_solids(p, tip, coarse)
-        out += known[(tip, coarse)]
-    return out
+    missing = [p for p in pairs if (tip, coarse) not in _SOLIDS.setdefault(p, {})]
+    for p, made in zip(missing, _pair_solids(missing, tip, coarse)):
+        _SOLIDS[p][(tip, coarse)] = made
+    return [s for p in pairs for s in _SOLIDS[p][(tip, coarse)]]
 
 
 _SOLIDS = weakref.WeakKeyDictionary()
 """The solids of each resolved pair, by (tip, coarse): a pair's bodies depend on it alone."""
 
 
-def _pair_solids(p, tip, coarse):
-    """The solids of one pair (`gear_solids`)."""
-    out = []
-    for g in p.gears:
+def _pair_solids(pairs, tip, coarse):
+    """The solids of each pair (`gear_solids`): one list per pair, its gears each followed by its rod.
+
+    Bodies of one facet count and kind (whole or sector) are meshed together
+    (`sector_frusta`).
+    """
+    rows = []  # (pair, gear index, is rod, frame and ranges, segments)
+    for n, p in enumerate(pairs):
         grow = p.module if tip else 0.0
-        e2 = np.cross(g.spin, g.e1)
-        label = f"coupling {p.coupling} gear on hinge {g.hinge}"
-        span = g.sector[1] - g.sector[0]
-        radii = (g.r_range[0] + grow, g.r_range[1] + grow)
-        segments = _segments(span)
-        if coarse:
-            scale = 1.0 / math.cos(min(span, 2 * math.pi) / segments / 2.0)
-            radii = (radii[0] * scale, radii[1] * scale)
-            segments = _segments(span, COARSE_PER_TURN)
-        tris = sector_frustum(g.origin, g.axial, g.e1, e2, g.x_range, radii, g.sector, segments)
-        out.append(Solid(g.face, label, "gear", tris, p.coupling, g.hinge))
-        if g.rod is not None:
-            rod = sector_frustum(g.origin, g.axial, g.e1, e2, g.rod, (p.rod_radius, p.rod_radius),
-                                 (0.0, 2 * math.pi), ROD_SEGMENTS)
-            out.append(Solid(g.face, f"coupling {p.coupling} rod on hinge {g.hinge}", "rod", rod,
-                             p.coupling, g.hinge))
+        for k, g in enumerate(p.gears):
+            e2 = np.cross(g.spin, g.e1)
+            span = g.sector[1] - g.sector[0]
+            radii = (g.r_range[0] + grow, g.r_range[1] + grow)
+            segments = _segments(span)
+            if coarse:
+                scale = 1.0 / math.cos(min(span, 2 * math.pi) / segments / 2.0)
+                radii = (radii[0] * scale, radii[1] * scale)
+                segments = _segments(span, COARSE_PER_TURN)
+            rows.append((n, k, False, (g.origin, g.axial, g.e1, e2, g.x_range, radii, g.sector), segments))
+            if g.rod is not None:
+                rows.append((n, k, True, (g.origin, g.axial, g.e1, e2, g.rod, (p.rod_radius, p.rod_radius),
+                                          (0.0, 2 * math.pi)), ROD_SEGMENTS))
+    meshes = [None] * len(rows)
+    groups = {}
+    for r, (_, _, _, frame, segments) in enumerate(rows):
+        whole = frame[6][1] - frame[6][0] >= 2.0 * math.pi - 1e-12
+        groups.setdefault((segments, whole), []).append(r)
+    for (segments, _), members in groups.items():
+        columns = [np.array([rows[r][3][c] for r in members], float) for c in range(7)]
+        for r, tris in zip(members, sector_frusta(*columns, segments)):
+            meshes[r] = tris
+    out = [[] for _ in pairs]
+    for (n, k, rod, _, _), tris in zip(rows, meshes):
+        p, g = pairs[n], pairs[n].gears[k]
+        if rod:
+            out[n].append(Solid(g.face, f"coupling {p.coupling} rod on hinge {g.hinge}", "rod", tris, p.coupling,
+                                g.hinge))
+        else:
+            out[n].append(Solid(g.face, f"coupling {p.coupling} gear on hinge {g.hinge}", "gear", tris, p.coupling,
+                                g.hinge))
     return out
 
 

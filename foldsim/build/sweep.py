@@ -38,6 +38,7 @@ from ..analysis.narrowphase import pair_state, triangle_distance
 from ..analysis.panels import _face_boxes, _in_sorted, _keys, panels
 from ..analysis.sweep import collision_intervals
 from ..gearing import fold_schedule
+from ..geometry import rotate_rows
 from ..kinematics import common_depth, poses_at
 from ..tolerances import DEFAULT
 from .bodies import body_panels, body_speed_profile
@@ -124,14 +125,14 @@ def solid_distances(mech, solids, pair, poses, columns=None):
     """
     a, b = solids[pair[0]], solids[pair[1]]
     fa, fb = (a.face, b.face) if columns is None else columns
-    pa = np.einsum("tij,nkj->tnki", poses[:, fa, :3, :3], a.triangles) + poses[:, fa, None, None, :3, 3]
-    pb = np.einsum("tij,nkj->tnki", poses[:, fb, :3, :3], b.triangles) + poses[:, fb, None, None, :3, 3]
+    pa = _posed(poses[:, fa], a.triangles)
+    pb = _posed(poses[:, fb], b.triangles)
     ca, cb = pa.mean(axis=2), pb.mean(axis=2)
     ra = np.linalg.norm(a.triangles - a.triangles.mean(axis=1, keepdims=True), axis=2).max(axis=1)
     rb = np.linalg.norm(b.triangles - b.triangles.mean(axis=1, keepdims=True), axis=2).max(axis=1)
     va, vb = _corners(a), _corners(b)
-    pva = np.einsum("tij,nj->tni", poses[:, fa, :3, :3], va) + poses[:, fa, None, :3, 3]
-    pvb = np.einsum("tij,nj->tni", poses[:, fb, :3, :3], vb) + poses[:, fb, None, :3, 3]
+    pva = _posed(poses[:, fa], va)
+    pvb = _posed(poses[:, fb], vb)
     out = np.empty(len(poses))
     for start in range(0, len(poses), CHUNK):
         sl = slice(start, start + CHUNK)
@@ -154,6 +155,13 @@ def solid_distances(mech, solids, pair, poses, columns=None):
                             np.abs(_winding_batch(pb[apart, 0, 0], pa[apart])))
         out[apart[inside > 0.5]] = 0.0
     return out
+
+
+def _posed(poses, points):
+    """Points (..., 3) of a solid's flat frame at every pose (T, 4, 4): (T, ..., 3)."""
+    shape = points.shape
+    return (rotate_rows(poses[:, :3, :3], points.reshape(-1, 3)) + poses[:, None, :3, 3]).reshape(
+        (len(poses),) + shape)
 
 
 def _winding_batch(points, tris):
@@ -413,7 +421,7 @@ def _contained(pan, poses, pairs):
             for rows in np.array_split(np.flatnonzero(count == c), max(1, int(np.sum(count == c)) * c // 65536 + 1)):
                 h = poses[holder[rows]]
                 tri = pan.tri_points[pan.start[holder[rows]][:, None] + np.arange(c)]
-                tri = np.einsum("nij,nckj->ncki", h[:, :3, :3], tri) + h[:, None, None, :3, 3]
+                tri = rotate_rows(h[:, None, :3, :3], tri) + h[:, None, None, :3, 3]
                 out[rows] |= np.abs(_winding_batch(point[rows], tri)) > 0.5
     return out
 
