@@ -54,6 +54,12 @@ def test_hash_pairs_equal_brute_force(seed):
         lo[:, 2], hi[:, 2] = hi[:, 1] * [1, 0, 0] + lo[:, 1] * [0, 1, 1], hi[:, 1] + [1.0, 0, 0]
     got = spatialhash.box_pairs_batched(lo, hi)
     assert np.array_equal(got, brute_force_pairs(lo, hi))
+    # Only pairs with an active box: the brute force's rows filtered the same way.
+    active = rng.random(m) < 0.3
+    active[0] = True  # the empty box stays empty
+    want = brute_force_pairs(lo, hi)
+    want = want[active[want[:, 1]] | active[want[:, 2]]]
+    assert np.array_equal(spatialhash.box_pairs_batched(lo, hi, active), want)
 
 
 def test_hash_pairs_equal_sweep_and_prune_on_posed_panels():

@@ -32,8 +32,11 @@ def _cell_size(lo, hi):
     return float(np.quantile(extent, 0.5))
 
 
-def _block_pairs(lo, hi, frame, cell, origin):
-    """(frame, i, j) rows for boxes lo, hi (n, 3) with frame ids and per-frame indices."""
+def _block_pairs(lo, hi, frame, cell, origin, active=None):
+    """(frame, i, j) rows for boxes lo, hi (n, 3) with frame ids and per-frame indices.
+
+    ``active`` (n,) bool, optional: only pairs with an active box are wanted.
+    """
     first = np.floor((lo - origin) / cell).astype(np.int64)
     last = np.floor((hi - origin) / cell).astype(np.int64)
     span = last - first + 1
@@ -55,11 +58,22 @@ def _block_pairs(lo, hi, frame, cell, origin):
     order = np.argsort(key, kind="stable")
     key, owner = key[order], owner[order]
     at = np.stack([cx, cy, cz])[:, order]
-    # Pair every entry with the later entries of its cell.
     run_end = np.searchsorted(key, key, side="right")
-    per = run_end - np.arange(1, len(key) + 1)
-    i = np.repeat(np.arange(len(key)), per)
-    j = i + 1 + (np.arange(per.sum()) - np.repeat(np.cumsum(per) - per, per))
+    if active is None:
+        # Pair every entry with the later entries of its cell.
+        per = run_end - np.arange(1, len(key) + 1)
+        i = np.repeat(np.arange(len(key)), per)
+        j = i + 1 + (np.arange(per.sum()) - np.repeat(np.cumsum(per) - per, per))
+    else:
+        # Pair every active entry with every other entry of its cell, a pair of two
+        # active entries from its first only: pairs of passive boxes are never made.
+        run_start = np.searchsorted(key, key, side="left")
+        seeds = np.flatnonzero(active[owner])
+        per = run_end[seeds] - run_start[seeds]
+        i = np.repeat(seeds, per)
+        j = np.repeat(run_start[seeds], per) + (np.arange(per.sum()) - np.repeat(np.cumsum(per) - per, per))
+        keep = (j != i) & (~active[owner[j]] | (j > i))
+        i, j = i[keep], j[keep]
     ia, ib = owner[i], owner[j]
     # Keep a pair only in the cell of its boxes' intersection's lower corner (the
     # larger of the two first cells on each axis), then test the boxes, one axis at
@@ -72,7 +86,10 @@ def _block_pairs(lo, hi, frame, cell, origin):
         ia, ib = ia[meet], ib[meet]
     rows = [np.column_stack([ia, ib])]
     if big.any():
-        rows.append(_big_pairs(lo, hi, frame, big, cell * COARSE, origin))
+        found = _big_pairs(lo, hi, frame, big, cell * COARSE, origin)
+        if active is not None:
+            found = found[active[found[:, 0]] | active[found[:, 1]]]
+        rows.append(found)
     return np.concatenate(rows)
 
 
@@ -142,13 +159,16 @@ def _big_pairs(lo, hi, frame, big, cell, origin):
     return np.concatenate(rows) if rows else np.zeros((0, 2), dtype=np.int64)
 
 
-def box_pairs_batched(lo, hi):
+def box_pairs_batched(lo, hi, active=None):
     """Overlapping box pairs in each of several frames.
 
     Parameters
     ----------
     lo, hi : (T, m, 3) float
         Lower and upper box corners; frame ``f`` is ``lo[f], hi[f]``.
+    active : (m,) bool, optional
+        Report only pairs with at least one active box (the others are never
+        formed, which saves the work where most boxes are passive neighbours).
 
     Returns
     -------
@@ -177,7 +197,8 @@ def box_pairs_batched(lo, hi):
     for k, end in zip(bounds[:-1], bounds[1:]):
         sub = valid[k:end]
         f_idx, b_idx = np.nonzero(sub)
-        pairs = _block_pairs(lo[k:end][sub], hi[k:end][sub], f_idx, cell, origin)
+        pairs = _block_pairs(lo[k:end][sub], hi[k:end][sub], f_idx, cell, origin,
+                             None if active is None else np.asarray(active, bool)[b_idx])
         if not len(pairs):
             continue
         frame = f_idx[pairs[:, 0]] + k

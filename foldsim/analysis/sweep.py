@@ -310,11 +310,9 @@ def _candidates(ev, grid, lo, hi, k):
     steps, f = swept_lo.shape[:2]
     block = 2 ** min(k, 2)
     rows = spatialhash.box_pairs_batched(swept_lo.reshape(-1, block, f, 3).min(axis=1),
-                                         swept_hi.reshape(-1, block, f, 3).max(axis=1))
-    skip, _ = _in_sorted(_keys(rows[:, 1:], ev.n), ev.pan.skip_keys)
-    if ev.pan.passive is not None:
-        skip |= ev.pan.passive[rows[:, 1]] & ev.pan.passive[rows[:, 2]]
-    rows = rows[~skip]
+                                         swept_hi.reshape(-1, block, f, 3).max(axis=1),
+                                         None if ev.pan.passive is None else ~ev.pan.passive)
+    rows = rows[~_in_sorted(_keys(rows[:, 1:], ev.n), ev.pan.skip_keys)[0]]
     if block == 1:
         return np.column_stack([rows[:, 0], np.zeros(len(rows), rows.dtype), rows[:, 1:]])
     out = [np.zeros((0, 4), dtype=rows.dtype)]
