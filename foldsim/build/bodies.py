@@ -53,17 +53,15 @@ def body_panels(mech, solids, skip=(), passive=None, pivots=None, cone_solids=No
     tri_points = np.concatenate([s.triangles for s in solids]).astype(float)
     tri_item = np.repeat(np.arange(len(solids)), count)
     owner = np.array([s.face for s in solids], np.int64)
-    centre = np.array([s.triangles.reshape(-1, 3).mean(axis=0) for s in solids])
-    radius = np.array([np.linalg.norm(s.triangles.reshape(-1, 3) - c, axis=1).max()
-                       for s, c in zip(solids, centre)])
-    same = []
-    order = np.argsort(owner, kind="stable")
-    for run in np.split(order, np.flatnonzero(np.diff(owner[order])) + 1):
-        if len(run) > 1:
-            a, b = np.triu_indices(len(run), 1)
-            same.append(np.column_stack([run[a], run[b]]))
-    pairs = np.concatenate(same + [np.asarray(skip, np.int64).reshape(-1, 2)])
     n = len(solids)
+    centre, radius = item_spheres(tri_points, start, count)
+    # Solids of one face: every item paired with the later items of its face's run.
+    order = np.argsort(owner, kind="stable")
+    run_end = np.searchsorted(owner[order], owner[order], side="right")
+    per = run_end - np.arange(1, n + 1)
+    i = np.repeat(np.arange(n), per)
+    j = i + 1 + (np.arange(per.sum()) - np.repeat(np.cumsum(per) - per, per))
+    pairs = np.concatenate([np.column_stack([order[i], order[j]]), np.asarray(skip, np.int64).reshape(-1, 2)])
     box_centre, box_axes, box_half = oriented_boxes(tri_points, start)
     skip_keys = np.unique(_keys(pairs, n))
     keys, paths, points = _pivot_items(mech, owner, skip_keys, pivots)
@@ -85,6 +83,15 @@ def body_panels(mech, solids, skip=(), passive=None, pivots=None, cone_solids=No
         passive=None if passive is None else np.asarray(passive, bool),
         box_centre=box_centre, box_axes=box_axes, box_half=box_half,
         hull_points=hull_points, hull_normals=hull_normals, hull_ok=hull_ok, core=core, core_reach=core_reach)
+
+
+def item_spheres(tri_points, start, count):
+    """Centre (S, 3), the mean of each item's triangle corners, and the radius (S,) that holds them."""
+    points = tri_points.reshape(-1, 3)
+    first = 3 * start
+    centre = np.add.reduceat(points, first, axis=0) / (3 * count)[:, None]
+    far = np.linalg.norm(points - np.repeat(centre, 3 * count, axis=0), axis=1)
+    return centre, np.maximum.reduceat(far, first)
 
 
 def _cores(mech, solids, thin, convex, corners):
@@ -223,25 +230,28 @@ def body_speed_profile(mech, rates, solids):
         of its panel's ancestor at depth d.
     """
     profile = speed_profile(mech, rates)
+    faces = np.array([s.face for s in solids], np.int64)
+    out = profile[faces]
+    entry = mech.face_hinge[faces]
+    moved = np.flatnonzero(entry >= 0)
+    if not len(moved):
+        return out
     mids = mech.axes.mean(axis=1)
-    out = np.zeros((len(solids), profile.shape[1]))
-    tails = {}
-    for s, solid in enumerate(solids):
-        f = solid.face
-        out[s] = profile[f]
-        h = mech.face_hinge[f]
-        if h < 0:
-            continue
-        if f not in tails:
-            chain = []
-            g = f
-            while mech.face_hinge[g] >= 0:
-                chain.append(mech.face_hinge[g])
-                g = mech.parent[mech.face_hinge[g]]
-            chain = np.array(chain[::-1], np.int64)
-            far_face = np.linalg.norm(mech.flat_faces[f] - mids[h], axis=1).max()
-            tails[f] = (far_face, np.cumsum(np.abs(rates[chain])[::-1])[::-1])
-        far_face, tail = tails[f]
-        far_body = np.linalg.norm(solid.triangles.reshape(-1, 3) - mids[h], axis=1).max()
-        out[s, :len(tail)] += max(0.0, far_body - far_face) * tail
+    # chained[f, d]: |rate| of the hinge at depth d on f's chain (0 past its end).
+    chained = np.zeros((mech.n_faces, profile.shape[1] - 1))
+    for d, level in enumerate(mech.levels):
+        level = np.asarray(level, np.int64)
+        chained[mech.child[level]] = chained[mech.parent[level]]
+        chained[mech.child[level], d] = np.abs(rates[level])
+    tail = np.cumsum(chained[:, ::-1], axis=1)[:, ::-1]
+    far_face = np.zeros(mech.n_faces)
+    for f in np.unique(faces[moved]).tolist():
+        far_face[f] = np.linalg.norm(mech.flat_faces[f] - mids[mech.face_hinge[f]], axis=1).max()
+    count = np.array([s.triangles.size // 3 for s in solids], np.int64)
+    points = np.concatenate([s.triangles.reshape(-1, 3) for s in solids])
+    owner = np.repeat(np.arange(len(solids)), count)
+    far_point = np.linalg.norm(points - mids[np.maximum(entry, 0)][owner], axis=1)
+    far_body = np.maximum.reduceat(far_point, np.concatenate([[0], np.cumsum(count)[:-1]]))
+    extra = np.where(entry >= 0, np.maximum(0.0, far_body - far_face[faces]), 0.0)
+    out[:, :-1] += extra[:, None] * tail[faces]
     return out

@@ -41,7 +41,7 @@ from ..gearing import fold_schedule
 from ..geometry import rotate_rows
 from ..kinematics import common_depth, poses_at
 from ..tolerances import DEFAULT
-from .bodies import body_panels, body_speed_profile
+from .bodies import body_panels, body_speed_profile, item_spheres
 from .gears import gear_pairs, gear_solids
 from .prisms import panel_solids
 
@@ -87,9 +87,8 @@ def body_pairs(solids, carrier):
 
 def _spheres(solids):
     """Centre (S, 3) and radius (S,) of a sphere holding every solid, flat frame."""
-    centre = np.array([s.triangles.reshape(-1, 3).mean(axis=0) for s in solids])
-    radius = np.array([np.linalg.norm(s.triangles.reshape(-1, 3) - c, axis=1).max() for s, c in zip(solids, centre)])
-    return centre, radius
+    count = np.array([len(s.triangles) for s in solids], np.int64)
+    return item_spheres(np.concatenate([s.triangles for s in solids]), np.cumsum(count) - count, count)
 
 
 def _sphere_bounds(centre, radius, pair, poses):
@@ -234,15 +233,16 @@ def gear_clearance(mech, spec, schedule=None, t_from=0.0, t_to=1.0, pairs=None, 
     for c in tested:
         if c in rows and np.isfinite(enough):
             rows[c]["guaranteed_min"] = float(enough)
-    profile = body_speed_profile(mech, schedule.rates, solids)
     if np.isfinite(enough):
         # Screened with the coarse bodies, which hold the fine ones: every pair the
-        # fine bodies bring within ``enough`` is among those the coarse ones do.
+        # fine bodies bring within ``enough`` is among those the coarse ones do, and
+        # their speed bounds bound the fine ones' too.
         screen = prisms + gear_solids(mech, spec, pairs, tip=True, tol=tol, coarse=True)
         pan = body_panels(mech, screen, allowed, passive=~active, pivots=panels(mech, tol))
-        near = _near_pairs(mech, schedule, pan, body_speed_profile(mech, schedule.rates, screen), lo_t, hi_t,
-                           enough, tol)
+        profile = body_speed_profile(mech, schedule.rates, screen)
+        near = _near_pairs(mech, schedule, pan, profile, lo_t, hi_t, enough, tol)
     else:
+        profile = body_speed_profile(mech, schedule.rates, solids)
         near = {tuple(p): (lo_t, hi_t) for p in body_pairs(solids, carrier).tolist()
                 if active[p[0]] or active[p[1]]}
     if not near:
