@@ -90,6 +90,38 @@ def test_separating_axes_and_gilbert_bound_the_fcl_distance():
     np.testing.assert_allclose(upper[apart], want[apart], rtol=1e-2)
 
 
+def test_sphere_against_planes_bounds_the_fcl_distance():
+    # Reference: python-fcl's exact distance between a random convex hull and a
+    # sphere (fcl.Sphere) placed at random. The planes' bound never exceeds it, and
+    # it is exact where the sphere lies straight above a face (the nearest point of
+    # the hull inside that face): the cube's faces, centres over the face.
+    fcl = pytest.importorskip("fcl")
+    from foldsim.analysis.hulls import plane_offsets, sphere_plane_gap
+
+    rng = np.random.default_rng(5)
+    meshes, centres, radii, want = [], [], [], []
+    for _ in range(60):
+        a = rng.normal(size=(rng.integers(5, 13), 3))
+        ta = _hull_triangles(a)
+        centre, radius = rng.normal(scale=3.0, size=3), rng.uniform(0.1, 1.0)
+        meshes.append(ta)
+        centres.append(centre)
+        radii.append(radius)
+        sphere = fcl.CollisionObject(fcl.Sphere(radius), fcl.Transform(centre))
+        want.append(fcl.distance(fcl_object(fcl, ta), sphere, fcl.DistanceRequest(), fcl.DistanceResult()))
+    points, normals, ok = convex_items(*_items(*meshes))
+    assert ok.all()
+    gap = sphere_plane_gap(np.array(centres), np.array(radii), normals, plane_offsets(points, normals))
+    want = np.maximum(np.array(want), 0.0)
+    assert (gap <= want + 1e-9).all()
+    assert (gap > 0).sum() >= 20  # the bound settles something
+    cube = np.array(list(itertools.product((0.0, 1.0), repeat=3)))
+    above = np.array([[0.5, 0.5, 3.0], [0.3, -2.0, 0.6], [4.0, 0.9, 0.1]])
+    points, normals, _ = convex_items(*_items(*[_hull_triangles(cube)] * 3))
+    gap = sphere_plane_gap(above, np.full(3, 0.5), normals, plane_offsets(points, normals))
+    np.testing.assert_allclose(gap, [1.5, 1.5, 2.5])  # by hand: height above the face less the radius
+
+
 def test_gilbert_stops_within_its_slack():
     # Two unit cubes a corner's diagonal apart (distance sqrt 3, corner to corner;
     # elementary geometry): a slack of 0.25 stops with the lower bound at least 3/4

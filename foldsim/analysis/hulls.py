@@ -107,6 +107,36 @@ def _distinct_rows(rows):
     return out[:, :max(1, int(number.max()))], number
 
 
+def plane_offsets(points, normals):
+    """(F, P) offset of each face plane of each item: ``normals[f, p] . x <= offset`` on the item.
+
+    ``points`` (F, V, 3) and ``normals`` (F, P, 3) as `convex_items` gives them
+    (NaN rows for items that do not qualify give NaN).
+    """
+    return (normals @ points.transpose(0, 2, 1)).max(axis=2)
+
+
+def sphere_plane_gap(centre, radius, normals, offsets):
+    """Lower bound (n,) on the distance from spheres to convex items; negative where they may meet.
+
+    ``centre`` (n, 3), in each item's own frame, ``radius`` (n,); the item's face
+    planes ``normals`` (n, P, 3), ``offsets`` (n, P) (`plane_offsets`). A point
+    beyond one face plane of a convex solid by h is at least h from the solid, so
+    the sphere is at least h less its radius from it; the largest over the planes.
+
+    Examples
+    --------
+    A unit sphere centred 3 above the top of the unit cube is 2 from it:
+
+    >>> import itertools
+    >>> cube = np.array(list(itertools.product((0.0, 1.0), repeat=3)))[None]
+    >>> faces = np.vstack([np.eye(3), -np.eye(3)])[None]
+    >>> float(sphere_plane_gap(np.array([[0.5, 0.5, 4.0]]), np.ones(1), faces, plane_offsets(cube, faces))[0])
+    2.0
+    """
+    return (np.einsum("npj,nj->np", normals, centre) - offsets).max(axis=1) - radius
+
+
 def nearest_corners(pa, pb):
     """(n, 3) the difference a - b of each pair's nearest two corners, a point of A - B."""
     sa, sb = (pa * pa).sum(axis=2), (pb * pb).sum(axis=2)

@@ -79,6 +79,9 @@ class Panels:
         face normals (flat frame, `hulls.convex_items`). Pairs of such items that
         the cheap bounds (`narrowphase._cheap_separations`: separating axes,
         Gilbert's algorithm) already settle skip the triangle tests.
+    hull_offsets : (F, P) float, optional
+        With ``hull_normals``: each face plane's offset (`hulls.plane_offsets`), for
+        the cheapest of those bounds, each item's sphere against the other's planes.
     core : Panels, optional
         For items that hold a thin panel (thick panels): that panel's triangles, one
         run per item (``core.tri_face`` the item), posed with the item. Items without
@@ -112,6 +115,7 @@ class Panels:
     hull_points: np.ndarray = None
     hull_normals: np.ndarray = None
     hull_ok: np.ndarray = None
+    hull_offsets: np.ndarray = None
     core: "Panels" = None
     core_reach: np.ndarray = None
 

@@ -10,7 +10,7 @@ bounded memory for solids of any number of triangles.
 
 import numpy as np
 
-from ..analysis.hulls import convex_items
+from ..analysis.hulls import convex_items, plane_offsets
 from ..analysis.panels import Panels, _is_convex, _keys, oriented_boxes
 from ..analysis.triangles import newell_normal, point_triangle_distance
 from ..kinematics import speed_profile
@@ -82,7 +82,8 @@ def body_panels(mech, solids, skip=(), passive=None, pivots=None, cone_solids=No
         pivot_path=paths, pivot_points=points, pivot_reach=reach, pivot_cones=cones, centre=centre, radius=radius, owner=owner,
         passive=None if passive is None else np.asarray(passive, bool),
         box_centre=box_centre, box_axes=box_axes, box_half=box_half,
-        hull_points=hull_points, hull_normals=hull_normals, hull_ok=hull_ok, core=core, core_reach=core_reach)
+        hull_points=hull_points, hull_normals=hull_normals, hull_ok=hull_ok,
+        hull_offsets=plane_offsets(hull_points, hull_normals), core=core, core_reach=core_reach)
 
 
 def item_spheres(tri_points, start, count):
