@@ -151,7 +151,7 @@ def _build_part(mech, schedule, t_from, t_to, problems, tol, tolerance, end):
     from .build.sectors import sector_coverage
     from .build.spec import build_spec
     from .build.stops import stop_overruns
-    from .build.sweep import RESOLUTION, gear_clearance, gear_contacts, panel_clashes
+    from .build.sweep import RESOLUTION, gear_clearance, gear_contacts, near_bodies, panel_clashes
 
     spec = build_spec(mech, tol=tol)
     if spec is None:
@@ -169,8 +169,11 @@ def _build_part(mech, schedule, t_from, t_to, problems, tol, tolerance, end):
             problems.append(f"coupling {row['coupling']}: a gear sector runs out of teeth from t = "
                             f"{row['runs_out_at_t']:.4g} (contact ratio down to {row['min_contact_ratio']:.3g})")
     floor = RESOLUTION * mech.size
-    clearance = gear_clearance(mech, spec, schedule, t_from, t_to, pairs=pairs,
-                               enough=max(2.0 * spec.clearance, spec.clearance + 2.0 * floor), tol=tol)
+    enough = max(2.0 * spec.clearance, spec.clearance + 2.0 * floor)
+    # One screen serves both: the contacts lie among the pairs that come within `enough`.
+    screened = near_bodies(mech, spec, schedule, t_from, t_to, pairs=pairs, enough=enough, tol=tol)
+    clearance = gear_clearance(mech, spec, schedule, t_from, t_to, pairs=pairs, enough=enough, tol=tol,
+                               near=screened)
     near = []
     for row in clearance:
         d = row["min_clearance"]
@@ -179,7 +182,8 @@ def _build_part(mech, schedule, t_from, t_to, problems, tol, tolerance, end):
             problems.append(f"coupling {row['coupling']}: its {row['body'].split(' ', 2)[2]} comes within "
                             f"{d:.4g} {mech.units} of {row['with']} at t = {row['at_t']:.4g} "
                             f"(clearance {spec.clearance:g})")
-    contacts = gear_contacts(mech, spec, schedule, t_from, t_to, couplings=near, pairs=pairs, tol=tol) if near else []
+    contacts = (gear_contacts(mech, spec, schedule, t_from, t_to, couplings=near, pairs=pairs, tol=tol,
+                              near=screened) if near else [])
     clashes = panel_clashes(mech, spec, schedule, t_from, t_to, tol=tol)
     if clashes:
         first = clashes[0]

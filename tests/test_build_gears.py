@@ -506,6 +506,13 @@ def test_gear_contacts_without_a_clearance_are_where_bodies_touch_by_python_fcl(
         pair = (label[row["body"]], label[row["with"]])
         t = np.linspace(row["first_t"], row["last_t"], 5)
         assert (_dense_fcl(fcl, mech, solids, pair, t) <= floor + 1e-9).all()
+    # The check sweeps only the screen's pairs (`near_bodies`): the same stretches
+    # as sweeping every solid.
+    from foldsim.build.sweep import gear_contacts, near_bodies
+
+    spec = build_spec(mech)
+    screened = near_bodies(mech, spec, enough=3.0 * floor)
+    assert gear_contacts(mech, spec, near=screened) == gear_contacts(mech, spec) == contacts
 
 
 def test_sizing_grows_past_a_pair_that_shares_its_corner():

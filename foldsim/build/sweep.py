@@ -173,18 +173,46 @@ def _winding_batch(points, tris):
     return (2.0 * np.arctan2(det, den)).sum(axis=1) / (4.0 * np.pi)
 
 
+def near_bodies(mech, spec, schedule=None, t_from=0.0, t_to=1.0, pairs=None, only=None, enough=np.inf,
+                tol=DEFAULT, solids=None):
+    """The gear screen: pairs of solids that come within ``enough`` of each other, and when.
+
+    The collision sweep of `foldsim.analysis.sweep` on the prisms and the coarse
+    gear bodies (`gear_solids`'s ``coarse``: they hold the fine ones), with
+    ``enough`` as its clearance, over every pair `gear_clearance` tests; plus any
+    pair within it, or one inside the other, at ``t_from``. With that sweep's
+    guarantee every pair of the fine bodies that comes within ``enough`` is here.
+
+    Returns
+    -------
+    dict
+        ``(a, b) -> (first_t, last_t)``, indices into the prisms followed by
+        `gear_solids` (``tip=True``), as `gear_clearance` lists them.
+    """
+    schedule = schedule or fold_schedule(mech, tol)
+    pairs = gear_pairs(mech, spec, tol) if pairs is None else pairs
+    prisms = panel_solids(mech, spec, tol=tol) if solids is None else list(solids)
+    screen = prisms + gear_solids(mech, spec, pairs, tip=True, tol=tol, coarse=True)
+    lo_t, hi_t = sorted((float(t_from), float(t_to)))
+    active = np.array([s.kind != "panel" and (only is None or s.coupling in only) for s in screen], bool)
+    if lo_t == hi_t or not active.any():
+        return {}
+    allowed = allowed_pairs(screen, {p.coupling: p.carrier for p in pairs})
+    pan = body_panels(mech, screen, allowed, passive=~active, pivots=panels(mech, tol))
+    return _near_pairs(mech, schedule, pan, body_speed_profile(mech, schedule.rates, screen), lo_t, hi_t, enough,
+                       tol)
+
+
 def gear_clearance(mech, spec, schedule=None, t_from=0.0, t_to=1.0, pairs=None, only=None,
-                   resolution=RESOLUTION, enough=np.inf, tol=DEFAULT, solids=None):
+                   resolution=RESOLUTION, enough=np.inf, tol=DEFAULT, solids=None, near=None):
     """Least distance of every coupling's gear bodies to what they must not touch (the ``gear_clearance`` key).
 
     With a finite ``enough`` the sweep runs in two stages. The first is the
-    collision sweep of `foldsim.analysis.sweep` on the solids (`bodies.body_panels`),
-    with ``enough`` as its clearance: it finds, with that sweep's guarantee, every
-    pair of bodies that comes within ``enough`` of each other, and when (plus any
-    pair within it, or one inside the other, at ``t_from``). Only those pairs go to
-    the second stage, the exact refinement below, over the stretch of t where they
-    are near. Without ``enough`` every pair goes to the second stage over the whole
-    range.
+    screen (`near_bodies`): it finds, with the collision sweep's guarantee, every
+    pair of bodies that comes within ``enough`` of each other, and when. Only those
+    pairs go to the second stage, the exact refinement below, over the stretch of t
+    where they are near. Without ``enough`` every pair goes to the second stage over
+    the whole range.
 
     Parameters
     ----------
@@ -207,6 +235,9 @@ def gear_clearance(mech, spec, schedule=None, t_from=0.0, t_to=1.0, pairs=None, 
         clearance, and at least the clearance plus twice the resolution).
     solids : list of Solid, optional
         The prisms (`prisms.panel_solids`), when the caller already has them.
+    near : dict, optional
+        The screen's answer (`near_bodies` with the same ``enough``, ``only`` and
+        range), when the caller already has it.
 
     Returns
     -------
@@ -234,13 +265,11 @@ def gear_clearance(mech, spec, schedule=None, t_from=0.0, t_to=1.0, pairs=None, 
         if c in rows and np.isfinite(enough):
             rows[c]["guaranteed_min"] = float(enough)
     if np.isfinite(enough):
-        # Screened with the coarse bodies, which hold the fine ones: every pair the
-        # fine bodies bring within ``enough`` is among those the coarse ones do, and
-        # their speed bounds bound the fine ones' too.
-        screen = prisms + gear_solids(mech, spec, pairs, tip=True, tol=tol, coarse=True)
-        pan = body_panels(mech, screen, allowed, passive=~active, pivots=panels(mech, tol))
-        profile = body_speed_profile(mech, schedule.rates, screen)
-        near = _near_pairs(mech, schedule, pan, profile, lo_t, hi_t, enough, tol)
+        if near is None:
+            near = near_bodies(mech, spec, schedule, lo_t, hi_t, pairs, only, enough, tol, prisms)
+        # The coarse bodies hold the fine ones: their speed bounds bound the fine ones' too.
+        profile = body_speed_profile(mech, schedule.rates,
+                                     prisms + gear_solids(mech, spec, pairs, tip=True, tol=tol, coarse=True))
     else:
         profile = body_speed_profile(mech, schedule.rates, solids)
         near = {tuple(p): (lo_t, hi_t) for p in body_pairs(solids, carrier).tolist()
@@ -320,7 +349,8 @@ def gear_clearance(mech, spec, schedule=None, t_from=0.0, t_to=1.0, pairs=None, 
     return list(rows.values())
 
 
-def gear_contacts(mech, spec, schedule=None, t_from=0.0, t_to=1.0, couplings=None, pairs=None, tol=DEFAULT):
+def gear_contacts(mech, spec, schedule=None, t_from=0.0, t_to=1.0, couplings=None, pairs=None, tol=DEFAULT,
+                  near=None):
     """When gear bodies come nearer than ``spec.clearance`` to what they must not touch.
 
     The collision sweep of `foldsim.analysis.sweep` on the prisms and the gear
@@ -330,6 +360,10 @@ def gear_contacts(mech, spec, schedule=None, t_from=0.0, t_to=1.0, couplings=Non
     for it (``RESOLUTION * mech.size``, as `gear_clearance` counts a body that near
     as touching): bodies that only touch are in contact too, and their stretches are
     found at once, where a crossing test would refine along all of them.
+
+    With ``near``, the screen's answer (`near_bodies` over the same range, with a
+    distance of at least the clearance), only the solids of its pairs are swept:
+    any other pair stays farther apart than that distance all along.
 
     Returns
     -------
@@ -345,6 +379,13 @@ def gear_contacts(mech, spec, schedule=None, t_from=0.0, t_to=1.0, couplings=Non
     active = np.array([s.kind != "panel" and (couplings is None or s.coupling in couplings) for s in solids], bool)
     if lo_t == hi_t or not active.any():
         return []
+    keep = np.arange(len(solids))
+    if near is not None:
+        # Only the screen's pairs with a body of these couplings can come that near.
+        keep = np.unique([i for pair in near for i in pair if active[pair[0]] or active[pair[1]]]).astype(np.int64)
+        if not len(keep):
+            return []
+    solids, active = [solids[i] for i in keep], active[keep]
     carrier = {p.coupling: p.carrier for p in pairs}
     pan = body_panels(mech, solids, allowed_pairs(solids, carrier), passive=~active, pivots=panels(mech, tol))
     clearance = spec.clearance if spec.clearance > 0 else RESOLUTION * mech.size
