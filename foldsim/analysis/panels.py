@@ -130,9 +130,22 @@ def _keys(pairs, n_faces):
     return pairs[:, 0] * n_faces + pairs[:, 1]
 
 
-def _is_convex(poly, normal):
-    turn = np.cross(np.roll(poly, -1, 0) - poly, np.roll(poly, -2, 0) - np.roll(poly, -1, 0)) @ normal
-    return bool((turn > -1e-12 * np.abs(turn).max()).all())
+def convex_faces(mech):
+    """(F,) bool: which flat faces are convex polygons (every turn on one side of the face's normal).
+
+    The normal is the area-weighted one (Newell's, as ``sum p_i x p_(i+1)``); faces of
+    one vertex count are tested together.
+    """
+    sizes = np.array([len(p) for p in mech.flat_faces])
+    out = np.ones(len(sizes), bool)
+    for k in np.unique(sizes[sizes > 3]).tolist():
+        rows = np.flatnonzero(sizes == k)
+        poly = np.array([mech.flat_faces[f] for f in rows], float)
+        ahead = np.roll(poly, -1, axis=1)
+        normal = np.cross(poly, ahead).sum(axis=1)
+        turn = np.einsum("mkj,mj->mk", np.cross(ahead - poly, np.roll(poly, -2, axis=1) - ahead), normal)
+        out[rows] = (turn > -1e-12 * np.abs(turn).max(axis=1, keepdims=True)).all(axis=1)
+    return out
 
 
 def _face_starts(mech):
@@ -231,7 +244,7 @@ def panels(mech, tol=DEFAULT):
             (pt_local[i], pt_local[j], paths.get(row, [])))
     skip = set(hinged)
     pivots = []
-    convex = [len(p) == 3 or _is_convex(p, np.cross(p[1] - p[0], p[2] - p[0])) for p in mech.flat_faces]
+    convex = convex_faces(mech)
     for (a, b), points in shared.items():
         if len(points) > 1:
             skip.add((a, b))
@@ -266,18 +279,21 @@ def oriented_boxes(tri_points, start):
     centre (F, 3), axes (F, 3, 3), half (F, 3) float
         As `Panels` keeps them.
     """
-    ends = np.append(start[1:], len(tri_points))
-    centre, axes, half = [], [], []
-    for s, e in zip(start, ends):
-        pts = tri_points[s:e].reshape(-1, 3)
-        mid = pts.mean(axis=0)
+    start = np.asarray(start, np.int64)
+    count = np.diff(np.append(start, len(tri_points)))
+    centre, axes, half = np.zeros((len(start), 3)), np.zeros((len(start), 3, 3)), np.zeros((len(start), 3))
+    # Runs of one length at a time, all at once.
+    for c in np.unique(count).tolist():
+        rows = np.flatnonzero(count == c)
+        pts = tri_points[start[rows][:, None] + np.arange(c)].reshape(len(rows), -1, 3)
+        mid = pts.mean(axis=1, keepdims=True)
         _, _, vt = np.linalg.svd(pts - mid, full_matrices=False)
-        proj = (pts - mid) @ vt.T
-        lo, hi = proj.min(axis=0), proj.max(axis=0)
-        centre.append(mid + 0.5 * (lo + hi) @ vt)
-        axes.append(vt)
-        half.append(0.5 * (hi - lo))
-    return np.array(centre).reshape(-1, 3), np.array(axes).reshape(-1, 3, 3), np.array(half).reshape(-1, 3)
+        proj = (pts - mid) @ vt.transpose(0, 2, 1)
+        lo, hi = proj.min(axis=1), proj.max(axis=1)
+        centre[rows] = mid[:, 0] + ((0.5 * (lo + hi))[:, None] @ vt)[:, 0]
+        axes[rows] = vt
+        half[rows] = 0.5 * (hi - lo)
+    return centre, axes, half
 
 
 def _in_sorted(keys, table):

@@ -11,8 +11,8 @@ bounded memory for solids of any number of triangles.
 import numpy as np
 
 from ..analysis.hulls import convex_items, plane_offsets
-from ..analysis.panels import Panels, _is_convex, _keys, oriented_boxes
-from ..analysis.triangles import newell_normal, point_triangle_distance
+from ..analysis.panels import Panels, _keys, convex_faces, oriented_boxes
+from ..analysis.triangles import point_triangle_distance
 from ..kinematics import speed_profile
 
 
@@ -112,9 +112,8 @@ def _cores(mech, solids, thin, convex, corners):
     n = len(solids)
     reach = np.full(n, np.inf)
     faces = np.array([s.face for s in solids], np.int64)
-    cored = np.array([s.kind == "panel" and bool(convex[i]) and _is_convex(mech.flat_faces[s.face],
-                                                                          newell_normal(mech.flat_faces[s.face]))
-                      for i, s in enumerate(solids)], bool)
+    flat_convex = convex_faces(mech)
+    cored = np.array([s.kind == "panel" for s in solids], bool) & np.asarray(convex, bool) & flat_convex[faces]
     count = np.where(cored, thin.count[faces], 0)
     for c in np.unique(count[cored]).tolist():
         rows = np.flatnonzero(cored & (count == c))
