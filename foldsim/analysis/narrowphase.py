@@ -719,28 +719,36 @@ def _posed_hulls(pan, poses, frame, pairs, corners=None, planes=None):
     return out
 
 
-def _cone_separation(ga, gb):
+def _cone_separation(ga, gb, need=None):
     """Lower bound (n,) on the angle between convex cones with a common apex.
 
     ``ga``, ``gb`` (n, G, 3): unit directions generating each cone. A plane through
     the apex with unit normal u that has every generator of A at least alpha above
     it and every one of B at least beta below keeps every direction of A at least
-    alpha + beta from every direction of B. The planes tried are those through two
-    generators (of either cone) and the one normal to the difference of the cones'
-    mean directions, each both ways; 0 where none separates.
+    alpha + beta from every direction of B. The planes tried are the one normal to
+    the difference of the cones' mean directions and those through two generators
+    (of either cone), each both ways; 0 where none separates. With ``need`` (n,),
+    pairs that the first plane already keeps ``need`` apart get that plane's angle
+    (a lower bound that reaches it) and skip the others.
     """
-    dirs = np.concatenate([ga, gb], axis=1)
-    i, j = np.triu_indices(dirs.shape[1], 1)
-    normals = cross(dirs[:, i], dirs[:, j])
-    mean = ga.mean(axis=1) - gb.mean(axis=1)
-    normals = np.concatenate([normals, mean[:, None]], axis=1)
+    mean = (ga.mean(axis=1) - gb.mean(axis=1))[:, None]
+    best = _plane_gaps(ga, gb, mean)
+    rest = np.arange(len(ga)) if need is None else np.flatnonzero(best < need)
+    if len(rest):
+        dirs = np.concatenate([ga[rest], gb[rest]], axis=1)
+        i, j = np.triu_indices(dirs.shape[1], 1)
+        best[rest] = np.maximum(best[rest], _plane_gaps(ga[rest], gb[rest], cross(dirs[:, i], dirs[:, j])))
+    return best
+
+
+def _plane_gaps(ga, gb, normals):
+    """(n,) the largest angle by which a plane through the apex, normal to one of ``normals`` (n, k, 3)
+    either way, keeps cone A on one side and cone B on the other (`_cone_separation`); 0 where none."""
     length = np.linalg.norm(normals, axis=2, keepdims=True)
     normals = normals / np.where(length > 1e-12, length, np.inf)
+    on_a, on_b = normals @ ga.swapaxes(1, 2), normals @ gb.swapaxes(1, 2)
     best = np.zeros(len(ga))
-    for sign in (1.0, -1.0):
-        u = sign * normals
-        above = (u @ ga.swapaxes(1, 2)).min(axis=2)
-        below = -(u @ gb.swapaxes(1, 2)).max(axis=2)
+    for above, below in ((on_a.min(axis=2), -on_b.max(axis=2)), (-on_a.max(axis=2), on_b.min(axis=2))):
         ok = (above > 0) & (below > 0)
         gap = np.where(ok, np.arcsin(np.clip(above, 0, 1)) + np.arcsin(np.clip(below, 0, 1)), 0.0)
         best = np.maximum(best, gap.max(axis=1))
@@ -812,7 +820,8 @@ def pair_state(mech, pan, poses, frame, pairs, clearance, eps, separation=True, 
         if len(rows):
             rot_a = poses[frame[rows], pairs[rows, 0], :3, :3]
             rot_b = poses[frame[rows], pairs[rows, 1], :3, :3]
-            angle[rows] = _cone_separation(rotate_rows(rot_a, cones[:, 0]), rotate_rows(rot_b, cones[:, 1]))
+            angle[rows] = _cone_separation(rotate_rows(rot_a, cones[:, 0]), rotate_rows(rot_b, cones[:, 1]),
+                                           None if need is None else np.asarray(need, float)[rows])
         apart = (angle > 0) & (angle >= (np.asarray(need, float) if need is not None else np.inf))
     else:
         apart = np.zeros(n, bool)
