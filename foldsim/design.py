@@ -73,6 +73,10 @@ def _pairs(text):
     return out
 
 
+SIZED_TEETH = (12, 60)
+"""Tooth counts `new --module` gives the couplings when --teeth does not (the sizing then scales them)."""
+
+
 def _teeth(text):
     lo, sep, hi = text.partition(":")
     if not sep or not lo.strip().isdigit() or not hi.strip().isdigit():
@@ -183,6 +187,10 @@ def build(args):
     teeth_range = _teeth(args.teeth) if args.teeth is not None else None
     if teeth_range is not None and args.gears == "none":
         raise ModelError("--teeth: there are no gears with --gears none")
+    if teeth_range is None and getattr(args, "module", None) is not None and args.gears != "none":
+        # Gears of a module have whole teeth: every pair first gets the integer pair
+        # nearest its ratio (the summary shows the closure gap that costs).
+        teeth_range = SIZED_TEETH
     poly = _shape(args)
     graph = face_graph(poly.faces)
     hinges, root, method = _net(args, graph)

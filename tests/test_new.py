@@ -218,6 +218,35 @@ def test_teeth_report_ratio_errors_and_the_gap_they_cause(capsys, tmp_path):
     assert json.loads(out)["closure"]["max_gap"] == pytest.approx(gap, rel=1e-9)
 
 
+def test_module_without_teeth_gives_whole_teeth_first(capsys, tmp_path):
+    # The truncated tetrahedron's couplings have irrational ratios (REFERENCES.md
+    # dihedrals, as above). Gears of a module have whole teeth, so `--module`
+    # without `--teeth` first gives every coupling the integer pair nearest its
+    # ratio in 12:60 (a brute-force search, as above), and every sized gear entry
+    # keeps that ratio exactly, so the file loads and `check` reads it.
+    path = tmp_path / "tt.mech.json"
+    code, out, err = run(capsys, "new", "truncated-tetrahedron", "--size", "40", "--thickness", "1", "--module",
+                         "0.5", "-o", str(path), "--json")
+    assert code in (0, 1), err  # 1: a pair that cannot clear is reported, not hidden
+    made = json.loads(out)
+    assert made["teeth_range"] == [12, 60]
+    doc = json.loads(path.read_text())
+    tri_hex, hex_hex = np.pi - np.arccos(-1 / 3), np.pi - np.arccos(1 / 3)
+    faces = doc["faces"]
+
+    def closing(h):
+        return tri_hex if sorted(len(faces[f]) for f in doc["hinges"][h]["faces"]) == [3, 6] else hex_hex
+
+    entries = {g["coupling"]: g for g in doc["build"]["gears"]}
+    for k, c in enumerate(doc["couplings"]):
+        i, j = c["hinges"]
+        assert tuple(c["teeth"]) == brute_teeth(closing(j) / closing(i), 12, 60)
+        zi, zj = entries[k]["teeth"]
+        assert zi * c["teeth"][1] == zj * c["teeth"][0]
+    code, _, err = run(capsys, "check", str(path), "--json")
+    assert code in (0, 1) and "teeth" not in err
+
+
 def test_a_mesh_file_makes_a_mechanism(capsys, tmp_path):
     trimesh = pytest.importorskip("trimesh")
     stl = tmp_path / "brick.stl"
