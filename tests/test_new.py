@@ -175,18 +175,27 @@ def brute_teeth(ratio, zmin, zmax):
     return min(pairs)[2:]
 
 
-def test_teeth_report_ratio_errors_and_the_gap_they_cause(capsys, tmp_path):
-    path, made = new_json(capsys, tmp_path, "truncated-tetrahedron", "--teeth", "12:40")
-    assert made["teeth_range"] == [12, 40]
-    doc = json.loads(path.read_text())
-    # REFERENCES.md: dihedrals 109.4712° (tri–hex) and 70.5288° (hex–hex); a hinge
-    # closes at 180° minus its dihedral
+def truncated_tetrahedron_closing(doc):
+    """Hinge -> closing angle of a truncated tetrahedron's file.
+
+    REFERENCES.md: dihedrals 109.4712° (tri–hex) and 70.5288° (hex–hex); a hinge
+    closes at 180° minus its dihedral.
+    """
     tri_hex, hex_hex = np.pi - np.arccos(-1 / 3), np.pi - np.arccos(1 / 3)
     faces = doc["faces"]
 
     def closing(h):
         return tri_hex if sorted(len(faces[f]) for f in doc["hinges"][h]["faces"]) == [3, 6] else hex_hex
 
+    return closing
+
+
+def test_teeth_report_ratio_errors_and_the_gap_they_cause(capsys, tmp_path):
+    path, made = new_json(capsys, tmp_path, "truncated-tetrahedron", "--teeth", "12:40")
+    assert made["teeth_range"] == [12, 40]
+    doc = json.loads(path.read_text())
+    faces = doc["faces"]
+    closing = truncated_tetrahedron_closing(doc)
     angles = np.full(len(doc["hinges"]), np.nan)
     angles[doc["drive"]] = closing(doc["drive"])
     errors = []
@@ -231,12 +240,7 @@ def test_module_without_teeth_gives_whole_teeth_first(capsys, tmp_path):
     made = json.loads(out)
     assert made["teeth_range"] == [12, 60]
     doc = json.loads(path.read_text())
-    tri_hex, hex_hex = np.pi - np.arccos(-1 / 3), np.pi - np.arccos(1 / 3)
-    faces = doc["faces"]
-
-    def closing(h):
-        return tri_hex if sorted(len(faces[f]) for f in doc["hinges"][h]["faces"]) == [3, 6] else hex_hex
-
+    closing = truncated_tetrahedron_closing(doc)
     entries = {g["coupling"]: g for g in doc["build"]["gears"]}
     for k, c in enumerate(doc["couplings"]):
         i, j = c["hinges"]
