@@ -60,8 +60,8 @@ class Panels:
         rules out pairs and triangles far from another item's box before testing
         triangle pairs (`narrowphase._many_triangles`).
     pivot_points : (P, 3) float, optional
-        For items (``owner`` set): the flat-frame point each pivoting pair turns
-        about (a vertex both carrying faces share, on every hinge between them).
+        The flat-frame point each pivoting pair turns about (a vertex both faces
+        share, on every hinge between them; for items, both carrying faces).
     pivot_reach : (P,) float, optional
         With ``pivot_points``: the nearer of the two items' farthest corners from
         that point. Under a turn about it at angular speed w, every point of either
@@ -258,7 +258,7 @@ def panels(mech, tol=DEFAULT):
             dirs.append([poly[(k + 1) % len(poly)] - poly[k], poly[k - 1] - poly[k]])
         row = np.zeros(mech.n_hinges, bool)
         row[path] = True
-        pivots.append(((a, b), dirs, row))
+        pivots.append(((a, b), dirs, row, mech.flat_faces[a][la]))
     pivots.sort(key=lambda p: p[0][0] * n + p[0][1])
     centre = np.add.reduceat(flat_pts, _face_starts(mech)) / np.bincount(pt_face)[:, None]
     radius = np.maximum.reduceat(np.linalg.norm(flat_pts - centre[pt_face], axis=1), _face_starts(mech))
@@ -268,7 +268,7 @@ def panels(mech, tol=DEFAULT):
         pivot_keys=_keys([p[0] for p in pivots], n),
         pivot_dirs=np.array([p[1] for p in pivots], float).reshape(-1, 2, 2, 3),
         pivot_path=np.array([p[2] for p in pivots], bool).reshape(-1, mech.n_hinges),
-        centre=centre, radius=radius)
+        pivot_points=np.array([p[3] for p in pivots], float).reshape(-1, 3), centre=centre, radius=radius)
 
 
 def oriented_boxes(tri_points, start):

@@ -136,27 +136,25 @@ def _pivot_items(mech, owner, skip_keys, pivots):
     empty = (np.zeros(0, np.int64), np.zeros((0, mech.n_hinges), bool), np.zeros((0, 3)))
     if pivots is None or not len(pivots.pivot_keys):
         return empty
-    n_faces = mech.n_faces
-    items = {}
-    for i, f in enumerate(owner.tolist()):
-        items.setdefault(f, []).append(i)
-    rows = []
-    for key, path in zip(pivots.pivot_keys.tolist(), pivots.pivot_path):
-        a, b = divmod(key, n_faces)
-        pa, pb = mech.flat_faces[a], mech.flat_faces[b]
-        d = np.linalg.norm(pa[:, None] - pb[None], axis=2)
-        point = pa[np.unravel_index(np.argmin(d), d.shape)[0]]
-        for i in items.get(a, []):
-            for j in items.get(b, []):
-                rows.append((min(i, j) * len(owner) + max(i, j), path, point))
-    if not rows:
+    n, n_faces = len(owner), mech.n_faces
+    # Every item of one face against every item of the other, for all pivoting face pairs at once.
+    fa, fb = pivots.pivot_keys // n_faces, pivots.pivot_keys % n_faces
+    order = np.argsort(owner, kind="stable")
+    first = np.searchsorted(owner[order], np.arange(n_faces))
+    per_face = np.bincount(owner, minlength=n_faces)
+    na, nb = per_face[fa], per_face[fb]
+    per = na * nb
+    row = np.repeat(np.arange(len(fa)), per)
+    local = np.arange(per.sum()) - np.repeat(np.cumsum(per) - per, per)
+    i = order[first[fa[row]] + local // nb[row]]
+    j = order[first[fb[row]] + local % nb[row]]
+    keys = np.minimum(i, j) * n + np.maximum(i, j)
+    keep = ~np.isin(keys, skip_keys)
+    keys, row = keys[keep], row[keep]
+    sort = np.argsort(keys, kind="stable")
+    if not len(sort):
         return empty
-    keys = np.array([r[0] for r in rows], np.int64)
-    order = np.argsort(keys)
-    keep = ~np.isin(keys[order], skip_keys)
-    order = order[keep]
-    return (keys[order], np.array([rows[k][1] for k in order], bool).reshape(-1, mech.n_hinges),
-            np.array([rows[k][2] for k in order], float).reshape(-1, 3))
+    return keys[sort], pivots.pivot_path[row[sort]], pivots.pivot_points[row[sort]]
 
 
 CONE_GENERATORS = 8
