@@ -56,7 +56,7 @@ def convex_items(tri_points, start, count, rel=1e-9):
     """
     n = len(start)
     start, count = np.asarray(start, np.int64), np.asarray(count, np.int64)
-    found = {}
+    found = []
     # Items of one triangle count at a time, all at once.
     for c in np.unique(count[count >= 4]).tolist():
         items = np.flatnonzero(count == c)
@@ -77,18 +77,20 @@ def convex_items(tri_points, start, count, rel=1e-9):
                            np.round(unit_normal[np.arange(len(items)), first], 9)[:, None])
         planes, n_planes = _distinct_rows(rounded)
         ok = keep.any(axis=1) & convex & (n_corners <= HULL_POINTS) & (n_planes <= HULL_PLANES)
-        for k in np.flatnonzero(ok).tolist():
-            p = planes[k, :n_planes[k]]
-            found[int(items[k])] = (corners[k, :n_corners[k]], p / np.linalg.norm(p, axis=1, keepdims=True))
-    n_points = max([len(c) for c, _ in found.values()], default=1)
-    n_planes = max([len(p) for _, p in found.values()], default=1)
+        if ok.any():
+            planes = planes[ok] / np.linalg.norm(planes[ok], axis=2, keepdims=True)
+            found.append((items[ok], corners[ok], n_corners[ok], planes, n_planes[ok]))
+    n_points = max([int(g[2].max()) for g in found], default=1)
+    n_planes = max([int(g[4].max()) for g in found], default=1)
     points = np.full((n, n_points, 3), np.nan)
     normals = np.full((n, n_planes, 3), np.nan)
     ok = np.zeros(n, bool)
-    for i, (corners, planes) in found.items():
-        points[i] = corners[np.minimum(np.arange(n_points), len(corners) - 1)]
-        normals[i] = planes[np.minimum(np.arange(n_planes), len(planes) - 1)]
-        ok[i] = True
+    for items, corners, n_c, planes, n_p in found:
+        # Padded with each item's last corner and plane.
+        rows = np.arange(len(items))[:, None]
+        points[items] = corners[rows, np.minimum(np.arange(n_points)[None], n_c[:, None] - 1)]
+        normals[items] = planes[rows, np.minimum(np.arange(n_planes)[None], n_p[:, None] - 1)]
+        ok[items] = True
     return points, normals, ok
 
 
