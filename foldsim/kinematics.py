@@ -255,21 +255,23 @@ def speed_profile(mech, rates):
     mids = mech.axes.mean(axis=1)
     depth = len(mech.levels)
     out = np.zeros((mech.n_faces, depth + 1))
-    # lever[f]: path length from each chain hinge's midpoint to f's entry hinge
-    # midpoint, in chain order; walked root-first so a parent is done before a child.
-    lever = {mech.root: np.zeros(0)}
-    chain = {mech.root: np.zeros(0, np.int64)}
-    for level in mech.levels:
-        for h in level:
-            p, c = mech.parent[h], mech.child[h]
-            entry = mech.face_hinge[p]
-            step = np.linalg.norm(mids[h] - mids[entry]) if entry >= 0 else 0.0
-            lever[c] = np.append(lever[p] + step, 0.0)
-            chain[c] = np.append(chain[p], h)
-            far = np.linalg.norm(mech.flat_faces[c] - mids[h], axis=1).max()
-            part = np.abs(rates[chain[c]]) * (lever[c] + far)
-            tail = np.cumsum(part[::-1])[::-1]
-            out[c, :len(tail)] = tail
+    # lever[f, d]: path length from the midpoint of the hinge at depth d on f's chain
+    # to f's entry hinge midpoint; rate[f, d] that hinge's |rate| (0 past the chain's
+    # end). Walked a level at a time, root first, so parents are done before children.
+    lever = np.zeros((mech.n_faces, depth))
+    rate = np.zeros((mech.n_faces, depth))
+    far = np.zeros(mech.n_faces)
+    for d, level in enumerate(mech.levels):
+        level = np.asarray(level, np.int64)
+        p, c = mech.parent[level], mech.child[level]
+        entry = mech.face_hinge[p]
+        step = np.where(entry >= 0, np.linalg.norm(mids[level] - mids[np.maximum(entry, 0)], axis=1), 0.0)
+        lever[c, :d] = lever[p, :d] + step[:, None]
+        rate[c, :d] = rate[p, :d]
+        rate[c, d] = np.abs(np.asarray(rates, float)[level])
+        far[c] = [np.linalg.norm(mech.flat_faces[f] - mids[h], axis=1).max() for f, h in zip(c.tolist(), level)]
+    part = rate * (lever + far[:, None])
+    out[:, :depth] = np.cumsum(part[:, ::-1], axis=1)[:, ::-1]
     return out
 
 
