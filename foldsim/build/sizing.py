@@ -52,20 +52,22 @@ def _with_build(mech, build):
 def _clearance_of(mech, build, coupling, tol, cache):
     """The ``gear_clearance`` row of one coupling, or None when the build does not fit at all.
 
-    ``cache`` (dict) keeps what every trial shares: the schedule and the prisms
-    (the thickness does not change between trials).
+    ``cache`` (dict) keeps what every trial shares: the schedule, the prisms (the
+    thickness does not change between trials) and the thin panels.
     """
+    from ..analysis.panels import panels
+    from ..gearing import fold_schedule
     from .gears import gear_pairs
+    from .prisms import panel_solids
 
     trial = _with_build(mech, build)
-    from ..gearing import fold_schedule
-    from .prisms import panel_solids
 
     try:
         spec = build_spec(trial, tol=tol, validate=False)
         if "prisms" not in cache:
             cache["prisms"] = panel_solids(trial, spec, tol=tol)
             cache["schedule"] = fold_schedule(trial, tol)
+            cache["thin"] = panels(trial, tol)
         pairs = []
         for k, doc in enumerate(spec.gears):
             key = (doc.coupling, json.dumps(build["gears"][k], sort_keys=True))
@@ -79,7 +81,7 @@ def _clearance_of(mech, build, coupling, tol, cache):
     # plus the resolution.
     enough = spec.clearance + SIZING_RESOLUTION * trial.size
     rows = gear_clearance(trial, spec, cache["schedule"], tol=tol, pairs=pairs, only=[coupling],
-                          resolution=SIZING_RESOLUTION, enough=enough, solids=cache["prisms"])
+                          resolution=SIZING_RESOLUTION, enough=enough, solids=cache["prisms"], thin=cache["thin"])
     return next(r for r in rows if r["coupling"] == coupling)
 
 

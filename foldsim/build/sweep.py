@@ -174,7 +174,7 @@ def _winding_batch(points, tris):
 
 
 def near_bodies(mech, spec, schedule=None, t_from=0.0, t_to=1.0, pairs=None, only=None, enough=np.inf,
-                tol=DEFAULT, solids=None):
+                tol=DEFAULT, solids=None, thin=None):
     """The gear screen: pairs of solids that come within ``enough`` of each other, and when.
 
     The collision sweep of `foldsim.analysis.sweep` on the prisms and the coarse
@@ -182,6 +182,9 @@ def near_bodies(mech, spec, schedule=None, t_from=0.0, t_to=1.0, pairs=None, onl
     ``enough`` as its clearance, over every pair `gear_clearance` tests; plus any
     pair within it, or one inside the other, at ``t_from``. With that sweep's
     guarantee every pair of the fine bodies that comes within ``enough`` is here.
+
+    ``solids`` (the prisms) and ``thin`` (`analysis.panels.panels`) save
+    rebuilding them when the caller has them.
 
     Returns
     -------
@@ -198,13 +201,13 @@ def near_bodies(mech, spec, schedule=None, t_from=0.0, t_to=1.0, pairs=None, onl
     if lo_t == hi_t or not active.any():
         return {}
     allowed = allowed_pairs(screen, {p.coupling: p.carrier for p in pairs})
-    pan = body_panels(mech, screen, allowed, passive=~active, pivots=panels(mech, tol))
+    pan = body_panels(mech, screen, allowed, passive=~active, pivots=panels(mech, tol) if thin is None else thin)
     return _near_pairs(mech, schedule, pan, body_speed_profile(mech, schedule.rates, screen), lo_t, hi_t, enough,
                        tol)
 
 
 def gear_clearance(mech, spec, schedule=None, t_from=0.0, t_to=1.0, pairs=None, only=None,
-                   resolution=RESOLUTION, enough=np.inf, tol=DEFAULT, solids=None, near=None):
+                   resolution=RESOLUTION, enough=np.inf, tol=DEFAULT, solids=None, near=None, thin=None):
     """Least distance of every coupling's gear bodies to what they must not touch (the ``gear_clearance`` key).
 
     With a finite ``enough`` the sweep runs in two stages. The first is the
@@ -238,6 +241,8 @@ def gear_clearance(mech, spec, schedule=None, t_from=0.0, t_to=1.0, pairs=None, 
     near : dict, optional
         The screen's answer (`near_bodies` with the same ``enough``, ``only`` and
         range), when the caller already has it.
+    thin : Panels, optional
+        The thin panels (`analysis.panels.panels`) for the screen, likewise.
 
     Returns
     -------
@@ -266,7 +271,7 @@ def gear_clearance(mech, spec, schedule=None, t_from=0.0, t_to=1.0, pairs=None, 
             rows[c]["guaranteed_min"] = float(enough)
     if np.isfinite(enough):
         if near is None:
-            near = near_bodies(mech, spec, schedule, lo_t, hi_t, pairs, only, enough, tol, prisms)
+            near = near_bodies(mech, spec, schedule, lo_t, hi_t, pairs, only, enough, tol, prisms, thin)
         # The coarse bodies hold the fine ones: their speed bounds bound the fine ones' too.
         profile = body_speed_profile(mech, schedule.rates,
                                      prisms + gear_solids(mech, spec, pairs, tip=True, tol=tol, coarse=True))
