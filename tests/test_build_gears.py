@@ -543,6 +543,35 @@ def test_sizing_grows_past_a_pair_that_shares_its_corner():
             assert _dense_fcl(fcl, mech, solids, (i, j), t).min() >= 0.5 - 5e-3 * mech.size
 
 
+def test_sizing_proves_a_pair_clear_by_little_more_than_the_resolution():
+    # The truncated tetrahedron (40 mm edges, 1 mm panels, module 0.5): the gears of
+    # pairs 0 and 1 pass within about 0.7 mm of a panel near the end of the motion,
+    # a few times the check's distance resolution (1/1000 of the model's size). A
+    # sizing sweep coarser than that resolution could not prove them clear and
+    # failed them; they must pass, and python-fcl at dense drive values must find
+    # their bodies clear of that resolution on the sized model.
+    fcl = pytest.importorskip("fcl")
+    from dataclasses import replace
+
+    from foldsim.build.gears import build_solids
+    from foldsim.build.sizing import size_gears
+    from foldsim.build.sweep import RESOLUTION, body_pairs
+    from foldsim.design import build, shape_args
+
+    mech = build(shape_args("truncated-tetrahedron", size=40.0, teeth="12:60"))[0]
+    sized, rows = size_gears(mech, 1.0, 0.5)
+    bevel = [r for r in rows if r["kind"] == "bevel"]
+    assert bevel and all(r["passes"] for r in bevel)
+    mech = replace(mech, extras={**mech.extras, "build": sized})
+    spec = build_spec(mech)
+    solids = build_solids(mech, spec, tip=True)
+    carrier = {p.coupling: p.carrier for p in gear_pairs(mech, spec)}
+    t = np.linspace(0.9, 1.0, 41)  # where the nearest approach is
+    near = min(_dense_fcl(fcl, mech, solids, (i, j), t).min() for i, j in body_pairs(solids, carrier)
+               if {solids[i].coupling, solids[j].coupling} & {0, 1})
+    assert RESOLUTION * mech.size < near < 1.0
+
+
 def test_sizing_leaves_every_pair_of_the_icosahedron_room_and_check_agrees():
     # The icosahedron's net puts the gears of two or three pairs on some hinges; a
     # greedy pass used to grow the first so far that a later one had no room. Every

@@ -31,8 +31,6 @@ from ..tolerances import DEFAULT
 from .spec import build_spec
 from .sweep import RESOLUTION, gear_clearance
 
-SIZING_RESOLUTION = 5e-3
-"""Distance resolution of the sizing sweeps, relative to the model's size (coarser than the check's)."""
 MIN_TEETH = 12
 """Fewest teeth on a sized gear (common practice for 20-degree gears with some profile shift)."""
 
@@ -77,11 +75,15 @@ def _clearance_of(mech, build, coupling, tol, cache):
             pairs.append(cache[key])
     except ModelError as exc:
         return {"min_clearance": -1.0, "with": str(exc).split(": ", 1)[-1], "at_t": None}
-    # Pass or fail is all sizing asks: nothing needs more precision than the clearance
-    # plus the resolution.
-    enough = spec.clearance + SIZING_RESOLUTION * trial.size
+    # Pass or fail is all sizing asks (`size_gears`'s ``passes``): a stretch is
+    # refined until its bound clears the clearance and the check's resolution by
+    # one resolution more, or until a distance the bodies really reach is within
+    # one resolution of it. With a coarser resolution than that, a pair clear by
+    # less than the resolution could never be proved clear.
+    floor = RESOLUTION * trial.size
+    enough = max(spec.clearance, floor) + floor
     rows = gear_clearance(trial, spec, cache["schedule"], tol=tol, pairs=pairs, only=[coupling],
-                          resolution=SIZING_RESOLUTION, enough=enough, solids=cache["prisms"], thin=cache["thin"])
+                          resolution=RESOLUTION, enough=enough, solids=cache["prisms"], thin=cache["thin"])
     return next(r for r in rows if r["coupling"] == coupling)
 
 
