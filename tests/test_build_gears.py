@@ -543,6 +543,37 @@ def test_sizing_grows_past_a_pair_that_shares_its_corner():
             assert _dense_fcl(fcl, mech, solids, (i, j), t).min() >= 0.5 - 5e-3 * mech.size
 
 
+def test_a_screen_of_few_bodies_finds_what_the_screen_of_all_finds():
+    # The screen of one coupling's bodies first drops the solids that cannot come
+    # near them (conservative advancement on spheres). Reference: the same screen
+    # over every body (the collision sweep's guarantee), restricted to that
+    # coupling's pairs: the same pairs and stretches, while most solids are dropped.
+    from dataclasses import replace
+
+    from foldsim.build.bodies import body_speed_profile
+    from foldsim.build.gears import gear_solids
+    from foldsim.build.prisms import panel_solids
+    from foldsim.build.sweep import _may_come_near, near_bodies
+    from foldsim.design import build, shape_args
+    from foldsim.gearing import fold_schedule
+
+    mech = build(shape_args("geodesic:1", size=100.0))[0]
+    gears = [{"coupling": c} for c in range(len(mech.couplings))]
+    mech = replace(mech, extras={**mech.extras, "build": {"thickness": 0.5, "gears": gears}})
+    spec = build_spec(mech)
+    enough = 0.05 * mech.size
+    full = near_bodies(mech, spec, enough=enough)
+    screen = panel_solids(mech, spec) + gear_solids(mech, spec, tip=True, coarse=True)
+    profile = body_speed_profile(mech, fold_schedule(mech).rates, screen)
+    for c in (0, 5, 40, 77):
+        part = near_bodies(mech, spec, only=[c], enough=enough)
+        want = {k: v for k, v in full.items() if any(screen[i].kind != "panel" and screen[i].coupling == c for i in k)}
+        assert part == want and len(part) >= 2
+        active = np.array([s.kind != "panel" and s.coupling == c for s in screen])
+        kept = _may_come_near(mech, fold_schedule(mech), screen, profile, active, 0.0, 1.0, enough)
+        assert kept.sum() < len(screen) / 4 and all(kept[i] for k in want for i in k)
+
+
 def test_sizing_proves_a_pair_clear_by_little_more_than_the_resolution():
     # The truncated tetrahedron (40 mm edges, 1 mm panels, module 0.5): the gears of
     # pairs 0 and 1 pass within about 0.7 mm of a panel near the end of the motion,

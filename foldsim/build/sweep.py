@@ -200,10 +200,48 @@ def near_bodies(mech, spec, schedule=None, t_from=0.0, t_to=1.0, pairs=None, onl
     active = np.array([s.kind != "panel" and (only is None or s.coupling in only) for s in screen], bool)
     if lo_t == hi_t or not active.any():
         return {}
+    profile = body_speed_profile(mech, schedule.rates, screen)
+    keep = np.arange(len(screen))
+    if active.sum() <= FEW_BODIES and np.isfinite(enough):
+        # A few bodies (a sizing trial): only the solids that may come near them.
+        keep = np.flatnonzero(_may_come_near(mech, schedule, screen, profile, active, lo_t, hi_t, enough))
+        screen, active, profile = [screen[i] for i in keep], active[keep], profile[keep]
     allowed = allowed_pairs(screen, {p.coupling: p.carrier for p in pairs})
     pan = body_panels(mech, screen, allowed, passive=~active, pivots=panels(mech, tol) if thin is None else thin)
-    return _near_pairs(mech, schedule, pan, body_speed_profile(mech, schedule.rates, screen), lo_t, hi_t, enough,
-                       tol)
+    near = _near_pairs(mech, schedule, pan, profile, lo_t, hi_t, enough, tol)
+    return {(int(keep[a]), int(keep[b])): span for (a, b), span in near.items()}
+
+
+FEW_BODIES = 64
+"""With at most this many bodies tested, the screen first drops the solids that cannot come near them (`_may_come_near`)."""
+
+REACH_STEPS = 16
+"""Steps of t over which `_may_come_near` bounds the solids' distances."""
+
+
+def _may_come_near(mech, schedule, solids, profile, active, lo_t, hi_t, enough):
+    """(S,) bool: the active solids and every solid that may come within ``enough`` of one of them.
+
+    Conservative advancement on bounding spheres: on each of `REACH_STEPS` steps of
+    t the gap between two solids' spheres changes at most by their speed bound in
+    their panels' common ancestor's frame (``profile``), so it stays above
+    ``(g0 + g1 - L dt) / 2``; a solid whose bound stays above ``enough`` from every
+    active one over the whole range never comes that near.
+    """
+    count = np.array([len(s.triangles) for s in solids], np.int64)
+    centre, radius = item_spheres(np.concatenate([s.triangles for s in solids]), np.cumsum(count) - count, count)
+    faces = np.array([s.face for s in solids], np.int64)
+    t = np.linspace(lo_t, hi_t, REACH_STEPS + 1)
+    poses = poses_at(mech, schedule, t)[:, faces]
+    world = np.einsum("tsij,sj->tsi", poses[..., :3, :3], centre) + poses[..., :3, 3]
+    out = active.copy()
+    for a in np.flatnonzero(active).tolist():
+        gap = np.maximum(np.linalg.norm(world - world[:, a:a + 1], axis=2) - radius[a] - radius, 0.0)
+        depth = common_depth(mech, np.column_stack([np.full(len(solids), faces[a]), faces]))
+        rate = profile[a, depth] + profile[np.arange(len(solids)), depth]
+        low = np.maximum(0.5 * (gap[:-1] + gap[1:] - rate * np.diff(t)[:, None]), 0.0).min(axis=0)
+        out |= low <= enough
+    return out
 
 
 def gear_clearance(mech, spec, schedule=None, t_from=0.0, t_to=1.0, pairs=None, only=None,
