@@ -221,3 +221,37 @@ def test_gear_body_outlines_are_its_ends_and_sector_sides():
                          np.array([0.0, 1.0, 0.0]), (0.0, 2.0), (5.0, 5.0), (0.0, math.pi / 2), 3)
     assert len(feature_edges(tri, GEAR_FEATURE_DEG)) == 15
     assert len(feature_edges(tri, FEATURE_DEG)) == 18
+
+
+def test_thick_panels_draw_their_outlines_in_the_fills(qtbot):
+    # A build's prisms draw their feature edges as bands of their fills (each
+    # corner's barycentric coordinate over its screen gradient is the distance in
+    # pixels to the opposite edge; common practice in wireframe shaders). Seen
+    # from the top while flat, a thin prism's walls are edge-on and its cap's
+    # border lies on the panel's outline (hand check: 0.02 thick, under a pixel
+    # at this scale): the middle of every free edge shows the outline colour and
+    # the middle of the panel does not.
+    from dataclasses import replace
+
+    from foldsim.build.prisms import panel_solids
+    from foldsim.build.spec import build_spec
+
+    mech = from_document(strip150_document())
+    built = replace(mech, extras={**mech.extras, "build": {"thickness": 0.02}})
+    v = shown_view(qtbot, built)
+    v.set_solids(panel_solids(built, build_spec(built)))
+    v.set_t(0.0)
+    v.set_view("top")
+    v.fit()
+    img = v.render_image(800, 600)
+    for f in (0, 2):
+        face = mech.flat_faces[f]
+        hinge = mech.axes[mech.face_hinge[f]]
+        ends = {tuple(np.round(p, 9)) for p in hinge}
+        for a, b in zip(face, np.roll(face, -1, axis=0)):
+            if {tuple(np.round(a, 9)), tuple(np.round(b, 9))} <= ends:
+                continue
+            mid = transform_points(v.poses[f], (a + b) / 2)
+            assert _nearest(img, 2 * v.model_to_pixels(mid[None])[0], palette.OUTLINE, reach=4) <= 12, (f, a, b)
+        centre = transform_points(v.poses[f], face.mean(axis=0))
+        assert _nearest(img, 2 * v.model_to_pixels(centre[None])[0], palette.OUTLINE, reach=4) > 40

@@ -136,66 +136,79 @@ void main() {
 }
 """
 
-# A build's solids (`solid_layer.SolidLayer`) draw their outlines as GL lines and
-# have no edge bands.
+# A build's solids (`solid_layer.SolidLayer`) draw their outlines (feature edges)
+# as bands of their fills too, from each corner's barycentric coordinate, and
+# through their pixel derivatives, rather than from the corners' screen positions:
+# a solid has many small triangles, so its vertices cost more than its pixels.
+# Barycentric coordinate i falls from 1 at corner i to 0 on the opposite edge, and
+# its value over the length of its screen gradient is a fragment's distance in
+# pixels to that edge (common practice in wireframe shaders). An edge that is no
+# outline has _FAR added to its coordinate, so it is never within a band's reach.
+# The solids are closed and culled, so only their front sides are ever seen, and
+# their triangles are flat: each vertex is lit with its triangle's normal, and the
+# fragments get one colour.
 _SOLID_VERTEX_SHADER = _BLOCK_UNIFORMS + """
 attribute vec4 a_position;
 attribute vec3 a_normal;
 attribute float a_face;
 attribute vec4 a_color;
-varying vec3 v_normal;
-varying vec4 v_front;
-varying vec4 v_back;
+attribute vec3 a_edge;
+varying vec4 v_color;
+varying vec3 v_edge;
 void main() {
     int slot = int(a_face - u_base + 0.5);
     mat4 pose = u_pose[slot];
-    v_normal = (u_modelview * (pose * vec4(a_normal, 0.0))).xyz;
-    if (u_lines > 0.5 || a_color.a > 0.0) {
-        // Lines, and solids with a colour of their own (gear bodies).
-        v_front = a_color;
-        v_back = a_color;
-    } else {
-        v_front = u_front[slot];
-        v_back = u_back[slot];
+    vec4 eye = u_modelview * (pose * a_position);
+    gl_Position = u_projection * eye;
+    v_edge = a_edge;
+    if (u_lines > 0.5) {
+        v_color = a_color;
+        return;
     }
-    gl_Position = u_projection * (u_modelview * (pose * a_position));
+    vec3 n = normalize((u_modelview * (pose * vec4(a_normal, 0.0))).xyz);
+    // Solids with a colour of their own (gear bodies) keep it.
+    vec4 base = a_color.a > 0.0 ? a_color : u_front[slot];
+    vec3 key = normalize(vec3(-0.45, 0.55, 0.70));
+    float light = 0.60 + 0.32 * max(dot(n, key), 0.0) + 0.14 * abs(n.z);
+    v_color = vec4(min(base.rgb * light, 1.0), base.a);
 }
 """
 
-# The same lighting per fragment, for solids: they have many vertices for the
-# area they cover, so lighting their vertices would cost more than their pixels.
 _SOLID_FRAGMENT_SHADER = """
 #ifdef GL_ES
 precision mediump float;
 #endif
 uniform float u_lines;
-varying vec3 v_normal;
-varying vec4 v_front;
-varying vec4 v_back;
+uniform vec4 u_outline;
+uniform float u_outline_half;
+varying vec4 v_color;
+varying vec3 v_edge;
 void main() {
     if (u_lines > 0.5) {
-        gl_FragColor = v_front;
+        gl_FragColor = v_color;
         return;
     }
-    vec3 n = normalize(v_normal);
-    vec4 base = v_front;
-    if (!gl_FrontFacing) {
-        n = -n;
-        base = v_back;
-    }
-    vec3 key = normalize(vec3(-0.45, 0.55, 0.70));
-    float light = 0.60 + 0.32 * max(dot(n, key), 0.0) + 0.14 * abs(n.z);
-    gl_FragColor = vec4(min(base.rgb * light, 1.0), base.a);
+    vec3 dx = dFdx(v_edge);
+    vec3 dy = dFdy(v_edge);
+    vec3 away = v_edge / max(sqrt(dx * dx + dy * dy), vec3(1.0e-9));
+    vec3 band = clamp(vec3(u_outline_half + 0.5) - away, 0.0, 1.0);
+    gl_FragColor = vec4(mix(v_color.rgb, u_outline.rgb, max(band.x, max(band.y, band.z))), v_color.a);
 }
 """
+
+_FAR = 100.0
+"""Added to a solid corner's barycentric coordinate of an edge that is no outline."""
 
 _SHADERS = {"panels": (_VERTEX_SHADER, _FRAGMENT_SHADER),
             "solids": (_SOLID_VERTEX_SHADER, _SOLID_FRAGMENT_SHADER)}
 
-_EDGE_ATTRIBUTES = ("a_corner", "a_kind", "a_next", "a_prev", "a_free")
-
 _FLOATS = 23  # position 3, normal 3, face 1, colour 4, corner 3, edge kinds 3, next 3, previous 3
-_PLAIN_FLOATS = 11  # the first four, for a layer without edge bands
+
+# Where each attribute lies in a vertex (floats: size, offset) for each program.
+_LAYOUTS = {"panels": {"a_position": (3, 0), "a_normal": (3, 3), "a_face": (1, 6), "a_color": (4, 7),
+                       "a_corner": (3, 11), "a_kind": (3, 14), "a_next": (3, 17), "a_prev": (3, 20)},
+            "solids": {"a_position": (3, 0), "a_normal": (3, 3), "a_face": (1, 6), "a_color": (4, 7),
+                       "a_edge": (3, 11)}}
 
 OUTLINE_WIDTH = 1.6
 """Width in pixels of a panel's outline (on screen; offscreen frames scale it)."""
@@ -241,8 +254,7 @@ class _PanelProgram:
         GL.glBindAttribLocation(self.program, 0, "a_position")
         GL.glLinkProgram(self.program)
         self.attributes = {name: GL.glGetAttribLocation(self.program, name)
-                           for name in ("a_position", "a_normal", "a_face", "a_color", "a_corner", "a_kind",
-                                      "a_next", "a_prev", "a_free")}
+                           for name in (*_LAYOUTS[kind], "a_free")}
         self.uniforms = {name: GL.glGetUniformLocation(self.program, name)
                          for name in ("u_projection", "u_modelview", "u_pose", "u_front", "u_back",
                                       "u_base", "u_lines", "u_outline", "u_hinge", "u_outline_half",
@@ -324,8 +336,8 @@ class PanelLayer(gl.GLGraphicsItem.GLGraphicsItem):
     closed = False
     """Whether every mesh is closed and faces outward, so back faces can be culled."""
 
-    edges = True
-    """Whether the fills draw edge bands (flat panels do; solids draw GL lines)."""
+    outline_side = 0.5
+    """Share of `OUTLINE_WIDTH` an outline's band takes on each side of its edge."""
 
     shaders = "panels"
     """Which shader program draws the layer (`_PanelProgram`)."""
@@ -371,12 +383,12 @@ class PanelLayer(gl.GLGraphicsItem.GLGraphicsItem):
     def _pack(self, fills, outline_rows, hinge_rows):
         """Put each face's fill, outline and hinge rows into the one vertex buffer.
 
-        Rows without the edge columns (lines, solids) get zeros there: no edges.
+        Rows without the edge columns (lines) get zeros there: no edges.
         """
         n_faces = len(fills)
         blocks = fills + outline_rows + hinge_rows
-        # Without edge bands a vertex is only its first 11 floats (a shorter stride to fetch).
-        data = np.zeros((sum(len(b) for b in blocks), _FLOATS if self.edges else _PLAIN_FLOATS), np.float32)
+        width = sum(size for size, _ in _LAYOUTS[self.shaders].values())
+        data = np.zeros((sum(len(b) for b in blocks), width), np.float32)
         at = 0
         for b in blocks:
             if len(b):
@@ -468,28 +480,23 @@ class PanelLayer(gl.GLGraphicsItem.GLGraphicsItem):
         u, a = program.uniforms, program.attributes
         GL.glUniformMatrix4fv(u["u_projection"], 1, False, np.array(self.projectionMatrix().data(), np.float32))
         GL.glUniformMatrix4fv(u["u_modelview"], 1, False, np.array(self.modelViewMatrix().data(), np.float32))
-        offsets = {"a_position": (3, 0), "a_normal": (3, 12), "a_face": (1, 24), "a_color": (4, 28),
-                   "a_corner": (3, 44), "a_kind": (3, 56), "a_next": (3, 68), "a_prev": (3, 80)}
         enabled = []
-        if a["a_free"] >= 0 and self.edges:
+        if a["a_free"] >= 0:
             GL.glBindBuffer(GL.GL_ARRAY_BUFFER, self._free_buffer)
             GL.glEnableVertexAttribArray(a["a_free"])
             GL.glVertexAttribPointer(a["a_free"], 3, GL.GL_FLOAT, False, 12, ctypes.c_void_p(0))
             enabled.append(a["a_free"])
         GL.glBindBuffer(GL.GL_ARRAY_BUFFER, self._buffer)
-        for name, (size, offset) in offsets.items():
-            if a[name] >= 0 and not self.edges and name in _EDGE_ATTRIBUTES:
-                # No edge bands: the shader reads zeros, and the vertices are not fetched.
-                GL.glVertexAttrib3f(a[name], 0.0, 0.0, 0.0)
-            elif a[name] >= 0:
+        for name, (size, offset) in _LAYOUTS[self.shaders].items():
+            if a[name] >= 0:
                 GL.glEnableVertexAttribArray(a[name])
                 GL.glVertexAttribPointer(a[name], size, GL.GL_FLOAT, False, 4 * self._data.shape[1],
-                                         ctypes.c_void_p(offset))
+                                         ctypes.c_void_p(4 * offset))
                 enabled.append(a[name])
         scale = view.line_scale()
         GL.glUniform4f(u["u_outline"], *_rgba(palette.OUTLINE))
         GL.glUniform4f(u["u_hinge"], *_rgba(palette.HINGE))
-        GL.glUniform1f(u["u_outline_half"], 0.5 * OUTLINE_WIDTH * scale)
+        GL.glUniform1f(u["u_outline_half"], self.outline_side * OUTLINE_WIDTH * scale)
         GL.glUniform1f(u["u_hinge_half"], 0.5 * HINGE_WIDTH * scale)
         GL.glUniform2f(u["u_viewport"], *(float(v) for v in GL.glGetIntegerv(GL.GL_VIEWPORT)[2:]))
         # Push the fill back a little so lines drawn on it (the root's mark, a
