@@ -255,3 +255,40 @@ def test_thick_panels_draw_their_outlines_in_the_fills(qtbot):
             assert _nearest(img, 2 * v.model_to_pixels(mid[None])[0], palette.OUTLINE, reach=4) <= 12, (f, a, b)
         centre = transform_points(v.poses[f], face.mean(axis=0))
         assert _nearest(img, 2 * v.model_to_pixels(centre[None])[0], palette.OUTLINE, reach=4) > 40
+
+
+def test_many_gear_bodies_are_drawn_without_multisampling(qtbot, monkeypatch):
+    # Multisampling changes only the pixels that a triangle's edge crosses (common
+    # practice), so drawing the gear bodies of a large build without it changes
+    # the picture only at the bodies' borders: every pixel that differs from the
+    # multisampled picture lies next to a pixel the bodies cover (those that
+    # change when the bodies are left out), and some do differ.
+    from foldsim.build.gears import build_solids
+    from foldsim.build.spec import build_spec
+    from foldsim.gui.view import solid_layer
+    from foldsim.io.mechanism_json import load
+
+    mech = load(ROOT / "assets" / "lantern-build.mech.json")
+    solids = build_solids(mech, build_spec(mech))
+    assert sum(s.kind != "panel" for s in solids) <= solid_layer.MULTISAMPLED_BODIES
+    v = shown_view(qtbot, mech)
+    v.set_t(0.4)
+    v.set_view("iso")
+
+    def frame(parts):
+        v.set_solids(parts)
+        return v.render_image(400, 300)[..., :3].astype(int)
+
+    smooth = frame(solids)
+    bare = frame([s for s in solids if s.kind == "panel"])
+    monkeypatch.setattr(solid_layer, "MULTISAMPLED_BODIES", 0)
+    plain = frame(solids)
+    assert not v._layer.multisampled_bodies
+    bodies = np.abs(smooth - bare).max(axis=-1) > 0
+    near = bodies.copy()
+    for dy in (-1, 0, 1):
+        for dx in (-1, 0, 1):
+            near |= np.roll(np.roll(bodies, dy, axis=0), dx, axis=1)
+    differ = np.abs(plain - smooth).max(axis=-1) > 0
+    assert differ.sum() > 20
+    assert not (differ & ~near).any()

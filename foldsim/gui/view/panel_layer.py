@@ -381,9 +381,10 @@ class PanelLayer(gl.GLGraphicsItem.GLGraphicsItem):
         self.set_open_cuts(np.ones(0 if cut_faces is None else len(cut_faces), bool))
 
     def _pack(self, fills, outline_rows, hinge_rows):
-        """Put each face's fill, outline and hinge rows into the one vertex buffer.
+        """Put each face's rows of three blocks into the one vertex buffer (`_draws` says how each is drawn).
 
-        Rows without the edge columns (lines) get zeros there: no edges.
+        The flat layer's blocks are fills, outlines and hinge lines; rows without
+        the edge columns (lines) get zeros there: no edges.
         """
         n_faces = len(fills)
         blocks = fills + outline_rows + hinge_rows
@@ -409,6 +410,7 @@ class PanelLayer(gl.GLGraphicsItem.GLGraphicsItem):
         self._free_sent = False
         self._cut_of = np.full((len(self._data), 3), -1, np.int64)
         self._open = None
+        self._blocks_for = None
         self._buffer = None
         self._free_buffer = None
         self._context = None
@@ -504,21 +506,23 @@ class PanelLayer(gl.GLGraphicsItem.GLGraphicsItem):
         GL.glEnable(GL.GL_POLYGON_OFFSET_FILL)
         GL.glPolygonOffset(1.0, 1.0)
         GL.glUniform1f(u["u_lines"], 0.0)
-        for first in range(0, self.n_faces, program.slots):
-            last = min(first + program.slots, self.n_faces)
+        lines = False
+        for first, last, draws in self._block_draws(program.slots):
             GL.glUniform1f(u["u_base"], float(first))
             GL.glUniformMatrix4fv(u["u_pose"], last - first, True, self.poses[first:last])
             GL.glUniform4fv(u["u_front"], last - first, self.front[first:last])
             GL.glUniform4fv(u["u_back"], last - first, self.back[first:last])
-            self._draw(GL.GL_TRIANGLES, *self._span(0, first, last))
-            lines = [(width, *self._span(block, first, last))
-                     for block, width in ((1, OUTLINE_WIDTH), (2, HINGE_WIDTH))]
-            if any(count for _, _, count in lines):
-                GL.glUniform1f(u["u_lines"], 1.0)
-                for width, start, count in lines:
+            for mode, width, multisample, start, count in draws:
+                if (mode == GL.GL_LINES) != lines:
+                    lines = not lines
+                    GL.glUniform1f(u["u_lines"], float(lines))
+                if lines:
                     GL.glLineWidth(width * scale)
-                    self._draw(GL.GL_LINES, start, count)
-                GL.glUniform1f(u["u_lines"], 0.0)
+                if not multisample:
+                    GL.glDisable(GL.GL_MULTISAMPLE)
+                GL.glDrawArrays(mode, start, count)
+                if not multisample:
+                    GL.glEnable(GL.GL_MULTISAMPLE)
         GL.glDisable(GL.GL_POLYGON_OFFSET_FILL)
         GL.glLineWidth(1.0)
         GL.glDisable(GL.GL_CULL_FACE)
@@ -527,12 +531,25 @@ class PanelLayer(gl.GLGraphicsItem.GLGraphicsItem):
         GL.glBindBuffer(GL.GL_ARRAY_BUFFER, 0)
         GL.glUseProgram(0)
 
-    def _span(self, block, first, last):
-        """First vertex and vertex count of faces first..last-1 in a block (0 fills, 1 outlines, 2 hinges)."""
-        start = int(self._starts[block, first])
-        return start, int(self._starts[block, last - 1] + self._counts[block, last - 1] - start)
+    def _draws(self):
+        """How each of the three blocks of rows is drawn: (mode, line width, multisampled)."""
+        return ((GL.GL_TRIANGLES, 0.0, True), (GL.GL_LINES, OUTLINE_WIDTH, True), (GL.GL_LINES, HINGE_WIDTH, True))
 
-    @staticmethod
-    def _draw(mode, start, count):
-        if count:
-            GL.glDrawArrays(mode, start, count)
+    def _block_draws(self, slots):
+        """Per block of ``slots`` faces: (first, last, draws), each draw (mode, width, multisampled, start, count).
+
+        Worked out once per slot count; draws of no vertices are left out.
+        """
+        if self._blocks_for != slots:
+            out = []
+            for first in range(0, self.n_faces, slots):
+                last = min(first + slots, self.n_faces)
+                draws = []
+                for block, (mode, width, multisample) in enumerate(self._draws()):
+                    start = int(self._starts[block, first])
+                    count = int(self._starts[block, last - 1] + self._counts[block, last - 1] - start)
+                    if count:
+                        draws.append((mode, width, multisample, start, count))
+                out.append((first, last, draws))
+            self._blocks, self._blocks_for = out, slots
+        return self._blocks

@@ -11,9 +11,10 @@ thousands of GL lines cost the software renderer more than all the fills.
 """
 
 import numpy as np
+from OpenGL import GL
 
 from . import palette
-from .panel_layer import _FAR, PanelLayer, _rgba
+from .panel_layer import _FAR, HINGE_WIDTH, PanelLayer, _rgba
 
 FEATURE_DEG = 20.0
 """Edges between triangles that turn by more than this are drawn as outlines."""
@@ -23,6 +24,14 @@ GEAR_FEATURE_DEG = 45.0
 arcs (12 to the turn on the coarse bodies a large model draws, 30 degrees apart),
 so coarse and fine bodies show the same outlines, and a large model does not draw
 tens of thousands of lines."""
+
+MULTISAMPLED_BODIES = 128
+"""Gear bodies (and rods) up to which they are drawn multisampled, as everything
+else is. A larger build (the app draws the bodies of more than 64 pairs coarse)
+has many bodies a few pixels across; the software renderer's setup of a
+multisampled triangle costs about twice a plain one's, and the bodies are most of
+the triangles, so they are drawn without multisampling: their silhouettes are
+not smoothed, their outline bands still are."""
 
 
 def feature_edges(triangles, min_turn_deg=FEATURE_DEG):
@@ -132,6 +141,7 @@ class SolidLayer(PanelLayer):
     def __init__(self, solids, n_faces, hinge_lines, hinge_parent, parentItem=None):
         super(PanelLayer, self).__init__(parentItem=parentItem)
         fills = [[] for _ in range(n_faces)]
+        bodies = [[] for _ in range(n_faces)]
         gear = _rgba(palette.GEAR_BODY)
         for solid in solids:
             tri = np.asarray(solid.triangles, dtype=float).reshape(-1, 3, 3)
@@ -140,14 +150,21 @@ class SolidLayer(PanelLayer):
             # Alpha 0: a panel's prism takes the panel's colour; a gear keeps its own.
             color = (1.0, 1.0, 1.0, 0.0) if solid.kind == "panel" else gear
             sides = feature_sides(tri, FEATURE_DEG if solid.kind == "panel" else GEAR_FEATURE_DEG)
-            fills[solid.face].append(self._mesh_rows(tri, normals, solid.face, color, sides))
+            rows = fills if solid.kind == "panel" else bodies
+            rows[solid.face].append(self._mesh_rows(tri, normals, solid.face, color, sides))
         hinge_rows = [[] for _ in range(n_faces)]
         for h, f in enumerate(hinge_parent):
             ends = np.asarray(hinge_lines, dtype=float)[h]
             hinge_rows[f].append(self._rows(ends, (0.0, 0.0, 1.0), f, _rgba(palette.HINGE)))
         self.solid_count = len(solids)
-        self._pack([self._join(r) for r in fills], [np.zeros((0, 11))] * n_faces,
+        self.multisampled_bodies = sum(solid.kind != "panel" for solid in solids) <= MULTISAMPLED_BODIES
+        # The layer's three blocks of rows: prisms, gear bodies, hinge lines.
+        self._pack([self._join(r) for r in fills], [self._join(r) for r in bodies],
                    [self._join(r) for r in hinge_rows])
+
+    def _draws(self):
+        return ((GL.GL_TRIANGLES, 0.0, True), (GL.GL_TRIANGLES, 0.0, self.multisampled_bodies),
+                (GL.GL_LINES, HINGE_WIDTH, True))
 
     @staticmethod
     def _join(rows):
