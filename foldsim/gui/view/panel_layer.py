@@ -30,11 +30,15 @@ uniform float u_lines;
 
 
 # The panels are flat, so each triangle has one normal and its lighting is the
-# same all over it: the vertex shader lights both sides (two-sided lighting in
-# eye space: a key light from the upper left and a little of a head light, over
-# a high ambient so no side of a panel goes black) and the fragment shader picks
-# the side it sees. The outer side (counter-clockwise, as the model's faces are)
-# takes the front colour, the inner side the back colour. Lines are drawn unlit.
+# same all over it: the vertex shader lights the side the triangle shows (two-
+# sided lighting in eye space: a key light from the upper left and a little of a
+# head light, over a high ambient so no side of a panel goes black), and the
+# fragments get that one colour. The outer side (counter-clockwise, as the model's
+# faces are) takes the front colour, the inner side the back colour. Which side a
+# triangle shows is the sign of the determinant of its corners' clip coordinates
+# (x, y, w), which every corner works out alike and which holds for corners
+# behind the eye too (Olano and Greer, "Triangle scan conversion using 2D
+# homogeneous coordinates", Graphics Hardware 1997). Lines are drawn unlit.
 #
 # A flat panel's outline and hinge edges are drawn by its own fill, as bands along
 # the triangle's edges (single-pass wireframe: Baerentzen, Munk Nielsen, Gjoel
@@ -60,41 +64,33 @@ attribute vec3 a_kind;
 attribute vec3 a_next;
 attribute vec3 a_prev;
 attribute vec3 a_free;
-varying vec4 v_front;
-varying vec4 v_back;
+varying vec4 v_color;
 varying vec3 v_outline;
 varying vec3 v_hinge;
-
-float lit(vec3 n) {
-    vec3 key = normalize(vec3(-0.45, 0.55, 0.70));
-    return 0.60 + 0.32 * max(dot(n, key), 0.0) + 0.14 * abs(n.z);
-}
 
 void main() {
     int slot = int(a_face - u_base + 0.5);
     mat4 pose = u_pose[slot];
-    vec4 here = u_projection * (u_modelview * (pose * a_position));
+    mat4 eye = u_modelview * pose;
+    vec4 here = u_projection * (eye * a_position);
     gl_Position = here;
     // Band edges beyond reach (no edge line) unless the corner says otherwise.
     v_outline = vec3(-1.0e4);
     v_hinge = vec3(-1.0e4);
     if (u_lines > 0.5) {
-        v_front = a_color;
-        v_back = a_color;
+        v_color = a_color;
         return;
     }
-    vec3 n = normalize((u_modelview * (pose * vec4(a_normal, 0.0))).xyz);
-    // Solids with a colour of their own (gear bodies) keep it.
-    vec4 front = a_color.a > 0.0 ? a_color : u_front[slot];
-    vec4 back = a_color.a > 0.0 ? a_color : u_back[slot];
-    v_front = vec4(min(front.rgb * lit(n), 1.0), front.a);
-    v_back = vec4(min(back.rgb * lit(-n), 1.0), back.a);
-    if (a_kind.x + a_kind.y + a_kind.z < 0.5) {
-        return;
-    }
-    vec4 next = u_projection * (u_modelview * (pose * vec4(a_next, 1.0)));
-    vec4 prev = u_projection * (u_modelview * (pose * vec4(a_prev, 1.0)));
-    if (min(here.w, min(next.w, prev.w)) <= 1.0e-6) {
+    vec4 next = u_projection * (eye * vec4(a_next, 1.0));
+    vec4 prev = u_projection * (eye * vec4(a_prev, 1.0));
+    bool outer = dot(here.xyw, cross(next.xyw, prev.xyw)) > 0.0;
+    vec3 n = normalize((eye * vec4(a_normal, 0.0)).xyz);
+    vec4 base = outer ? u_front[slot] : u_back[slot];
+    vec3 key = normalize(vec3(-0.45, 0.55, 0.70));
+    n = outer ? n : -n;
+    float light = 0.60 + 0.32 * max(dot(n, key), 0.0) + 0.14 * abs(n.z);
+    v_color = vec4(min(base.rgb * light, 1.0), base.a);
+    if (a_kind.x + a_kind.y + a_kind.z < 0.5 || min(here.w, min(next.w, prev.w)) <= 1.0e-6) {
         return;
     }
     vec2 s0 = 0.5 * u_viewport * here.xy / here.w;
@@ -122,12 +118,11 @@ precision mediump float;
 #endif
 uniform vec4 u_outline;
 uniform vec4 u_hinge;
-varying vec4 v_front;
-varying vec4 v_back;
+varying vec4 v_color;
 varying vec3 v_outline;
 varying vec3 v_hinge;
 void main() {
-    vec4 color = gl_FrontFacing ? v_front : v_back;
+    vec4 color = v_color;
     vec3 outline = clamp(v_outline * gl_FragCoord.w, 0.0, 1.0);
     vec3 hinge = clamp(v_hinge * gl_FragCoord.w, 0.0, 1.0);
     color.rgb = mix(color.rgb, u_outline.rgb, max(outline.x, max(outline.y, outline.z)));
