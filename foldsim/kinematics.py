@@ -21,21 +21,26 @@ def _rodrigues_terms(mech):
     """The parts of every hinge's rotation that do not depend on its angle (kept per mechanism).
 
     Rotation x -> R (x - a) + a about each hinge line (Rodrigues' formula, as
-    `geometry.line_rotations`), kept as its 3 x 4 part [R | a - R a]: a point a
-    (H, 3) of each line, u u^T, I - u u^T and [u]x flattened (H, 9), and each of
-    them times a (H, 3).
+    `geometry.line_rotations`), kept as its 3 x 4 part [R | a - R a] =
+    T0 + cos(angle) T1 + sin(angle) T2, with a a point of the line, u its unit
+    direction, T0 = [u u^T | a - u u^T a], T1 = [I - u u^T | -(I - u u^T) a] and
+    T2 = [[u]x | -[u]x a]: three (H, 3, 4) arrays, rows in the order of the tree
+    walk (`_walk`), so a walk over every hinge reads them in place.
     """
     terms = _TERMS.get(mech)
     if terms is None:
-        a = mech.axes[:, 0]
-        u = geometry.unit(mech.axes[:, 1] - a)
+        order = _walk(mech)[0]
+        a = mech.axes[order, 0]
+        u = geometry.unit(mech.axes[order, 1] - a)
         skew = np.zeros((len(u), 3, 3))
         skew[:, 0, 1], skew[:, 0, 2], skew[:, 1, 2] = -u[:, 2], u[:, 1], -u[:, 0]
         skew -= skew.transpose(0, 2, 1)
         outer = u[:, :, None] * u[:, None, :]
         across = np.eye(3) - outer
-        times_a = [(m @ a[..., None])[..., 0] for m in (outer, across, skew)]
-        terms = (a, outer.reshape(-1, 9), across.reshape(-1, 9), skew.reshape(-1, 9), *times_a)
+        terms = tuple(np.concatenate([m, shift[..., None]], axis=2)
+                      for m, shift in ((outer, a - (outer @ a[..., None])[..., 0]),
+                                       (across, -(across @ a[..., None])[..., 0]),
+                                       (skew, -(skew @ a[..., None])[..., 0])))
         _TERMS[mech] = terms
     return terms
 
@@ -70,38 +75,65 @@ def face_poses(mech, angles, faces=None):
     """
     angles = np.asarray(angles, dtype=float)
     n_t = angles.shape[0]
+    order, parent_at, face_at, spans = _walk(mech)
     if faces is None:
-        hinges, levels = np.arange(mech.n_hinges), mech.levels
+        steps = order
     else:
-        hinges, levels = _chains(mech, faces)
-        angles = angles[:, hinges]
+        on = np.zeros(mech.n_hinges, bool)
+        on[_chains(mech, faces)[0]] = True
+        steps = order[on[order]]
+        # The chains' steps, level by level (as the whole walk's spans).
+        step_of = np.empty(mech.n_hinges, np.int64)
+        step_of[order] = np.arange(len(order))
+        at = step_of[steps]
+        spans = [(lo, hi) for lo, hi in zip(np.searchsorted(at, [lo for lo, _ in spans]),
+                                            np.searchsorted(at, [hi for _, hi in spans])) if hi > lo]
     # R = u u^T + cos(angle) (I - u u^T) + sin(angle) [u]x, and R a from the same
     # three terms; elementwise, so each drive value's poses do not depend on which
-    # others are computed with it. Row k of the terms is hinge ``hinges[k]``.
-    a, outer, across, skew, outer_a, across_a, skew_a = (
-        term if faces is None else term[hinges] for term in _rodrigues_terms(mech))
-    c, s = np.cos(angles.T)[..., None], np.sin(angles.T)[..., None]
-    rot = np.empty((len(a), n_t, 3, 4))
-    rot[..., :3] = (outer[:, None] + c * across[:, None] + s * skew[:, None]).reshape(len(a), n_t, 3, 3)
-    rot[..., 3] = a[:, None] - (outer_a[:, None] + c * across_a[:, None] + s * skew_a[:, None])
-    # Face-major while walking the tree, so each level gathers whole rows.
-    work = np.empty((mech.n_faces, n_t, 3, 4))
-    work[mech.root] = np.eye(4)[:3]
-    row = None
-    if faces is not None:
-        row = np.empty(mech.n_hinges, np.int64)
-        row[hinges] = np.arange(len(hinges))
-    for level in levels:
-        parent = work[mech.parent[level]]
-        child = parent[..., :3] @ rot[level if row is None else row[level]]
-        child[..., 3] += parent[..., 3]
-        work[mech.child[level]] = child
-    if faces is not None:
-        work = work[np.asarray(faces, np.int64)]
-    poses = np.empty((n_t, len(work), 4, 4))
-    poses[:, :, :3] = work.transpose(1, 0, 2, 3)
-    poses[:, :, 3] = (0.0, 0.0, 0.0, 1.0)
-    return poses
+    # others are computed with it. Row k of rot is hinge ``steps[k]``.
+    fixed, along_cos, along_sin = (term if faces is None else term[at] for term in _rodrigues_terms(mech))
+    turn = angles[:, steps].T[..., None, None]
+    rot = np.zeros((len(steps), n_t, 4, 4))
+    rot[..., :3, :] = fixed[:, None] + np.cos(turn) * along_cos[:, None] + np.sin(turn) * along_sin[:, None]
+    rot[..., 3, 3] = 1.0
+    # Face-major while walking the tree, in the walk's face order: the root, then
+    # the child of each step; a level's children are consecutive rows, so each
+    # level is one gather of its parents and one product of 4 x 4 matrices.
+    work = np.empty((mech.n_faces, n_t, 4, 4))
+    work[0] = np.eye(4)
+    if faces is None:
+        for lo, hi in spans:
+            np.matmul(work[parent_at[lo:hi]], rot[lo:hi], out=work[1 + lo:1 + hi])
+        rows = face_at
+    else:
+        for lo, hi in spans:
+            work[at[lo:hi] + 1] = np.matmul(work[parent_at[at[lo:hi]]], rot[lo:hi])
+        rows = face_at[np.asarray(faces, np.int64)]
+    return np.ascontiguousarray(work[rows].transpose(1, 0, 2, 3))
+
+
+_WALKS = weakref.WeakKeyDictionary()
+
+
+def _walk(mech):
+    """The tree walk `face_poses` follows (kept per mechanism).
+
+    Returns the hinges level by level (H,) int, each one's parent face's row in
+    the walk (H,) int (the root is row 0, the child of hinge ``order[k]`` row
+    k + 1), each face's row (F,) int, and each level's (lo, hi) stretch of the order.
+    """
+    walk = _WALKS.get(mech)
+    if walk is None:
+        order = np.concatenate([np.asarray(level, np.int64) for level in mech.levels]) if mech.levels \
+            else np.zeros(0, np.int64)
+        face_at = np.zeros(mech.n_faces, np.int64)
+        face_at[mech.root] = 0
+        face_at[mech.child[order]] = np.arange(1, len(order) + 1)
+        ends = np.cumsum([len(level) for level in mech.levels]).tolist()
+        spans = list(zip([0] + ends[:-1], ends))
+        walk = (order, face_at[mech.parent[order]], face_at, spans)
+        _WALKS[mech] = walk
+    return walk
 
 
 def _chains(mech, faces):

@@ -221,3 +221,74 @@ def test_gear_body_outlines_are_its_ends_and_sector_sides():
                          np.array([0.0, 1.0, 0.0]), (0.0, 2.0), (5.0, 5.0), (0.0, math.pi / 2), 3)
     assert len(feature_edges(tri, GEAR_FEATURE_DEG)) == 15
     assert len(feature_edges(tri, FEATURE_DEG)) == 18
+
+
+def test_thick_panels_draw_their_outlines_in_the_fills(qtbot):
+    # A build's prisms draw their feature edges as bands of their fills (each
+    # corner's barycentric coordinate over its screen gradient is the distance in
+    # pixels to the opposite edge; common practice in wireframe shaders). Seen
+    # from the top while flat, a thin prism's walls are edge-on and its cap's
+    # border lies on the panel's outline (hand check: 0.02 thick, under a pixel
+    # at this scale): the middle of every free edge shows the outline colour and
+    # the middle of the panel does not.
+    from dataclasses import replace
+
+    from foldsim.build.prisms import panel_solids
+    from foldsim.build.spec import build_spec
+
+    mech = from_document(strip150_document())
+    built = replace(mech, extras={**mech.extras, "build": {"thickness": 0.02}})
+    v = shown_view(qtbot, built)
+    v.set_solids(panel_solids(built, build_spec(built)))
+    v.set_t(0.0)
+    v.set_view("top")
+    v.fit()
+    img = v.render_image(800, 600)
+    for f in (0, 2):
+        face = mech.flat_faces[f]
+        hinge = mech.axes[mech.face_hinge[f]]
+        ends = {tuple(np.round(p, 9)) for p in hinge}
+        for a, b in zip(face, np.roll(face, -1, axis=0)):
+            if {tuple(np.round(a, 9)), tuple(np.round(b, 9))} <= ends:
+                continue
+            mid = transform_points(v.poses[f], (a + b) / 2)
+            assert _nearest(img, 2 * v.model_to_pixels(mid[None])[0], palette.OUTLINE, reach=4) <= 12, (f, a, b)
+        centre = transform_points(v.poses[f], face.mean(axis=0))
+        assert _nearest(img, 2 * v.model_to_pixels(centre[None])[0], palette.OUTLINE, reach=4) > 40
+
+
+def test_many_gear_bodies_are_drawn_without_multisampling(qtbot, monkeypatch):
+    # Multisampling changes only the pixels that a triangle's edge crosses (common
+    # practice), so drawing the gear bodies of a large build without it changes
+    # the picture only at the bodies' borders: every pixel that differs from the
+    # multisampled picture lies next to a pixel the bodies cover (those that
+    # change when the bodies are left out), and some do differ.
+    from foldsim.build.gears import build_solids
+    from foldsim.build.spec import build_spec
+    from foldsim.gui.view import solid_layer
+    from foldsim.io.mechanism_json import load
+
+    mech = load(ROOT / "assets" / "lantern-build.mech.json")
+    solids = build_solids(mech, build_spec(mech))
+    assert sum(s.kind != "panel" for s in solids) <= solid_layer.MULTISAMPLED_BODIES
+    v = shown_view(qtbot, mech)
+    v.set_t(0.4)
+    v.set_view("iso")
+
+    def frame(parts):
+        v.set_solids(parts)
+        return v.render_image(400, 300)[..., :3].astype(int)
+
+    smooth = frame(solids)
+    bare = frame([s for s in solids if s.kind == "panel"])
+    monkeypatch.setattr(solid_layer, "MULTISAMPLED_BODIES", 0)
+    plain = frame(solids)
+    assert not v._layer.multisampled_bodies
+    bodies = np.abs(smooth - bare).max(axis=-1) > 0
+    near = bodies.copy()
+    for dy in (-1, 0, 1):
+        for dx in (-1, 0, 1):
+            near |= np.roll(np.roll(bodies, dy, axis=0), dx, axis=1)
+    differ = np.abs(plain - smooth).max(axis=-1) > 0
+    assert differ.sum() > 20
+    assert not (differ & ~near).any()

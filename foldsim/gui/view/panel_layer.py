@@ -30,11 +30,15 @@ uniform float u_lines;
 
 
 # The panels are flat, so each triangle has one normal and its lighting is the
-# same all over it: the vertex shader lights both sides (two-sided lighting in
-# eye space: a key light from the upper left and a little of a head light, over
-# a high ambient so no side of a panel goes black) and the fragment shader picks
-# the side it sees. The outer side (counter-clockwise, as the model's faces are)
-# takes the front colour, the inner side the back colour. Lines are drawn unlit.
+# same all over it: the vertex shader lights the side the triangle shows (two-
+# sided lighting in eye space: a key light from the upper left and a little of a
+# head light, over a high ambient so no side of a panel goes black), and the
+# fragments get that one colour. The outer side (counter-clockwise, as the model's
+# faces are) takes the front colour, the inner side the back colour. Which side a
+# triangle shows is the sign of the determinant of its corners' clip coordinates
+# (x, y, w), which every corner works out alike and which holds for corners
+# behind the eye too (Olano and Greer, "Triangle scan conversion using 2D
+# homogeneous coordinates", Graphics Hardware 1997). Lines are drawn unlit.
 #
 # A flat panel's outline and hinge edges are drawn by its own fill, as bands along
 # the triangle's edges (single-pass wireframe: Baerentzen, Munk Nielsen, Gjoel
@@ -60,41 +64,33 @@ attribute vec3 a_kind;
 attribute vec3 a_next;
 attribute vec3 a_prev;
 attribute vec3 a_free;
-varying vec4 v_front;
-varying vec4 v_back;
+varying vec4 v_color;
 varying vec3 v_outline;
 varying vec3 v_hinge;
-
-float lit(vec3 n) {
-    vec3 key = normalize(vec3(-0.45, 0.55, 0.70));
-    return 0.60 + 0.32 * max(dot(n, key), 0.0) + 0.14 * abs(n.z);
-}
 
 void main() {
     int slot = int(a_face - u_base + 0.5);
     mat4 pose = u_pose[slot];
-    vec4 here = u_projection * (u_modelview * (pose * a_position));
+    mat4 eye = u_modelview * pose;
+    vec4 here = u_projection * (eye * a_position);
     gl_Position = here;
     // Band edges beyond reach (no edge line) unless the corner says otherwise.
     v_outline = vec3(-1.0e4);
     v_hinge = vec3(-1.0e4);
     if (u_lines > 0.5) {
-        v_front = a_color;
-        v_back = a_color;
+        v_color = a_color;
         return;
     }
-    vec3 n = normalize((u_modelview * (pose * vec4(a_normal, 0.0))).xyz);
-    // Solids with a colour of their own (gear bodies) keep it.
-    vec4 front = a_color.a > 0.0 ? a_color : u_front[slot];
-    vec4 back = a_color.a > 0.0 ? a_color : u_back[slot];
-    v_front = vec4(min(front.rgb * lit(n), 1.0), front.a);
-    v_back = vec4(min(back.rgb * lit(-n), 1.0), back.a);
-    if (a_kind.x + a_kind.y + a_kind.z < 0.5) {
-        return;
-    }
-    vec4 next = u_projection * (u_modelview * (pose * vec4(a_next, 1.0)));
-    vec4 prev = u_projection * (u_modelview * (pose * vec4(a_prev, 1.0)));
-    if (min(here.w, min(next.w, prev.w)) <= 1.0e-6) {
+    vec4 next = u_projection * (eye * vec4(a_next, 1.0));
+    vec4 prev = u_projection * (eye * vec4(a_prev, 1.0));
+    bool outer = dot(here.xyw, cross(next.xyw, prev.xyw)) > 0.0;
+    vec3 n = normalize((eye * vec4(a_normal, 0.0)).xyz);
+    vec4 base = outer ? u_front[slot] : u_back[slot];
+    vec3 key = normalize(vec3(-0.45, 0.55, 0.70));
+    n = outer ? n : -n;
+    float light = 0.60 + 0.32 * max(dot(n, key), 0.0) + 0.14 * abs(n.z);
+    v_color = vec4(min(base.rgb * light, 1.0), base.a);
+    if (a_kind.x + a_kind.y + a_kind.z < 0.5 || min(here.w, min(next.w, prev.w)) <= 1.0e-6) {
         return;
     }
     vec2 s0 = 0.5 * u_viewport * here.xy / here.w;
@@ -122,12 +118,11 @@ precision mediump float;
 #endif
 uniform vec4 u_outline;
 uniform vec4 u_hinge;
-varying vec4 v_front;
-varying vec4 v_back;
+varying vec4 v_color;
 varying vec3 v_outline;
 varying vec3 v_hinge;
 void main() {
-    vec4 color = gl_FrontFacing ? v_front : v_back;
+    vec4 color = v_color;
     vec3 outline = clamp(v_outline * gl_FragCoord.w, 0.0, 1.0);
     vec3 hinge = clamp(v_hinge * gl_FragCoord.w, 0.0, 1.0);
     color.rgb = mix(color.rgb, u_outline.rgb, max(outline.x, max(outline.y, outline.z)));
@@ -136,66 +131,79 @@ void main() {
 }
 """
 
-# A build's solids (`solid_layer.SolidLayer`) draw their outlines as GL lines and
-# have no edge bands.
+# A build's solids (`solid_layer.SolidLayer`) draw their outlines (feature edges)
+# as bands of their fills too, from each corner's barycentric coordinate, and
+# through their pixel derivatives, rather than from the corners' screen positions:
+# a solid has many small triangles, so its vertices cost more than its pixels.
+# Barycentric coordinate i falls from 1 at corner i to 0 on the opposite edge, and
+# its value over the length of its screen gradient is a fragment's distance in
+# pixels to that edge (common practice in wireframe shaders). An edge that is no
+# outline has _FAR added to its coordinate, so it is never within a band's reach.
+# The solids are closed and culled, so only their front sides are ever seen, and
+# their triangles are flat: each vertex is lit with its triangle's normal, and the
+# fragments get one colour.
 _SOLID_VERTEX_SHADER = _BLOCK_UNIFORMS + """
 attribute vec4 a_position;
 attribute vec3 a_normal;
 attribute float a_face;
 attribute vec4 a_color;
-varying vec3 v_normal;
-varying vec4 v_front;
-varying vec4 v_back;
+attribute vec3 a_edge;
+varying vec4 v_color;
+varying vec3 v_edge;
 void main() {
     int slot = int(a_face - u_base + 0.5);
     mat4 pose = u_pose[slot];
-    v_normal = (u_modelview * (pose * vec4(a_normal, 0.0))).xyz;
-    if (u_lines > 0.5 || a_color.a > 0.0) {
-        // Lines, and solids with a colour of their own (gear bodies).
-        v_front = a_color;
-        v_back = a_color;
-    } else {
-        v_front = u_front[slot];
-        v_back = u_back[slot];
+    vec4 eye = u_modelview * (pose * a_position);
+    gl_Position = u_projection * eye;
+    v_edge = a_edge;
+    if (u_lines > 0.5) {
+        v_color = a_color;
+        return;
     }
-    gl_Position = u_projection * (u_modelview * (pose * a_position));
+    vec3 n = normalize((u_modelview * (pose * vec4(a_normal, 0.0))).xyz);
+    // Solids with a colour of their own (gear bodies) keep it.
+    vec4 base = a_color.a > 0.0 ? a_color : u_front[slot];
+    vec3 key = normalize(vec3(-0.45, 0.55, 0.70));
+    float light = 0.60 + 0.32 * max(dot(n, key), 0.0) + 0.14 * abs(n.z);
+    v_color = vec4(min(base.rgb * light, 1.0), base.a);
 }
 """
 
-# The same lighting per fragment, for solids: they have many vertices for the
-# area they cover, so lighting their vertices would cost more than their pixels.
 _SOLID_FRAGMENT_SHADER = """
 #ifdef GL_ES
 precision mediump float;
 #endif
 uniform float u_lines;
-varying vec3 v_normal;
-varying vec4 v_front;
-varying vec4 v_back;
+uniform vec4 u_outline;
+uniform float u_outline_half;
+varying vec4 v_color;
+varying vec3 v_edge;
 void main() {
     if (u_lines > 0.5) {
-        gl_FragColor = v_front;
+        gl_FragColor = v_color;
         return;
     }
-    vec3 n = normalize(v_normal);
-    vec4 base = v_front;
-    if (!gl_FrontFacing) {
-        n = -n;
-        base = v_back;
-    }
-    vec3 key = normalize(vec3(-0.45, 0.55, 0.70));
-    float light = 0.60 + 0.32 * max(dot(n, key), 0.0) + 0.14 * abs(n.z);
-    gl_FragColor = vec4(min(base.rgb * light, 1.0), base.a);
+    vec3 dx = dFdx(v_edge);
+    vec3 dy = dFdy(v_edge);
+    vec3 away = v_edge / max(sqrt(dx * dx + dy * dy), vec3(1.0e-9));
+    vec3 band = clamp(vec3(u_outline_half + 0.5) - away, 0.0, 1.0);
+    gl_FragColor = vec4(mix(v_color.rgb, u_outline.rgb, max(band.x, max(band.y, band.z))), v_color.a);
 }
 """
+
+_FAR = 100.0
+"""Added to a solid corner's barycentric coordinate of an edge that is no outline."""
 
 _SHADERS = {"panels": (_VERTEX_SHADER, _FRAGMENT_SHADER),
             "solids": (_SOLID_VERTEX_SHADER, _SOLID_FRAGMENT_SHADER)}
 
-_EDGE_ATTRIBUTES = ("a_corner", "a_kind", "a_next", "a_prev", "a_free")
-
 _FLOATS = 23  # position 3, normal 3, face 1, colour 4, corner 3, edge kinds 3, next 3, previous 3
-_PLAIN_FLOATS = 11  # the first four, for a layer without edge bands
+
+# Where each attribute lies in a vertex (floats: size, offset) for each program.
+_LAYOUTS = {"panels": {"a_position": (3, 0), "a_normal": (3, 3), "a_face": (1, 6), "a_color": (4, 7),
+                       "a_corner": (3, 11), "a_kind": (3, 14), "a_next": (3, 17), "a_prev": (3, 20)},
+            "solids": {"a_position": (3, 0), "a_normal": (3, 3), "a_face": (1, 6), "a_color": (4, 7),
+                       "a_edge": (3, 11)}}
 
 OUTLINE_WIDTH = 1.6
 """Width in pixels of a panel's outline (on screen; offscreen frames scale it)."""
@@ -241,8 +249,7 @@ class _PanelProgram:
         GL.glBindAttribLocation(self.program, 0, "a_position")
         GL.glLinkProgram(self.program)
         self.attributes = {name: GL.glGetAttribLocation(self.program, name)
-                           for name in ("a_position", "a_normal", "a_face", "a_color", "a_corner", "a_kind",
-                                      "a_next", "a_prev", "a_free")}
+                           for name in (*_LAYOUTS[kind], "a_free")}
         self.uniforms = {name: GL.glGetUniformLocation(self.program, name)
                          for name in ("u_projection", "u_modelview", "u_pose", "u_front", "u_back",
                                       "u_base", "u_lines", "u_outline", "u_hinge", "u_outline_half",
@@ -324,8 +331,8 @@ class PanelLayer(gl.GLGraphicsItem.GLGraphicsItem):
     closed = False
     """Whether every mesh is closed and faces outward, so back faces can be culled."""
 
-    edges = True
-    """Whether the fills draw edge bands (flat panels do; solids draw GL lines)."""
+    outline_side = 0.5
+    """Share of `OUTLINE_WIDTH` an outline's band takes on each side of its edge."""
 
     shaders = "panels"
     """Which shader program draws the layer (`_PanelProgram`)."""
@@ -369,14 +376,15 @@ class PanelLayer(gl.GLGraphicsItem.GLGraphicsItem):
         self.set_open_cuts(np.ones(0 if cut_faces is None else len(cut_faces), bool))
 
     def _pack(self, fills, outline_rows, hinge_rows):
-        """Put each face's fill, outline and hinge rows into the one vertex buffer.
+        """Put each face's rows of three blocks into the one vertex buffer (`_draws` says how each is drawn).
 
-        Rows without the edge columns (lines, solids) get zeros there: no edges.
+        The flat layer's blocks are fills, outlines and hinge lines; rows without
+        the edge columns (lines) get zeros there: no edges.
         """
         n_faces = len(fills)
         blocks = fills + outline_rows + hinge_rows
-        # Without edge bands a vertex is only its first 11 floats (a shorter stride to fetch).
-        data = np.zeros((sum(len(b) for b in blocks), _FLOATS if self.edges else _PLAIN_FLOATS), np.float32)
+        width = sum(size for size, _ in _LAYOUTS[self.shaders].values())
+        data = np.zeros((sum(len(b) for b in blocks), width), np.float32)
         at = 0
         for b in blocks:
             if len(b):
@@ -397,6 +405,7 @@ class PanelLayer(gl.GLGraphicsItem.GLGraphicsItem):
         self._free_sent = False
         self._cut_of = np.full((len(self._data), 3), -1, np.int64)
         self._open = None
+        self._blocks_for = None
         self._buffer = None
         self._free_buffer = None
         self._context = None
@@ -468,28 +477,23 @@ class PanelLayer(gl.GLGraphicsItem.GLGraphicsItem):
         u, a = program.uniforms, program.attributes
         GL.glUniformMatrix4fv(u["u_projection"], 1, False, np.array(self.projectionMatrix().data(), np.float32))
         GL.glUniformMatrix4fv(u["u_modelview"], 1, False, np.array(self.modelViewMatrix().data(), np.float32))
-        offsets = {"a_position": (3, 0), "a_normal": (3, 12), "a_face": (1, 24), "a_color": (4, 28),
-                   "a_corner": (3, 44), "a_kind": (3, 56), "a_next": (3, 68), "a_prev": (3, 80)}
         enabled = []
-        if a["a_free"] >= 0 and self.edges:
+        if a["a_free"] >= 0:
             GL.glBindBuffer(GL.GL_ARRAY_BUFFER, self._free_buffer)
             GL.glEnableVertexAttribArray(a["a_free"])
             GL.glVertexAttribPointer(a["a_free"], 3, GL.GL_FLOAT, False, 12, ctypes.c_void_p(0))
             enabled.append(a["a_free"])
         GL.glBindBuffer(GL.GL_ARRAY_BUFFER, self._buffer)
-        for name, (size, offset) in offsets.items():
-            if a[name] >= 0 and not self.edges and name in _EDGE_ATTRIBUTES:
-                # No edge bands: the shader reads zeros, and the vertices are not fetched.
-                GL.glVertexAttrib3f(a[name], 0.0, 0.0, 0.0)
-            elif a[name] >= 0:
+        for name, (size, offset) in _LAYOUTS[self.shaders].items():
+            if a[name] >= 0:
                 GL.glEnableVertexAttribArray(a[name])
                 GL.glVertexAttribPointer(a[name], size, GL.GL_FLOAT, False, 4 * self._data.shape[1],
-                                         ctypes.c_void_p(offset))
+                                         ctypes.c_void_p(4 * offset))
                 enabled.append(a[name])
         scale = view.line_scale()
         GL.glUniform4f(u["u_outline"], *_rgba(palette.OUTLINE))
         GL.glUniform4f(u["u_hinge"], *_rgba(palette.HINGE))
-        GL.glUniform1f(u["u_outline_half"], 0.5 * OUTLINE_WIDTH * scale)
+        GL.glUniform1f(u["u_outline_half"], self.outline_side * OUTLINE_WIDTH * scale)
         GL.glUniform1f(u["u_hinge_half"], 0.5 * HINGE_WIDTH * scale)
         GL.glUniform2f(u["u_viewport"], *(float(v) for v in GL.glGetIntegerv(GL.GL_VIEWPORT)[2:]))
         # Push the fill back a little so lines drawn on it (the root's mark, a
@@ -497,21 +501,23 @@ class PanelLayer(gl.GLGraphicsItem.GLGraphicsItem):
         GL.glEnable(GL.GL_POLYGON_OFFSET_FILL)
         GL.glPolygonOffset(1.0, 1.0)
         GL.glUniform1f(u["u_lines"], 0.0)
-        for first in range(0, self.n_faces, program.slots):
-            last = min(first + program.slots, self.n_faces)
+        lines = False
+        for first, last, draws in self._block_draws(program.slots):
             GL.glUniform1f(u["u_base"], float(first))
             GL.glUniformMatrix4fv(u["u_pose"], last - first, True, self.poses[first:last])
             GL.glUniform4fv(u["u_front"], last - first, self.front[first:last])
             GL.glUniform4fv(u["u_back"], last - first, self.back[first:last])
-            self._draw(GL.GL_TRIANGLES, *self._span(0, first, last))
-            lines = [(width, *self._span(block, first, last))
-                     for block, width in ((1, OUTLINE_WIDTH), (2, HINGE_WIDTH))]
-            if any(count for _, _, count in lines):
-                GL.glUniform1f(u["u_lines"], 1.0)
-                for width, start, count in lines:
+            for mode, width, multisample, start, count in draws:
+                if (mode == GL.GL_LINES) != lines:
+                    lines = not lines
+                    GL.glUniform1f(u["u_lines"], float(lines))
+                if lines:
                     GL.glLineWidth(width * scale)
-                    self._draw(GL.GL_LINES, start, count)
-                GL.glUniform1f(u["u_lines"], 0.0)
+                if not multisample:
+                    GL.glDisable(GL.GL_MULTISAMPLE)
+                GL.glDrawArrays(mode, start, count)
+                if not multisample:
+                    GL.glEnable(GL.GL_MULTISAMPLE)
         GL.glDisable(GL.GL_POLYGON_OFFSET_FILL)
         GL.glLineWidth(1.0)
         GL.glDisable(GL.GL_CULL_FACE)
@@ -520,12 +526,25 @@ class PanelLayer(gl.GLGraphicsItem.GLGraphicsItem):
         GL.glBindBuffer(GL.GL_ARRAY_BUFFER, 0)
         GL.glUseProgram(0)
 
-    def _span(self, block, first, last):
-        """First vertex and vertex count of faces first..last-1 in a block (0 fills, 1 outlines, 2 hinges)."""
-        start = int(self._starts[block, first])
-        return start, int(self._starts[block, last - 1] + self._counts[block, last - 1] - start)
+    def _draws(self):
+        """How each of the three blocks of rows is drawn: (mode, line width, multisampled)."""
+        return ((GL.GL_TRIANGLES, 0.0, True), (GL.GL_LINES, OUTLINE_WIDTH, True), (GL.GL_LINES, HINGE_WIDTH, True))
 
-    @staticmethod
-    def _draw(mode, start, count):
-        if count:
-            GL.glDrawArrays(mode, start, count)
+    def _block_draws(self, slots):
+        """Per block of ``slots`` faces: (first, last, draws), each draw (mode, width, multisampled, start, count).
+
+        Worked out once per slot count; draws of no vertices are left out.
+        """
+        if self._blocks_for != slots:
+            out = []
+            for first in range(0, self.n_faces, slots):
+                last = min(first + slots, self.n_faces)
+                draws = []
+                for block, (mode, width, multisample) in enumerate(self._draws()):
+                    start = int(self._starts[block, first])
+                    count = int(self._starts[block, last - 1] + self._counts[block, last - 1] - start)
+                    if count:
+                        draws.append((mode, width, multisample, start, count))
+                out.append((first, last, draws))
+            self._blocks, self._blocks_for = out, slots
+        return self._blocks

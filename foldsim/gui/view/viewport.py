@@ -21,7 +21,7 @@ A pyqtgraph item per panel costs a few draw calls and a dozen state changes per
 panel per frame; with Mesa's software renderer that held a 1,280-panel model to
 about 4 frames per second. The layer sends each block of panels' poses as one
 uniform array and draws the block in one call, its fills drawing the outlines and
-hinge lines too (GL lines remain only for the root's mark and a build's solids;
+hinge lines too (GL lines remain only for the root's mark and a build's hinge lines;
 see `python -m foldsim.gui.bench`).
 
 Offscreen frames
