@@ -87,6 +87,22 @@ def test_misgeared_cube_gaps_match_an_independent_refold(t):
         np.testing.assert_allclose(ours[pair][0], gap, rtol=0, atol=1e-9, err_msg=f"cut edge {sorted(pair)}")
 
 
+@pytest.mark.parametrize("t", [-0.4, 0.3, 0.8, 1.0])
+def test_posed_cut_ends_give_the_independent_refold_gaps(t):
+    # The view's one-pose path (`posed_cut_ends`: both sides' ends at once) against
+    # the same independent refold (scipy rotations) as above.
+    from foldsim.analysis.closure import posed_cut_ends
+
+    doc, mech = misgeared_cube(1.1)
+    hinges = [h["faces"] for h in doc["hinges"]]
+    expected = reference_gaps(np.array(doc["vertices"]), doc["faces"], hinges, doc["root"],
+                              reached_angles(1.1, t) - RIGHT_ANGLE)
+    a, b = posed_cut_ends(mech, poses_at(mech, fold_schedule(mech), np.array([t]))[0])
+    gaps = np.linalg.norm(a - b, axis=2).max(axis=1)
+    for e, pair in enumerate(mech.cut_faces.tolist()):
+        np.testing.assert_allclose(gaps[e], expected[frozenset(pair)], rtol=0, atol=1e-9)
+
+
 def test_misgeared_cube_gaps_by_hand():
     _, mech = misgeared_cube(1.1)
     ours = gaps_by_pair(mech, 1.0)

@@ -7,7 +7,7 @@ distances between matching endpoints of the two copies.
 
 import numpy as np
 
-from ..geometry import transform_points
+from ..geometry import rotate_rows, transform_points
 
 
 def cut_edge_gaps(mech, poses):
@@ -27,6 +27,19 @@ def cut_edge_gaps(mech, poses):
     pa = transform_points(poses[:, a, None], mech.cut_points[None, :, 0])
     pb = transform_points(poses[:, b, None], mech.cut_points[None, :, 1])
     return np.linalg.norm(pa - pb, axis=-1).max(axis=-1, initial=0.0)
+
+
+def posed_cut_ends(mech, poses):
+    """Both sides' ends of every cut edge at one pose set: a, b (E, 2, 3) float.
+
+    ``a[e]`` are edge e's two points carried by its first face, ``b[e]`` by its
+    second; the gap (`cut_edge_gaps`) is the larger of their distances.
+    """
+    out = []
+    for side in (0, 1):
+        m = poses[mech.cut_faces[:, side]]
+        out.append(rotate_rows(m[:, :3, :3], mech.cut_points[:, side]) + m[:, None, :3, 3])
+    return out
 
 
 def closure_summary(mech, gaps_end, tolerance):

@@ -199,8 +199,12 @@ class Overlays:
             self._gap_lines.setVisible(False)
             self._labels = []
             return
-        a = transform_points(self.poses[mech.cut_faces[drawn, 0]][:, None], mech.cut_points[drawn, 0])
-        b = transform_points(self.poses[mech.cut_faces[drawn, 1]][:, None], mech.cut_points[drawn, 1])
+        ends = getattr(self, "_cut_ends", None)
+        if ends is not None and ends[0] is self.poses:
+            a, b = ends[1][drawn], ends[2][drawn]
+        else:
+            a = transform_points(self.poses[mech.cut_faces[drawn, 0]][:, None], mech.cut_points[drawn, 0])
+            b = transform_points(self.poses[mech.cut_faces[drawn, 1]][:, None], mech.cut_points[drawn, 1])
         self._gap_lines.setData(pos=np.stack([a, b], axis=2).reshape(-1, 3))
         self._gap_lines.setVisible(True)
         if self.label_edges is None:

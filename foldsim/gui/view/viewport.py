@@ -45,7 +45,7 @@ import pyqtgraph.opengl as gl
 from OpenGL import GL
 from PySide6 import QtCore, QtGui, QtOpenGL, QtWidgets
 
-from ...analysis.closure import cut_edge_gaps
+from ...analysis.closure import posed_cut_ends
 from ...analysis.collision import colliding_pairs, panels
 from ...gearing import fold_schedule
 from ...kinematics import poses_at
@@ -135,6 +135,7 @@ class FoldView(CameraControl, Overlays, gl.GLViewWidget):
         self.known = None
         self.solids = None
         self.gaps = np.zeros(0)
+        self._cut_ends = None
         self.gap_tolerance = 0.0
         self.selected_face = -1
         self.selected_hinge = -1
@@ -375,7 +376,13 @@ class FoldView(CameraControl, Overlays, gl.GLViewWidget):
         if not np.array_equal(np.unique(self.colliding), self._colored_hot):
             self._refresh_colors()
         self._update_crossings()
-        self.gaps = cut_edge_gaps(mech, poses)[0] if len(mech.cut_faces) else np.zeros(0)
+        if len(mech.cut_faces):
+            # Both sides' ends once: the gaps and the gap lines (`_update_gaps`) share them.
+            a, b = posed_cut_ends(mech, self.poses)
+            self._cut_ends = (self.poses, a, b)
+            self.gaps = np.linalg.norm(a - b, axis=2).max(axis=1)
+        else:
+            self.gaps = np.zeros(0)
         self._layer.set_open_cuts(self.open_edge_mask())
         self._update_gaps()
         self._update_marks()
