@@ -307,14 +307,11 @@ def gear_clearance(mech, spec, schedule=None, t_from=0.0, t_to=1.0, pairs=None, 
     for c in tested:
         if c in rows and np.isfinite(enough):
             rows[c]["guaranteed_min"] = float(enough)
+    profile = body_speed_profile(mech, schedule.rates, solids)
     if np.isfinite(enough):
         if near is None:
             near = near_bodies(mech, spec, schedule, lo_t, hi_t, pairs, only, enough, tol, prisms, thin)
-        # The coarse bodies hold the fine ones: their speed bounds bound the fine ones' too.
-        profile = body_speed_profile(mech, schedule.rates,
-                                     prisms + gear_solids(mech, spec, pairs, tip=True, tol=tol, coarse=True))
     else:
-        profile = body_speed_profile(mech, schedule.rates, solids)
         near = {tuple(p): (lo_t, hi_t) for p in body_pairs(solids, carrier).tolist()
                 if active[p[0]] or active[p[1]]}
     if not near:
