@@ -32,6 +32,22 @@ def _cell_size(lo, hi):
     return float(np.quantile(extent, 0.5))
 
 
+def later_in_run(run_end):
+    """Index pairs (i, j), i < j, of every entry with each later entry of its run.
+
+    ``run_end`` (n,): for each entry of a sorted array, where its run of equal
+    values ends (``searchsorted(..., side="right")``).
+
+    Examples
+    --------
+    >>> [x.tolist() for x in later_in_run(np.array([2, 2, 3, 5, 5]))]
+    [[0, 3], [1, 4]]
+    """
+    per = run_end - np.arange(1, len(run_end) + 1)
+    i = np.repeat(np.arange(len(run_end)), per)
+    return i, i + 1 + (np.arange(per.sum()) - np.repeat(np.cumsum(per) - per, per))
+
+
 def _block_pairs(lo, hi, frame, cell, origin, active=None):
     """(frame, i, j) rows for boxes lo, hi (n, 3) with frame ids and per-frame indices.
 
@@ -61,9 +77,7 @@ def _block_pairs(lo, hi, frame, cell, origin, active=None):
     run_end = np.searchsorted(key, key, side="right")
     if active is None:
         # Pair every entry with the later entries of its cell.
-        per = run_end - np.arange(1, len(key) + 1)
-        i = np.repeat(np.arange(len(key)), per)
-        j = i + 1 + (np.arange(per.sum()) - np.repeat(np.cumsum(per) - per, per))
+        i, j = later_in_run(run_end)
     else:
         # Pair every active entry with every other entry of its cell, a pair of two
         # active entries from its first only: pairs of passive boxes are never made.

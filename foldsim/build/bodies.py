@@ -12,6 +12,7 @@ import numpy as np
 
 from ..analysis.hulls import convex_items, plane_offsets
 from ..analysis.panels import Panels, _keys, convex_faces, oriented_boxes
+from ..analysis.spatialhash import later_in_run
 from ..analysis.triangles import point_triangle_distance
 from ..kinematics import speed_profile
 
@@ -57,10 +58,7 @@ def body_panels(mech, solids, skip=(), passive=None, pivots=None, cone_solids=No
     centre, radius = item_spheres(tri_points, start, count)
     # Solids of one face: every item paired with the later items of its face's run.
     order = np.argsort(owner, kind="stable")
-    run_end = np.searchsorted(owner[order], owner[order], side="right")
-    per = run_end - np.arange(1, n + 1)
-    i = np.repeat(np.arange(n), per)
-    j = i + 1 + (np.arange(per.sum()) - np.repeat(np.cumsum(per) - per, per))
+    i, j = later_in_run(np.searchsorted(owner[order], owner[order], side="right"))
     pairs = np.concatenate([np.column_stack([order[i], order[j]]), np.asarray(skip, np.int64).reshape(-1, 2)])
     box_centre, box_axes, box_half = oriented_boxes(tri_points, start)
     skip_keys = np.unique(_keys(pairs, n))
