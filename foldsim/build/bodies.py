@@ -14,7 +14,7 @@ from ..analysis.hulls import convex_items, plane_offsets
 from ..analysis.panels import Panels, _keys, convex_faces, oriented_boxes
 from ..analysis.spatialhash import later_in_run
 from ..analysis.triangles import point_triangle_distance
-from ..kinematics import speed_profile
+from ..kinematics import speed_profile, turn_profile
 
 
 def body_panels(mech, solids, skip=(), passive=None, pivots=None, cone_solids=None):
@@ -233,13 +233,8 @@ def body_speed_profile(mech, rates, solids):
     if not len(moved):
         return out
     mids = mech.axes.mean(axis=1)
-    # chained[f, d]: |rate| of the hinge at depth d on f's chain (0 past its end).
-    chained = np.zeros((mech.n_faces, profile.shape[1] - 1))
-    for d, level in enumerate(mech.levels):
-        level = np.asarray(level, np.int64)
-        chained[mech.child[level]] = chained[mech.parent[level]]
-        chained[mech.child[level], d] = np.abs(rates[level])
-    tail = np.cumsum(chained[:, ::-1], axis=1)[:, ::-1]
+    # tail[f, d]: the |rates| of the hinges on f's chain more than d steps below the root.
+    tail = turn_profile(mech, rates)
     far_face = np.zeros(mech.n_faces)
     for f in np.unique(faces[moved]).tolist():
         far_face[f] = np.linalg.norm(mech.flat_faces[f] - mids[mech.face_hinge[f]], axis=1).max()
@@ -249,5 +244,5 @@ def body_speed_profile(mech, rates, solids):
     far_point = np.linalg.norm(points - mids[np.maximum(entry, 0)][owner], axis=1)
     far_body = np.maximum.reduceat(far_point, np.concatenate([[0], np.cumsum(count)[:-1]]))
     extra = np.where(entry >= 0, np.maximum(0.0, far_body - far_face[faces]), 0.0)
-    out[:, :-1] += extra[:, None] * tail[faces]
+    out += extra[:, None] * tail[faces]
     return out

@@ -461,9 +461,9 @@ def sector_frusta(origin, axial, e1, e2, x_range, r_range, sector, segments):
     ``sector`` (n, 2). Returns (n, k, 3, 3): bodies that are whole frusta and
     sectors have different triangle counts, so one call takes only one kind.
     """
-    spans = sector[:, 1] - sector[:, 0]
-    closed = bool((spans >= 2.0 * math.pi - 1e-12).all())
-    if not closed and (spans >= 2.0 * math.pi - 1e-12).any():
+    whole = _whole(sector.T)
+    closed = bool(whole.all())
+    if not closed and whole.any():
         raise ValueError("sector_frusta: whole frusta and sectors in one call")
     rings, centres = [], []
     for end in (0, 1):
@@ -489,6 +489,11 @@ def sector_frusta(origin, axial, e1, e2, x_range, r_range, sector, segments):
     flip = np.einsum("ij,ij->i", np.cross(e1, e2), axial) * (x_range[:, 1] - x_range[:, 0]) < 0
     out[flip] = out[flip][:, :, ::-1]
     return out
+
+
+def _whole(sector):
+    """Whether a sector (lo, hi), or each of many (two arrays), spans a whole turn."""
+    return np.asarray(sector[1]) - np.asarray(sector[0]) >= 2.0 * math.pi - 1e-12
 
 
 def _segments(span, per_turn=SEGMENTS_PER_TURN):
@@ -558,8 +563,7 @@ def _pair_solids(pairs, tip, coarse):
     meshes = [None] * len(rows)
     groups = {}
     for r, (_, _, _, frame, segments) in enumerate(rows):
-        whole = frame[6][1] - frame[6][0] >= 2.0 * math.pi - 1e-12
-        groups.setdefault((segments, whole), []).append(r)
+        groups.setdefault((segments, _whole(frame[6])), []).append(r)
     for (segments, _), members in groups.items():
         columns = [np.array([rows[r][3][c] for r in members], float) for c in range(7)]
         for r, tris in zip(members, sector_frusta(*columns, segments)):
@@ -567,12 +571,9 @@ def _pair_solids(pairs, tip, coarse):
     out = [[] for _ in pairs]
     for (n, k, rod, _, _), tris in zip(rows, meshes):
         p, g = pairs[n], pairs[n].gears[k]
-        if rod:
-            out[n].append(Solid(g.face, f"coupling {p.coupling} rod on hinge {g.hinge}", "rod", tris, p.coupling,
-                                g.hinge))
-        else:
-            out[n].append(Solid(g.face, f"coupling {p.coupling} gear on hinge {g.hinge}", "gear", tris, p.coupling,
-                                g.hinge))
+        kind = "rod" if rod else "gear"
+        out[n].append(Solid(g.face, f"coupling {p.coupling} {kind} on hinge {g.hinge}", kind, tris, p.coupling,
+                            g.hinge))
     return out
 
 

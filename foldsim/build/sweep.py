@@ -228,8 +228,7 @@ def _may_come_near(mech, schedule, solids, profile, active, lo_t, hi_t, enough):
     ``(g0 + g1 - L dt) / 2``; a solid whose bound stays above ``enough`` from every
     active one over the whole range never comes that near.
     """
-    count = np.array([len(s.triangles) for s in solids], np.int64)
-    centre, radius = item_spheres(np.concatenate([s.triangles for s in solids]), np.cumsum(count) - count, count)
+    centre, radius = _spheres(solids)
     faces = np.array([s.face for s in solids], np.int64)
     t = np.linspace(lo_t, hi_t, REACH_STEPS + 1)
     poses = poses_at(mech, schedule, t)[:, faces]

@@ -13,6 +13,7 @@ import pyqtgraph.opengl as gl
 from OpenGL import GL
 from PySide6 import QtCore, QtGui, QtWidgets
 
+from ...analysis.closure import posed_cut_ends
 from ...analysis.collision import triangle_pairs
 from ...gearing import fold_angles
 from ...geometry import transform_points
@@ -199,12 +200,10 @@ class Overlays:
             self._gap_lines.setVisible(False)
             self._labels = []
             return
-        ends = getattr(self, "_cut_ends", None)
-        if ends is not None and ends[0] is self.poses:
-            a, b = ends[1][drawn], ends[2][drawn]
-        else:
-            a = transform_points(self.poses[mech.cut_faces[drawn, 0]][:, None], mech.cut_points[drawn, 0])
-            b = transform_points(self.poses[mech.cut_faces[drawn, 1]][:, None], mech.cut_points[drawn, 1])
+        # The ends `set_t` posed for the gaps, unless the poses changed since.
+        if self._cut_ends is None or self._cut_ends[0] is not self.poses:
+            self._cut_ends = (self.poses, *posed_cut_ends(mech, self.poses))
+        a, b = self._cut_ends[1][drawn], self._cut_ends[2][drawn]
         self._gap_lines.setData(pos=np.stack([a, b], axis=2).reshape(-1, 3))
         self._gap_lines.setVisible(True)
         if self.label_edges is None:

@@ -378,9 +378,8 @@ class FoldView(CameraControl, Overlays, gl.GLViewWidget):
         self._update_crossings()
         if len(mech.cut_faces):
             # Both sides' ends once: the gaps and the gap lines (`_update_gaps`) share them.
-            a, b = posed_cut_ends(mech, self.poses)
-            self._cut_ends = (self.poses, a, b)
-            self.gaps = np.linalg.norm(a - b, axis=2).max(axis=1)
+            self._cut_ends = (self.poses, *posed_cut_ends(mech, self.poses))
+            self.gaps = np.linalg.norm(self._cut_ends[1] - self._cut_ends[2], axis=2).max(axis=1)
         else:
             self.gaps = np.zeros(0)
         self._layer.set_open_cuts(self.open_edge_mask())
