@@ -183,3 +183,8 @@ def fold_angles(schedule, t):
         Radians.
     """
     return np.asarray(t, dtype=float)[:, None] * schedule.rates[None, :]
+
+
+def hinge_angles(schedule, t, hinges):
+    """Fold angle of hinge ``hinges[r]`` at drive value ``t[r]``, (n,) radians (as `fold_angles`)."""
+    return np.asarray(t, dtype=float) * schedule.rates[np.asarray(hinges, np.int64)]

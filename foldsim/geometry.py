@@ -119,6 +119,29 @@ def line_rotations(points, angles):
     return out
 
 
+def corner_bounds(points):
+    """Lower and upper corners (..., 3) of the boxes around stacks of points (..., V, 3).
+
+    The same values as ``points.min(axis=-2), points.max(axis=-2)``; an elementwise
+    minimum over the V points runs several times faster than numpy's reduction over
+    a middle axis of few entries (the sweep's boxes: 3 to a few dozen corners).
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> lo, hi = corner_bounds(np.array([[0.0, 2.0, 1.0], [1.0, -1.0, 3.0]]))
+    >>> lo.tolist(), hi.tolist()
+    ([0.0, -1.0, 1.0], [1.0, 2.0, 3.0])
+    """
+    points = np.asarray(points)
+    lo = points[..., 0, :].copy()
+    hi = lo.copy()
+    for v in range(1, points.shape[-2]):
+        np.minimum(lo, points[..., v, :], out=lo)
+        np.maximum(hi, points[..., v, :], out=hi)
+    return lo, hi
+
+
 def rotate_rows(rot, points):
     """Rotate stacks of points: ``points[..., v, :]`` by ``rot[...]``.
 

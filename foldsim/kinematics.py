@@ -11,7 +11,7 @@ import weakref
 import numpy as np
 
 from . import geometry
-from .gearing import fold_angles
+from .gearing import fold_angles, hinge_angles
 
 
 _TERMS = weakref.WeakKeyDictionary()
@@ -110,6 +110,84 @@ def face_poses(mech, angles, faces=None):
             work[at[lo:hi] + 1] = np.matmul(work[parent_at[at[lo:hi]]], rot[lo:hi])
         rows = face_at[np.asarray(faces, np.int64)]
     return np.ascontiguousarray(work[rows].transpose(1, 0, 2, 3))
+
+
+def row_poses(mech, schedule, faces, t):
+    """Pose of one face at one drive value per row: face ``faces[r]`` at ``t[r]``.
+
+    The same transforms as `poses_at` (each the product of its chain's hinge
+    rotations from the root down, from the same Rodrigues terms), for rows whose
+    faces and drive values both vary: every row's chain rotations are made at once
+    and multiplied down the chains for all rows together, so the cost is the rows
+    times the tree's depth, where `poses_at` on the rows' drive values would
+    pose every chain at every one of them.
+
+    Parameters
+    ----------
+    mech : Mechanism
+    schedule : Schedule
+    faces : (n,) int
+    t : (n,) float
+
+    Returns
+    -------
+    (n, 4, 4) float
+    """
+    faces = np.asarray(faces, np.int64).ravel()
+    t = np.asarray(t, float).ravel()
+    table = _ancestry(mech)
+    out = np.empty((len(faces), 4, 4))
+    step = max(1, ROW_BUDGET // max(1, table.shape[1]))
+    for lo in range(0, len(faces), step):
+        out[lo:lo + step] = _chain_products(mech, schedule, table[faces[lo:lo + step]], t[lo:lo + step])
+    return out
+
+
+ROW_BUDGET = 250_000
+"""Chain rotations (4 x 4 each) `row_poses` holds at once."""
+
+
+def _chain_products(mech, schedule, chain, t):
+    """(n, 4, 4): the product, root end first, of each row's hinge rotations ``chain`` (n, D), -1 for none."""
+    n, depth = chain.shape
+    keep = chain.max(axis=0) >= 0 if n else np.zeros(0, bool)
+    chain = chain[:, :int(np.flatnonzero(keep)[-1]) + 1] if keep.any() else chain[:, :0]
+    rot = np.broadcast_to(np.eye(4), chain.shape + (4, 4)).copy()
+    r, d = np.nonzero(chain >= 0)
+    if len(r):
+        h = chain[r, d]
+        k = _step_of(mech)[h]
+        fixed, along_cos, along_sin = _rodrigues_terms(mech)
+        turn = hinge_angles(schedule, t[r], h)[:, None, None]
+        rot[r, d, :3, :] = fixed[k] + np.cos(turn) * along_cos[k] + np.sin(turn) * along_sin[k]
+    out = np.broadcast_to(np.eye(4), (n, 4, 4)).copy()
+    for d in range(rot.shape[1]):
+        np.matmul(out, rot[:, d], out=out)
+    return out
+
+
+def _step_of(mech):
+    """(H,) int: each hinge's row in the tree walk (`_walk`)."""
+    order = _walk(mech)[0]
+    step_of = np.empty(mech.n_hinges, np.int64)
+    step_of[order] = np.arange(len(order))
+    return step_of
+
+
+_ANCESTRY = weakref.WeakKeyDictionary()
+
+
+def _ancestry(mech):
+    """(F, D) int: the hinges on each face's path from the root, root end first, -1 past its depth."""
+    table = _ANCESTRY.get(mech)
+    if table is None:
+        table = np.full((mech.n_faces, len(mech.levels)), -1, np.int64)
+        for d, level in enumerate(mech.levels):
+            level = np.asarray(level, np.int64)
+            table[mech.child[level]] = table[mech.parent[level]]
+            table[mech.child[level], d] = level
+        _ANCESTRY[mech] = table
+    return table
 
 
 _WALKS = weakref.WeakKeyDictionary()

@@ -247,7 +247,7 @@ def _fcl_distance(fcl, ta, tb):
 def test_solid_distances_agree_with_python_fcl(doc):
     fcl = pytest.importorskip("fcl")
     from foldsim.build.gears import build_solids
-    from foldsim.build.sweep import body_pairs, solid_distances
+    from foldsim.build.sweep import body_pairs, row_distances, solid_distances
     from foldsim.gearing import fold_schedule
     from foldsim.geometry import transform_points
     from foldsim.kinematics import poses_at
@@ -258,6 +258,7 @@ def test_solid_distances_agree_with_python_fcl(doc):
     assert len(tested)
     t = np.linspace(0.0, 1.0, 7)
     poses = poses_at(mech, fold_schedule(mech), t)
+    every = []
     for pair in tested:
         ours = solid_distances(mech, solids, pair, poses)
         a, b = (solids[i] for i in pair)
@@ -265,6 +266,13 @@ def test_solid_distances_agree_with_python_fcl(doc):
         theirs = [_fcl_distance(fcl, transform_points(poses[k, a.face], a.triangles),
                                 transform_points(poses[k, b.face], b.triangles)) for k in range(len(t))]
         np.testing.assert_allclose(ours, theirs, atol=1e-6 * mech.size)
+        every += theirs
+    # All pairs at all t as rows of one call (rows of different solids mixed).
+    rows = np.repeat(tested, len(t), axis=0)
+    k = np.tile(np.arange(len(t)), len(tested))
+    faces = np.array([s.face for s in solids])[rows]
+    mixed = row_distances(solids, rows, np.stack([poses[k, faces[:, 0]], poses[k, faces[:, 1]]], axis=1))
+    np.testing.assert_allclose(mixed, every, atol=1e-6 * mech.size)
 
 
 def test_gear_clearance_sweep_is_within_its_resolution_of_dense_fcl_samples():

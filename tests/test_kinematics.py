@@ -14,7 +14,7 @@ from scipy.spatial.transform import Rotation
 from foldsim.analysis.closure import cut_edge_gaps
 from foldsim.gearing import fold_schedule
 from foldsim import geometry
-from foldsim.kinematics import face_poses, poses_at, speed_bounds
+from foldsim.kinematics import face_poses, poses_at, row_poses, speed_bounds
 from foldsim.model import Coupling, build_mechanism
 
 from helpers import (
@@ -204,6 +204,24 @@ def test_poses_of_some_faces_match_scipy(seed, root, angles, faces):
     for k, f in enumerate(faces):
         np.testing.assert_allclose(posed_one(some[0, k], mech.flat_faces[f]), reference[f], rtol=0, atol=1e-11)
     np.testing.assert_array_equal(some, face_poses(mech, np.stack([angles, -angles]))[:, faces])
+
+
+@PROPERTY
+@given(seeds, st.integers(0, 3), st.lists(st.floats(0.2, 2.5), min_size=3, max_size=3),
+       st.lists(st.tuples(st.integers(0, 3), st.floats(-1.0, 1.0)), min_size=1, max_size=6))
+def test_poses_one_face_and_drive_value_per_row_match_scipy(seed, root, closed, rows):
+    # row_poses: face f at drive value t per row; each must be the subtree turns at
+    # the schedule's fold angles, composed with scipy's Rotation (independent reference).
+    pts, quads, hinges = flat_chain(seed)
+    mech = build_mechanism(pts, quads, hinges, root=root, state="flat", closed_angles=closed)
+    schedule = fold_schedule(mech)
+    faces, t = np.array([f for f, _ in rows]), np.array([x for _, x in rows])
+    ours = row_poses(mech, schedule, faces, t)
+    assert ours.shape == (len(rows), 4, 4)
+    for k, (f, x) in enumerate(rows):
+        reference = turn_subtrees([pts[q] for q in quads], quads, hinges, root, x * schedule.rates)
+        np.testing.assert_allclose(posed_one(ours[k], mech.flat_faces[f]), reference[f], rtol=0, atol=1e-11)
+        np.testing.assert_allclose(ours[k], poses_at(mech, schedule, [x])[0, f], rtol=0, atol=1e-12)
 
 
 def posed_one(pose, points):

@@ -14,7 +14,7 @@ from dataclasses import dataclass
 import numpy as np
 from scipy.spatial import cKDTree
 
-from ..geometry import rotate_rows, transform_points
+from ..geometry import corner_bounds, rotate_rows, transform_points
 from ..kinematics import face_poses
 from ..tolerances import DEFAULT
 from . import triangles
@@ -347,7 +347,7 @@ def _face_boxes(pan, poses):
     if (pan.hull_ok is not None and len(pan.hull_ok) and pan.hull_ok.all()
             and pan.hull_points.shape[1] <= BOX_CORNERS):
         pts = rotate_rows(poses[..., :3, :3], pan.hull_points) + poses[:, :, None, :3, 3]
-        return pts.min(axis=2), pts.max(axis=2)
+        return corner_bounds(pts)
     if pan.box_axes is not None:
         rot, move = poses[..., :3, :3], poses[..., :3, 3]
         centre = np.einsum("tfij,fj->tfi", rot, pan.box_centre) + move
@@ -355,9 +355,9 @@ def _face_boxes(pan, poses):
         axes = rotate_rows(rot, pan.box_axes)
         reach = np.einsum("tfki,fk->tfi", np.abs(axes), pan.box_half)
         return centre - reach, centre + reach
-    pts = _posed_triangles(pan, poses)
-    lo = np.minimum.reduceat(pts.min(axis=2), pan.start, axis=1)
-    hi = np.maximum.reduceat(pts.max(axis=2), pan.start, axis=1)
+    lo, hi = corner_bounds(_posed_triangles(pan, poses))
+    lo = np.minimum.reduceat(lo, pan.start, axis=1)
+    hi = np.maximum.reduceat(hi, pan.start, axis=1)
     return lo, hi
 
 

@@ -38,8 +38,8 @@ from ..analysis.narrowphase import pair_state, triangle_distance
 from ..analysis.panels import _face_boxes, _in_sorted, _keys, panels
 from ..analysis.sweep import collision_intervals
 from ..gearing import fold_schedule
-from ..geometry import rotate_rows
-from ..kinematics import common_depth, poses_at
+from ..geometry import corner_bounds, rotate_rows
+from ..kinematics import common_depth, poses_at, row_poses
 from ..tolerances import DEFAULT
 from .bodies import body_panels, body_speed_profile, item_spheres
 from .gears import gear_pairs, gear_solids
@@ -91,17 +91,18 @@ def _spheres(solids):
     return item_spheres(np.concatenate([s.triangles for s in solids]), np.cumsum(count) - count, count)
 
 
-def _sphere_bounds(centre, radius, pair, poses):
-    """(T,) lower bound on the distance of a pair of solids from their spheres; poses (T, 2, 4, 4) of their faces."""
-    a, b = pair
-    ca = np.einsum("tij,j->ti", poses[:, 0, :3, :3], centre[a]) + poses[:, 0, :3, 3]
-    cb = np.einsum("tij,j->ti", poses[:, 1, :3, :3], centre[b]) + poses[:, 1, :3, 3]
-    return np.maximum(np.linalg.norm(ca - cb, axis=1) - radius[a] - radius[b], 0.0)
+def _sphere_bounds(centre, radius, pairs, poses):
+    """(n,) lower bound on the distance of solid pairs (n, 2) from their spheres; poses (n, 2, 4, 4) of their faces."""
+    a, b = pairs[:, 0], pairs[:, 1]
+    ca = np.einsum("nij,nj->ni", poses[:, 0, :3, :3], centre[a]) + poses[:, 0, :3, 3]
+    cb = np.einsum("nij,nj->ni", poses[:, 1, :3, :3], centre[b]) + poses[:, 1, :3, 3]
+    return np.maximum(np.sqrt(((ca - cb) ** 2).sum(axis=1)) - radius[a] - radius[b], 0.0)
 
 
-def _corners(solid):
-    """(n, 3) float: the solid's distinct corners."""
-    return np.unique(solid.triangles.reshape(-1, 3), axis=0)
+def _pair_poses(mech, schedule, faces, t):
+    """(n, 2, 4, 4): the poses of face pairs ``faces`` (n, 2) at drive values t (n,) (`kinematics.row_poses`)."""
+    faces = np.asarray(faces, np.int64).reshape(-1, 2)
+    return row_poses(mech, schedule, faces.ravel(), np.repeat(t, 2)).reshape(-1, 2, 4, 4)
 
 
 def solid_distances(mech, solids, pair, poses, columns=None):
@@ -120,57 +121,110 @@ def solid_distances(mech, solids, pair, poses, columns=None):
     Returns
     -------
     (T,) float
-        0 where the meshes cross, touch or one holds the other.
+        0 where the meshes cross, touch or one holds the other (`row_distances`).
     """
-    a, b = solids[pair[0]], solids[pair[1]]
-    fa, fb = (a.face, b.face) if columns is None else columns
-    pa = _posed(poses[:, fa], a.triangles)
-    pb = _posed(poses[:, fb], b.triangles)
-    ca, cb = pa.mean(axis=2), pb.mean(axis=2)
-    ra = np.linalg.norm(a.triangles - a.triangles.mean(axis=1, keepdims=True), axis=2).max(axis=1)
-    rb = np.linalg.norm(b.triangles - b.triangles.mean(axis=1, keepdims=True), axis=2).max(axis=1)
-    va, vb = _corners(a), _corners(b)
-    pva = _posed(poses[:, fa], va)
-    pvb = _posed(poses[:, fb], vb)
-    out = np.empty(len(poses))
-    for start in range(0, len(poses), CHUNK):
-        sl = slice(start, start + CHUNK)
-        # Two corners' distance bounds the bodies' distance from above; a pair of
-        # triangles whose spheres or boxes lie farther apart cannot be the nearest.
-        bound = np.linalg.norm(pva[sl, :, None] - pvb[sl, None], axis=3).reshape(len(pva[sl]), -1).min(axis=1)
-        centre = np.linalg.norm(ca[sl, :, None] - cb[sl, None], axis=3) - ra[None, :, None] - rb[None, None]
-        lo_a, hi_a = pa[sl].min(axis=2), pa[sl].max(axis=2)
-        lo_b, hi_b = pb[sl].min(axis=2), pb[sl].max(axis=2)
-        gap = np.maximum(np.maximum(lo_a[:, :, None] - hi_b[:, None], lo_b[:, None] - hi_a[:, :, None]), 0.0)
-        near = np.maximum(centre, np.linalg.norm(gap, axis=3)) <= bound[:, None, None]
-        kt, ia, ib = np.nonzero(near)
-        dist = triangle_distance(pa[sl][kt, ia], pb[sl][kt, ib]) if len(kt) else np.zeros(0)
-        best = np.full(len(near), np.inf)
-        np.minimum.at(best, kt, dist)
-        out[sl] = best
-    apart = np.flatnonzero(out > 0)
-    if len(apart):
-        inside = np.maximum(np.abs(_winding_batch(pa[apart, 0, 0], pb[apart])),
-                            np.abs(_winding_batch(pb[apart, 0, 0], pa[apart])))
-        out[apart[inside > 0.5]] = 0.0
+    fa, fb = (solids[pair[0]].face, solids[pair[1]].face) if columns is None else columns
+    return row_distances(solids, np.tile(np.asarray(pair, np.int64), (len(poses), 1)),
+                         np.stack([poses[:, fa], poses[:, fb]], axis=1))
+
+
+PAIR_BUDGET = 200_000
+"""Triangle pairs `row_distances` holds at once."""
+
+
+def row_distances(solids, pairs, poses):
+    """Exact distance between two posed solids, one pair and pose per row.
+
+    Every triangle of one solid against every triangle of the other, with the
+    triangle pairs that cannot be the nearest left out: a pair whose bounding
+    spheres or boxes lie farther apart than two triangles' centroids of the row (an
+    upper bound on the solids' distance) does not hold it. Rows of any solids go
+    through one `triangle_distance` call, in blocks of `PAIR_BUDGET` pairs.
+
+    Parameters
+    ----------
+    solids : list of Solid
+    pairs : (n, 2) int
+        The two solids of each row.
+    poses : (n, 2, 4, 4) float
+        Their faces' poses at that row.
+
+    Returns
+    -------
+    (n,) float
+        0 where the meshes cross, touch or one holds the other (the winding number
+        of a corner of each about the other).
+    """
+    pairs = np.asarray(pairs, np.int64).reshape(-1, 2)
+    out = np.full(len(pairs), np.inf)
+    if not len(pairs):
+        return out
+    used, local = np.unique(pairs, return_inverse=True)
+    local = local.reshape(-1, 2)
+    tris = [solids[i].triangles for i in used.tolist()]
+    count = np.array([len(t) for t in tris], np.int64)
+    start = np.cumsum(count) - count
+    flat = np.concatenate(tris)
+    centre = flat.mean(axis=1)
+    radius = np.sqrt(((flat - centre[:, None]) ** 2).sum(axis=2)).max(axis=1)
+    na, nb = count[local[:, 0]], count[local[:, 1]]
+    per = na * nb
+    block = np.cumsum(per) // PAIR_BUDGET
+    bounds = np.concatenate([[0], np.flatnonzero(np.diff(block)) + 1, [len(pairs)]])
+    for lo, hi in zip(bounds[:-1], bounds[1:]):
+        rows = np.arange(lo, hi)
+        side = []
+        for k, n in ((0, na[rows]), (1, nb[rows])):
+            row = np.repeat(np.arange(len(rows)), n)
+            idx = np.repeat(start[local[rows, k]] - (np.cumsum(n) - n), n) + np.arange(n.sum())
+            m = poses[rows[row], k]
+            tri = rotate_rows(m[:, :3, :3], flat[idx]) + m[:, None, :3, 3]
+            mid = np.einsum("nij,nj->ni", m[:, :3, :3], centre[idx]) + m[:, :3, 3]
+            side.append((tri, mid, radius[idx], np.cumsum(n) - n))
+        (ta, ma, ra, oa), (tb, mb, rb, ob) = side
+        # Triangle pair k of row r: a's k // nb[r], b's k % nb[r].
+        p = per[rows]
+        row = np.repeat(np.arange(len(rows)), p)
+        k = np.arange(p.sum()) - np.repeat(np.cumsum(p) - p, p)
+        width = nb[rows][row]
+        i, j = oa[row] + k // width, ob[row] + k % width
+        gap = np.sqrt(((ma[i] - mb[j]) ** 2).sum(axis=1))
+        bound = np.full(len(rows), np.inf)
+        np.minimum.at(bound, row, gap)
+        lo_a, hi_a = corner_bounds(ta)
+        lo_b, hi_b = corner_bounds(tb)
+        box = np.maximum(np.maximum(lo_a[i] - hi_b[j], lo_b[j] - hi_a[i]), 0.0)
+        near = np.maximum(gap - ra[i] - rb[j], np.sqrt((box * box).sum(axis=1))) <= bound[row]
+        best = np.full(len(rows), np.inf)
+        np.minimum.at(best, row[near], triangle_distance(ta[i[near]], tb[j[near]]))
+        apart = np.flatnonzero(best > 0)
+        if len(apart):
+            inside = np.maximum(np.abs(_winding_rows(ta[oa[apart], 0], tb, ob[apart], nb[rows][apart])),
+                                np.abs(_winding_rows(tb[ob[apart], 0], ta, oa[apart], na[rows][apart])))
+            best[apart[inside > 0.5]] = 0.0
+        out[rows] = best
     return out
 
 
-def _posed(poses, points):
-    """Points (..., 3) of a solid's flat frame at every pose (T, 4, 4): (T, ..., 3)."""
-    shape = points.shape
-    return (rotate_rows(poses[:, :3, :3], points.reshape(-1, 3)) + poses[:, None, :3, 3]).reshape(
-        (len(poses),) + shape)
+def _winding_rows(points, tris, first, count):
+    """(m,) winding number of points[r] (3,) about the closed mesh ``tris[first[r]:first[r] + count[r]]``."""
+    row = np.repeat(np.arange(len(points)), count)
+    idx = np.repeat(first - (np.cumsum(count) - count), count) + np.arange(count.sum())
+    return np.bincount(row, _solid_angles(points[row], tris[idx]), minlength=len(points)) / (4.0 * np.pi)
+
+
+def _solid_angles(points, tris):
+    """(...,) solid angle of triangles tris (..., 3, 3) seen from points (..., 3) (Van Oosterom & Strackee 1983)."""
+    a, b, c = (tris[..., k, :] - points for k in range(3))
+    la, lb, lc = (np.sqrt((x * x).sum(axis=-1)) for x in (a, b, c))
+    det = (a * np.cross(b, c)).sum(axis=-1)
+    den = la * lb * lc + (a * b).sum(axis=-1) * lc + (b * c).sum(axis=-1) * la + (c * a).sum(axis=-1) * lb
+    return 2.0 * np.arctan2(det, den)
 
 
 def _winding_batch(points, tris):
     """(T,) winding number of points[k] (3,) about the closed mesh tris[k] (n, 3, 3)."""
-    a, b, c = (tris[:, :, k] - points[:, None] for k in range(3))
-    la, lb, lc = (np.linalg.norm(x, axis=-1) for x in (a, b, c))
-    det = np.einsum("tij,tij->ti", a, np.cross(b, c))
-    den = (la * lb * lc + np.einsum("tij,tij->ti", a, b) * lc + np.einsum("tij,tij->ti", b, c) * la
-           + np.einsum("tij,tij->ti", c, a) * lb)
-    return (2.0 * np.arctan2(det, den)).sum(axis=1) / (4.0 * np.pi)
+    return _solid_angles(points[:, None], tris).sum(axis=1) / (4.0 * np.pi)
 
 
 def near_bodies(mech, spec, schedule=None, t_from=0.0, t_to=1.0, pairs=None, only=None, enough=np.inf,
@@ -328,14 +382,28 @@ def gear_clearance(mech, spec, schedule=None, t_from=0.0, t_to=1.0, pairs=None, 
     # A pair near only at one drive value (the first pose) is measured there.
     grids = [np.linspace(max(lo_t, a), min(hi_t, b), INITIAL_STEPS + 1) if b > a else np.array([a])
              for a, b in spans]
-    # Each pair's two faces are posed alone (`kinematics.face_poses` walks only their chains).
-    first = [_sphere_bounds(centre, radius, pair, poses_at(mech, schedule, g, faces=faces[pair]))
-             for pair, g in zip(work, grids)]
+    # Every pair's start grid at once, each row posing only its pair's two faces.
+    sizes = np.array([len(g) for g in grids], np.int64)
+    owner = np.repeat(np.arange(len(work)), sizes)
+    at = np.concatenate(grids)
+    low = _sphere_bounds(centre, radius, work[owner], _pair_poses(mech, schedule, faces[work[owner]], at))
+    first = np.split(low, np.cumsum(sizes)[:-1])
+    # Each pair is first measured where its bound is least: that distance often
+    # settles the rest (bodies in contact, a clear nearest pose). Every pair near
+    # enough to be here is measured once at least (also over a range shorter than
+    # the resolution, or at one t); all pairs' first measurements go together.
+    seed = np.array([int(np.argmin(f)) for f in first], np.int64)
+    seed_t = at[np.cumsum(sizes) - sizes + seed]
+    seed_d = row_distances(solids, work, _pair_poses(mech, schedule, faces[work], seed_t))
     best = {}
+    for n, d in enumerate(seed_d.tolist()):
+        for c in couplings[n]:
+            best[c] = min(best.get(c, np.inf), d)
     for n in np.argsort([f.min() for f in first]):
         pair, lip = work[n], rate[n]
         ts, lows = grids[n].copy(), first[n].copy()
         exact = np.zeros(len(ts), bool)
+        lows[seed[n]], exact[seed[n]] = seed_d[n], True
         while True:
             goal = max(best.get(c, np.inf) for c in couplings[n])
             order = np.argsort(ts)
@@ -347,15 +415,9 @@ def gear_clearance(mech, spec, schedule=None, t_from=0.0, t_to=1.0, pairs=None, 
             ends[:-1] |= active_
             ends[1:] |= active_
             todo = np.flatnonzero(ends & ~exact & (lows < goal))
-            if not exact.any():
-                # A pair is first measured where its bound is least: that distance
-                # often settles the rest (bodies in contact, a clear nearest pose).
-                # Every pair near enough to be here is measured once at least (also
-                # over a range shorter than the resolution, or at one t).
-                todo = np.array([int(todo[np.argmin(lows[todo])]) if len(todo) else int(np.argmin(lows))])
             if len(todo):
-                d = solid_distances(mech, solids, pair, poses_at(mech, schedule, ts[todo], faces=faces[pair]),
-                                    columns=(0, 1))
+                d = row_distances(solids, np.tile(pair, (len(todo), 1)),
+                                  _pair_poses(mech, schedule, np.tile(faces[pair], (len(todo), 1)), ts[todo]))
                 lows[todo], exact[todo] = d, True
                 for c in couplings[n]:
                     best[c] = min(best.get(c, np.inf), float(d.min()))
@@ -364,8 +426,9 @@ def gear_clearance(mech, spec, schedule=None, t_from=0.0, t_to=1.0, pairs=None, 
                 break
             mid = 0.5 * (ts[:-1][active_] + ts[1:][active_])
             ts = np.concatenate([ts, mid])
-            lows = np.concatenate([lows, _sphere_bounds(centre, radius, pair,
-                                                        poses_at(mech, schedule, mid, faces=faces[pair]))])
+            lows = np.concatenate([lows, _sphere_bounds(centre, radius, np.tile(pair, (len(mid), 1)),
+                                                        _pair_poses(mech, schedule,
+                                                                    np.tile(faces[pair], (len(mid), 1)), mid))])
             exact = np.concatenate([exact, np.zeros(len(mid), bool)])
         floor = float(bound.min()) if len(bound) else float(lows.min())
         for c in couplings[n]:
