@@ -120,21 +120,24 @@ def designed(k):
 def sweep_rows(k):
     import time
 
-    from foldsim.analysis.collision import collision_intervals
+    from foldsim.analysis.collision import collision_intervals, panels
     from foldsim.build.sweep import RESOLUTION, gear_clearance, panel_clashes
 
     mech = designed(k)
     spec = build_spec(mech)
     schedule = fold_schedule(mech)
     start = time.perf_counter()
-    thin = collision_intervals(mech, schedule)
+    pan = panels(mech)
+    thin = collision_intervals(mech, schedule, pan=pan)
     thin_s = time.perf_counter() - start
+    # As `check` runs them: on the thin panels its own sweep made.
     start = time.perf_counter()
-    clashes = panel_clashes(mech, spec, schedule)
+    clashes = panel_clashes(mech, spec, schedule, thin=pan)
     clash_s = time.perf_counter() - start
     floor = RESOLUTION * mech.size
     start = time.perf_counter()
-    rows = gear_clearance(mech, spec, schedule, enough=max(2.0 * spec.clearance, spec.clearance + 2.0 * floor))
+    rows = gear_clearance(mech, spec, schedule, enough=max(2.0 * spec.clearance, spec.clearance + 2.0 * floor),
+                          thin=pan)
     gear_s = time.perf_counter() - start
     near = sum(r["min_clearance"] is not None for r in rows)
     print(f"(d) geodesic:{k}, {mech.n_faces} panels, {len(rows)} gear pairs: thin sweep {thin_s:.2f} s "

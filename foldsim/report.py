@@ -84,7 +84,7 @@ def check(mech, t_from=0.0, t_to=1.0, gap_tol=None, clearance=0.0, sheet=False, 
         problems.append(f"{len(collisions)} collision(s) between panels")
     if sheet and len(overlap):
         problems.append(f"the flat layout overlaps itself ({len(overlap)} pair(s))")
-    built = _build_part(mech, schedule, t_from, t_to, problems, tol, tolerance, end)
+    built = _build_part(mech, schedule, t_from, t_to, problems, tol, tolerance, end, pan)
     return {
         "model": mech.name,
         "units": mech.units,
@@ -142,8 +142,12 @@ def build_checks(mech, schedule=None, t_from=0.0, t_to=1.0, gap_tol=None, tol=DE
     return keys, problems
 
 
-def _build_part(mech, schedule, t_from, t_to, problems, tol, tolerance, end):
-    """The build keys (`build_checks`), for a file with a ``build`` object (docs/build.md)."""
+def _build_part(mech, schedule, t_from, t_to, problems, tol, tolerance, end, thin=None):
+    """The build keys (`build_checks`), for a file with a ``build`` object (docs/build.md).
+
+    ``thin``: the thin panels (`analysis.panels.panels`) when the caller has them;
+    every sweep here takes its pivoting pairs from them.
+    """
     from dataclasses import replace
 
     from .build.gears import gear_pairs
@@ -156,6 +160,7 @@ def _build_part(mech, schedule, t_from, t_to, problems, tol, tolerance, end):
     spec = build_spec(mech, tol=tol)
     if spec is None:
         return {}
+    thin = panels(mech, tol) if thin is None else thin
     stops = stop_overruns(spec, schedule, t_from, t_to)
     passed = [row for row in stops if row["overrun_deg"] > 0]
     if passed:
@@ -171,9 +176,9 @@ def _build_part(mech, schedule, t_from, t_to, problems, tol, tolerance, end):
     floor = RESOLUTION * mech.size
     enough = max(2.0 * spec.clearance, spec.clearance + 2.0 * floor)
     # One screen serves both: the contacts lie among the pairs that come within `enough`.
-    screened = near_bodies(mech, spec, schedule, t_from, t_to, pairs=pairs, enough=enough, tol=tol)
+    screened = near_bodies(mech, spec, schedule, t_from, t_to, pairs=pairs, enough=enough, tol=tol, thin=thin)
     clearance = gear_clearance(mech, spec, schedule, t_from, t_to, pairs=pairs, enough=enough, tol=tol,
-                               near=screened)
+                               near=screened, thin=thin)
     near = []
     for row in clearance:
         d = row["min_clearance"]
@@ -183,8 +188,8 @@ def _build_part(mech, schedule, t_from, t_to, problems, tol, tolerance, end):
                             f"{d:.4g} {mech.units} of {row['with']} at t = {row['at_t']:.4g} "
                             f"(clearance {spec.clearance:g})")
     contacts = (gear_contacts(mech, spec, schedule, t_from, t_to, couplings=near, pairs=pairs, tol=tol,
-                              near=screened) if near else [])
-    clashes = panel_clashes(mech, spec, schedule, t_from, t_to, tol=tol)
+                              near=screened, thin=thin) if near else [])
+    clashes = panel_clashes(mech, spec, schedule, t_from, t_to, tol=tol, thin=thin)
     if clashes:
         first = clashes[0]
         problems.append(f"{len(clashes)} pair(s) of thick panels run into each other (first faces "

@@ -452,7 +452,7 @@ def gear_clearance(mech, spec, schedule=None, t_from=0.0, t_to=1.0, pairs=None, 
 
 
 def gear_contacts(mech, spec, schedule=None, t_from=0.0, t_to=1.0, couplings=None, pairs=None, tol=DEFAULT,
-                  near=None):
+                  near=None, thin=None):
     """When gear bodies come nearer than ``spec.clearance`` to what they must not touch.
 
     The collision sweep of `foldsim.analysis.sweep` on the prisms and the gear
@@ -465,7 +465,8 @@ def gear_contacts(mech, spec, schedule=None, t_from=0.0, t_to=1.0, couplings=Non
 
     With ``near``, the screen's answer (`near_bodies` over the same range, with a
     distance of at least the clearance), only the solids of its pairs are swept:
-    any other pair stays farther apart than that distance all along.
+    any other pair stays farther apart than that distance all along. ``thin``: the
+    thin panels (`analysis.panels.panels`), when the caller has them.
 
     Returns
     -------
@@ -489,7 +490,8 @@ def gear_contacts(mech, spec, schedule=None, t_from=0.0, t_to=1.0, couplings=Non
             return []
     solids, active = [solids[i] for i in keep], active[keep]
     carrier = {p.coupling: p.carrier for p in pairs}
-    pan = body_panels(mech, solids, allowed_pairs(solids, carrier), passive=~active, pivots=panels(mech, tol))
+    pan = body_panels(mech, solids, allowed_pairs(solids, carrier), passive=~active,
+                      pivots=panels(mech, tol) if thin is None else thin)
     clearance = spec.clearance if spec.clearance > 0 else RESOLUTION * mech.size
     found = collision_intervals(mech, schedule, lo_t, hi_t, clearance=clearance, tol=tol, pan=pan,
                                 profile=body_speed_profile(mech, schedule.rates, solids))
@@ -575,7 +577,7 @@ panels that only touch by design (flush bevels at closure, corners shared when
 flat) are apart and only real overlaps count."""
 
 
-def panel_clashes(mech, spec, schedule=None, t_from=0.0, t_to=1.0, tol=DEFAULT, solids=None):
+def panel_clashes(mech, spec, schedule=None, t_from=0.0, t_to=1.0, tol=DEFAULT, solids=None, thin=None):
     """Thick panels that run into each other over the motion (the ``panel_clashes`` key).
 
     Every pair of prisms is swept except a hinge's own two panels: the tapered
@@ -592,6 +594,8 @@ def panel_clashes(mech, spec, schedule=None, t_from=0.0, t_to=1.0, tol=DEFAULT, 
     ----------
     solids : list of Solid, optional
         The shrunk prisms, when the caller already has them.
+    thin : Panels, optional
+        The thin panels (`analysis.panels.panels`), likewise.
 
     Returns
     -------
@@ -604,7 +608,7 @@ def panel_clashes(mech, spec, schedule=None, t_from=0.0, t_to=1.0, tol=DEFAULT, 
     if hi_t == lo_t or mech.n_faces < 2:
         return []
     solids = panel_solids(mech, spec, erode=ERODE * mech.size, tol=tol) if solids is None else solids
-    pan = body_panels(mech, solids, skip=mech.hinge_faces, pivots=panels(mech, tol),
+    pan = body_panels(mech, solids, skip=mech.hinge_faces, pivots=panels(mech, tol) if thin is None else thin,
                       cone_solids=panel_solids(mech, spec, tol=tol))
     profile = body_speed_profile(mech, schedule.rates, solids)
     found = collision_intervals(mech, schedule, lo_t, hi_t, tol=tol, pan=pan, profile=profile)
