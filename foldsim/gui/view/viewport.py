@@ -391,10 +391,25 @@ class FoldView(CameraControl, Overlays, gl.GLViewWidget):
     # -------------------------------------------------------------- painting
 
     def paintGL(self):
+        context = self.context()
+        self._smooth_lines(context is None or context.format().samples() <= 0)
         super().paintGL()
         self.frames_drawn += 1
         # The labels follow the camera: repaint them with every frame.
         self._overlay.update()
+
+    def _smooth_lines(self, on):
+        """Smooth the gap and crossing lines with GL's line antialiasing, or leave it to multisampling.
+
+        Where the frame is multisampled its samples already smooth every line, and
+        GL leaves line smoothing aside (OpenGL 2.1 specification, section 3.4.4,
+        multisampled lines); the software renderer still set up its smoothing for
+        every line, about twice what drawing a few gap lines costs.
+        """
+        if self._stage is None:
+            return
+        for item in (self._gap_lines, self._crossings):
+            item.antialias = bool(on)
 
     def resizeEvent(self, ev):
         super().resizeEvent(ev)
@@ -445,6 +460,7 @@ class FoldView(CameraControl, Overlays, gl.GLViewWidget):
         try:
             target.bind()
             GL.glViewport(0, 0, width, height)
+            self._smooth_lines(not samples)
             self.paint(region=(0, 0, width, height), viewport=(0, 0, width, height))
             target.release()
             if samples:
