@@ -148,21 +148,34 @@ ROW_BUDGET = 250_000
 
 
 def _chain_products(mech, schedule, chain, t):
-    """(n, 4, 4): the product, root end first, of each row's hinge rotations ``chain`` (n, D), -1 for none."""
-    n, depth = chain.shape
-    keep = chain.max(axis=0) >= 0 if n else np.zeros(0, bool)
-    chain = chain[:, :int(np.flatnonzero(keep)[-1]) + 1] if keep.any() else chain[:, :0]
-    rot = np.broadcast_to(np.eye(4), chain.shape + (4, 4)).copy()
-    r, d = np.nonzero(chain >= 0)
-    if len(r):
-        h = chain[r, d]
-        k = _step_of(mech)[h]
-        fixed, along_cos, along_sin = _rodrigues_terms(mech)
-        turn = hinge_angles(schedule, t[r], h)[:, None, None]
-        rot[r, d, :3, :] = fixed[k] + np.cos(turn) * along_cos[k] + np.sin(turn) * along_sin[k]
-    out = np.broadcast_to(np.eye(4), (n, 4, 4)).copy()
-    for d in range(rot.shape[1]):
-        np.matmul(out, rot[:, d], out=out)
+    """(n, 4, 4): the product, root end first, of each row's hinge rotations ``chain`` (n, D), -1 for none.
+
+    Rows go deepest first, so at every depth the rows whose chains reach it are a
+    leading block: all rotations are made at once, then one product per depth.
+    """
+    n = len(chain)
+    depth = (chain >= 0).sum(axis=1)
+    order = np.argsort(-depth, kind="stable")
+    chain, t = chain[order], t[order]
+    # live[d]: how many rows have a hinge at depth d.
+    live = np.searchsorted(-depth[order], -np.arange(chain.shape[1]), side="left")
+    live = live[live > 0]
+    # Every live (depth, row) rotation at once, depth by depth: depth d's are rows
+    # 0 .. live[d] - 1, at offset first[d].
+    first = np.cumsum(live) - live
+    row = np.arange(int(live.sum())) - np.repeat(first, live)
+    h = chain[row, np.repeat(np.arange(len(live)), live)]
+    k = _step_of(mech)[h]
+    fixed, along_cos, along_sin = _rodrigues_terms(mech)
+    turn = hinge_angles(schedule, t[row], h)[:, None, None]
+    rot = np.zeros((len(h), 4, 4))
+    rot[:, :3, :] = fixed[k] + np.cos(turn) * along_cos[k] + np.sin(turn) * along_sin[k]
+    rot[:, 3, 3] = 1.0
+    work = np.broadcast_to(np.eye(4), (n, 4, 4)).copy()
+    for at, m in zip(first.tolist(), live.tolist()):
+        work[:m] = work[:m] @ rot[at:at + m]
+    out = np.empty_like(work)
+    out[order] = work
     return out
 
 

@@ -548,7 +548,7 @@ def _pair_solids(pairs, tip, coarse):
     for n, p in enumerate(pairs):
         grow = p.module if tip else 0.0
         for k, g in enumerate(p.gears):
-            e2 = np.cross(g.spin, g.e1)
+            e2 = geometry.cross(g.spin, g.e1)
             span = g.sector[1] - g.sector[0]
             radii = (g.r_range[0] + grow, g.r_range[1] + grow)
             segments = _segments(span)
