@@ -136,10 +136,11 @@ def row_distances(solids, pairs, poses):
     """Exact distance between two posed solids, one pair and pose per row.
 
     Every triangle of one solid against every triangle of the other, with the
-    triangle pairs that cannot be the nearest left out: a pair whose bounding
-    spheres or boxes lie farther apart than two triangles' centroids of the row (an
-    upper bound on the solids' distance) does not hold it. Rows of any solids go
-    through one `triangle_distance` call, in blocks of `PAIR_BUDGET` pairs.
+    triangle pairs that cannot be the nearest left out: the two triangles whose
+    centroids are nearest are measured first, and a triangle pair whose bounding
+    spheres or boxes lie farther apart than that distance (the solids are no
+    farther apart) does not hold the least one. Rows whose solids have the same
+    triangle counts go together, in blocks of `PAIR_BUDGET` triangle pairs.
 
     Parameters
     ----------
@@ -159,58 +160,44 @@ def row_distances(solids, pairs, poses):
     out = np.full(len(pairs), np.inf)
     if not len(pairs):
         return out
-    used, local = np.unique(pairs, return_inverse=True)
-    local = local.reshape(-1, 2)
-    tris = [solids[i].triangles for i in used.tolist()]
-    count = np.array([len(t) for t in tris], np.int64)
-    start = np.cumsum(count) - count
-    flat = np.concatenate(tris)
-    centre = flat.mean(axis=1)
-    radius = np.sqrt(((flat - centre[:, None]) ** 2).sum(axis=2)).max(axis=1)
-    na, nb = count[local[:, 0]], count[local[:, 1]]
-    per = na * nb
-    block = np.cumsum(per) // PAIR_BUDGET
-    bounds = np.concatenate([[0], np.flatnonzero(np.diff(block)) + 1, [len(pairs)]])
-    for lo, hi in zip(bounds[:-1], bounds[1:]):
-        rows = np.arange(lo, hi)
-        side = []
-        for k, n in ((0, na[rows]), (1, nb[rows])):
-            row = np.repeat(np.arange(len(rows)), n)
-            idx = np.repeat(start[local[rows, k]] - (np.cumsum(n) - n), n) + np.arange(n.sum())
-            m = poses[rows[row], k]
-            tri = rotate_rows(m[:, :3, :3], flat[idx]) + m[:, None, :3, 3]
-            mid = np.einsum("nij,nj->ni", m[:, :3, :3], centre[idx]) + m[:, :3, 3]
-            side.append((tri, mid, radius[idx], np.cumsum(n) - n))
-        (ta, ma, ra, oa), (tb, mb, rb, ob) = side
-        # Triangle pair k of row r: a's k // nb[r], b's k % nb[r].
-        p = per[rows]
-        row = np.repeat(np.arange(len(rows)), p)
-        k = np.arange(p.sum()) - np.repeat(np.cumsum(p) - p, p)
-        width = nb[rows][row]
-        i, j = oa[row] + k // width, ob[row] + k % width
-        gap = np.sqrt(((ma[i] - mb[j]) ** 2).sum(axis=1))
-        bound = np.full(len(rows), np.inf)
-        np.minimum.at(bound, row, gap)
-        lo_a, hi_a = corner_bounds(ta)
-        lo_b, hi_b = corner_bounds(tb)
-        box = np.maximum(np.maximum(lo_a[i] - hi_b[j], lo_b[j] - hi_a[i]), 0.0)
-        near = np.maximum(gap - ra[i] - rb[j], np.sqrt((box * box).sum(axis=1))) <= bound[row]
-        best = np.full(len(rows), np.inf)
-        np.minimum.at(best, row[near], triangle_distance(ta[i[near]], tb[j[near]]))
-        apart = np.flatnonzero(best > 0)
-        if len(apart):
-            inside = np.maximum(np.abs(_winding_rows(ta[oa[apart], 0], tb, ob[apart], nb[rows][apart])),
-                                np.abs(_winding_rows(tb[ob[apart], 0], ta, oa[apart], na[rows][apart])))
-            best[apart[inside > 0.5]] = 0.0
-        out[rows] = best
+    sizes = np.array([[len(solids[a].triangles), len(solids[b].triangles)] for a, b in pairs.tolist()], np.int64)
+    for na, nb in np.unique(sizes, axis=0).tolist():
+        rows = np.flatnonzero((sizes[:, 0] == na) & (sizes[:, 1] == nb))
+        for block in np.array_split(rows, max(1, len(rows) * na * nb // PAIR_BUDGET + 1)):
+            out[block] = _same_size_distances(solids, pairs[block], poses[block])
     return out
 
 
-def _winding_rows(points, tris, first, count):
-    """(m,) winding number of points[r] (3,) about the closed mesh ``tris[first[r]:first[r] + count[r]]``."""
-    row = np.repeat(np.arange(len(points)), count)
-    idx = np.repeat(first - (np.cumsum(count) - count), count) + np.arange(count.sum())
-    return np.bincount(row, _solid_angles(points[row], tris[idx]), minlength=len(points)) / (4.0 * np.pi)
+def _same_size_distances(solids, pairs, poses):
+    """`row_distances` for rows whose first solids have one triangle count, and second solids another."""
+    side = []
+    for k in (0, 1):
+        tri = np.stack([solids[i].triangles for i in pairs[:, k].tolist()])  # (m, c, 3, 3)
+        m = poses[:, k]
+        tri = rotate_rows(m[:, None, :3, :3], tri) + m[:, None, None, :3, 3]
+        mid = tri.mean(axis=2)
+        reach = np.sqrt(((tri - mid[:, :, None]) ** 2).sum(axis=3)).max(axis=2)
+        side.append((tri, mid, reach) + corner_bounds(tri))
+    (ta, ma, ra, lo_a, hi_a), (tb, mb, rb, lo_b, hi_b) = side
+    rows = np.arange(len(pairs))
+    gap = np.sqrt(((ma[:, :, None] - mb[:, None]) ** 2).sum(axis=3))  # (m, ca, cb)
+    first = gap.reshape(len(pairs), -1).argmin(axis=1)
+    i0, j0 = np.divmod(first, gap.shape[2])
+    bound = triangle_distance(ta[rows, i0], tb[rows, j0])
+    box = np.maximum(np.maximum(lo_a[:, :, None] - hi_b[:, None], lo_b[:, None] - hi_a[:, :, None]), 0.0)
+    low = np.maximum(gap - ra[:, :, None] - rb[:, None], np.sqrt((box * box).sum(axis=3)))
+    near = low <= bound[:, None, None]
+    near[rows, i0, j0] = False
+    r, i, j = np.nonzero(near)
+    best = bound.copy()
+    if len(r):
+        np.minimum.at(best, r, triangle_distance(ta[r, i], tb[r, j]))
+    apart = np.flatnonzero(best > 0)
+    if len(apart):
+        inside = np.maximum(np.abs(_winding_batch(ta[apart, 0, 0], tb[apart])),
+                            np.abs(_winding_batch(tb[apart, 0, 0], ta[apart])))
+        best[apart[inside > 0.5]] = 0.0
+    return best
 
 
 def _solid_angles(points, tris):
