@@ -38,7 +38,7 @@ from ..analysis.narrowphase import pair_state, triangle_distance
 from ..analysis.panels import _face_boxes, _in_sorted, _keys, panels
 from ..analysis.sweep import collision_intervals
 from ..gearing import fold_schedule
-from ..geometry import corner_bounds, rotate_rows
+from ..geometry import corner_bounds, cross, rotate_rows
 from ..kinematics import common_depth, poses_at, row_poses
 from ..tolerances import DEFAULT
 from .bodies import body_panels, body_speed_profile, item_spheres
@@ -46,7 +46,6 @@ from .gears import gear_pairs, gear_solids
 from .prisms import panel_solids
 
 INITIAL_STEPS = 32
-CHUNK = 64
 RESOLUTION = 1e-3
 """Distance resolution of the sweep, relative to the model size."""
 
@@ -204,7 +203,7 @@ def _solid_angles(points, tris):
     """(...,) solid angle of triangles tris (..., 3, 3) seen from points (..., 3) (Van Oosterom & Strackee 1983)."""
     a, b, c = (tris[..., k, :] - points for k in range(3))
     la, lb, lc = (np.sqrt((x * x).sum(axis=-1)) for x in (a, b, c))
-    det = (a * np.cross(b, c)).sum(axis=-1)
+    det = (a * cross(b, c)).sum(axis=-1)
     den = la * lb * lc + (a * b).sum(axis=-1) * lc + (b * c).sum(axis=-1) * la + (c * a).sum(axis=-1) * lb
     return 2.0 * np.arctan2(det, den)
 

@@ -141,15 +141,15 @@ def main(argv=None):
         colliding_pairs(mech, poses[0], pan=pan)
         cut_edge_gaps(mech, poses)
 
-    def draw():
-        view.makeCurrent()
-        view.paintGL()
+    def draw(target=view):
+        target.makeCurrent()
+        target.paintGL()
         GL.glFinish()
-        view.doneCurrent()
+        target.doneCurrent()
 
-    def frame(t):
-        view.set_t(t)
-        draw()
+    def frame(t, target=view):
+        target.set_t(t)
+        draw(target)
 
     print(f"{mech.name}: {mech.n_faces} panels, {mech.n_hinges} hinges, {len(mech.cut_faces)} cut edges")
     print(f"core only                 {_rate(core, values):8.1f} updates/s")
@@ -169,14 +169,7 @@ def main(argv=None):
     flap_view.set_view("iso")
     app.processEvents()
 
-    def flap_frame(t):
-        flap_view.set_t(t)
-        flap_view.makeCurrent()
-        flap_view.paintGL()
-        GL.glFinish()
-        flap_view.doneCurrent()
-
-    sphere_time, flap_time = _paired_times([frame, flap_frame], values)
+    sphere_time, flap_time = _paired_times([frame, lambda t: frame(t, flap_view)], values)
     flap_view.close()
     print(f"drawing only              {_rate(lambda t: draw(), values):8.1f} frames/s")
     view._layer.setVisible(False)
