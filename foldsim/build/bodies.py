@@ -189,9 +189,11 @@ def _corner_cones(solids, keys, points, eps):
     ok = has & (number >= 2) & (number <= CONE_GENERATORS)
     width = max(1, int(number[ok].max())) if ok.any() else 1
     out = np.full((len(items), width, 3), np.nan)
-    for row in np.flatnonzero(ok).tolist():
-        kept = dirs[row, keep[row]]
-        out[row] = kept[np.minimum(np.arange(width), len(kept) - 1)]
+    rows = np.flatnonzero(ok)
+    # Each row's kept directions in order, the last repeated to the width.
+    kept = np.argsort(~keep[rows], axis=1, kind="stable")
+    pick = np.take_along_axis(kept, np.minimum(np.arange(width)[None, :], number[rows, None] - 1), axis=1)
+    out[rows] = dirs[rows[:, None], pick]
     return out.reshape(len(keys), 2, width, 3)
 
 
@@ -235,9 +237,12 @@ def body_speed_profile(mech, rates, solids):
     mids = mech.axes.mean(axis=1)
     # tail[f, d]: the |rates| of the hinges on f's chain more than d steps below the root.
     tail = turn_profile(mech, rates)
-    far_face = np.zeros(mech.n_faces)
-    for f in np.unique(faces[moved]).tolist():
-        far_face[f] = np.linalg.norm(mech.flat_faces[f] - mids[mech.face_hinge[f]], axis=1).max()
+    # far_face[f]: how far face f's corners reach from the midpoint of its entry hinge.
+    sizes = np.array([len(p) for p in mech.flat_faces], np.int64)
+    corner_face = np.repeat(np.arange(mech.n_faces), sizes)
+    reach = np.linalg.norm(np.concatenate(mech.flat_faces) - mids[np.maximum(mech.face_hinge, 0)][corner_face],
+                           axis=1)
+    far_face = np.where(mech.face_hinge >= 0, np.maximum.reduceat(reach, np.cumsum(sizes) - sizes), 0.0)
     count = np.array([s.triangles.size // 3 for s in solids], np.int64)
     points = np.concatenate([s.triangles.reshape(-1, 3) for s in solids])
     owner = np.repeat(np.arange(len(solids)), count)
