@@ -83,9 +83,7 @@ def face_poses(mech, angles, faces=None):
         on[_chains(mech, faces)[0]] = True
         steps = order[on[order]]
         # The chains' steps, level by level (as the whole walk's spans).
-        step_of = np.empty(mech.n_hinges, np.int64)
-        step_of[order] = np.arange(len(order))
-        at = step_of[steps]
+        at = _step_of(mech)[steps]
         spans = [(lo, hi) for lo, hi in zip(np.searchsorted(at, [lo for lo, _ in spans]),
                                             np.searchsorted(at, [hi for _, hi in spans])) if hi > lo]
     # R = u u^T + cos(angle) (I - u u^T) + sin(angle) [u]x, and R a from the same

@@ -244,10 +244,10 @@ def _fcl_distance(fcl, ta, tb):
 
 @pytest.mark.parametrize("doc", [cube_doc([{"coupling": 0, "module": 1.0, "face_width": 4.0}]),
                                  strip_doc([{"coupling": 0, "sector_deg": 360}])])
-def test_solid_distances_agree_with_python_fcl(doc):
+def test_exact_solid_distances_agree_with_python_fcl(doc):
     fcl = pytest.importorskip("fcl")
     from foldsim.build.gears import build_solids
-    from foldsim.build.sweep import body_pairs, row_distances, solid_distances
+    from foldsim.build.sweep import body_pairs, row_distances
     from foldsim.gearing import fold_schedule
     from foldsim.geometry import transform_points
     from foldsim.kinematics import poses_at
@@ -258,10 +258,12 @@ def test_solid_distances_agree_with_python_fcl(doc):
     assert len(tested)
     t = np.linspace(0.0, 1.0, 7)
     poses = poses_at(mech, fold_schedule(mech), t)
+    faces = np.array([s.face for s in solids])
     every = []
     for pair in tested:
-        ours = solid_distances(mech, solids, pair, poses)
         a, b = (solids[i] for i in pair)
+        # One pair at every t.
+        ours = row_distances(solids, np.tile(pair, (len(t), 1)), np.stack([poses[:, a.face], poses[:, b.face]], axis=1))
         # python-fcl (a general-purpose collision library) on the same posed meshes.
         theirs = [_fcl_distance(fcl, transform_points(poses[k, a.face], a.triangles),
                                 transform_points(poses[k, b.face], b.triangles)) for k in range(len(t))]
@@ -270,8 +272,7 @@ def test_solid_distances_agree_with_python_fcl(doc):
     # All pairs at all t as rows of one call (rows of different solids mixed).
     rows = np.repeat(tested, len(t), axis=0)
     k = np.tile(np.arange(len(t)), len(tested))
-    faces = np.array([s.face for s in solids])[rows]
-    mixed = row_distances(solids, rows, np.stack([poses[k, faces[:, 0]], poses[k, faces[:, 1]]], axis=1))
+    mixed = row_distances(solids, rows, np.stack([poses[k, faces[rows[:, 0]]], poses[k, faces[rows[:, 1]]]], axis=1))
     np.testing.assert_allclose(mixed, every, atol=1e-6 * mech.size)
 
 

@@ -104,29 +104,6 @@ def _pair_poses(mech, schedule, faces, t):
     return row_poses(mech, schedule, faces.ravel(), np.repeat(t, 2)).reshape(-1, 2, 4, 4)
 
 
-def solid_distances(mech, solids, pair, poses, columns=None):
-    """Exact distance between two posed solids at many poses.
-
-    Parameters
-    ----------
-    mech : Mechanism
-    solids : list of Solid
-    pair : (int, int)
-    poses : (T, F, 4, 4) float
-    columns : (int, int), optional
-        Where the two solids' faces are along the poses' second axis (default: the
-        faces themselves; poses of only the two faces come with ``(0, 1)``).
-
-    Returns
-    -------
-    (T,) float
-        0 where the meshes cross, touch or one holds the other (`row_distances`).
-    """
-    fa, fb = (solids[pair[0]].face, solids[pair[1]].face) if columns is None else columns
-    return row_distances(solids, np.tile(np.asarray(pair, np.int64), (len(poses), 1)),
-                         np.stack([poses[:, fa], poses[:, fb]], axis=1))
-
-
 PAIR_BUDGET = 200_000
 """Triangle pairs `row_distances` holds at once."""
 
