@@ -214,3 +214,31 @@ def test_cheap_bounds_keep_the_narrow_phase_answers():
             ta = solids[a].triangles @ poses[frame[k], a, :3, :3].T + poses[frame[k], a, :3, 3]
             tb = solids[b].triangles @ poses[frame[k], b, :3, :3].T + poses[frame[k], b, :3, 3]
             assert sep[k] <= _fcl_distance(fcl, ta, tb) - clearance + 1e-6
+
+
+def test_corner_boxes_hold_every_posed_corner_tightly():
+    """`panels._corner_boxes` (all t of an item in one product) against each corner posed apart.
+
+    Reference: scipy's `Rotation.apply` on every corner, then numpy's min and max
+    over the corners; the boxes must be those, and the extra point posed alike.
+    """
+    from scipy.spatial.transform import Rotation
+
+    from foldsim.analysis.panels import _corner_boxes
+
+    rng = np.random.default_rng(5)
+    n_t, n, v = 7, 5, 6
+    corners = rng.normal(size=(n, v, 3))
+    extra = rng.normal(size=(n, 3))
+    turns = Rotation.random(n_t * n, random_state=3)
+    poses = np.tile(np.eye(4), (n_t, n, 1, 1))
+    poses[..., :3, :3] = turns.as_matrix().reshape(n_t, n, 3, 3)
+    poses[..., :3, 3] = rng.normal(size=(n_t, n, 3))
+    lo, hi, posed = _corner_boxes(corners, poses, extra)
+    for t in range(n_t):
+        for f in range(n):
+            r = turns[t * n + f]
+            pts = r.apply(corners[f]) + poses[t, f, :3, 3]
+            assert np.allclose(lo[t, f], pts.min(axis=0), atol=1e-12)
+            assert np.allclose(hi[t, f], pts.max(axis=0), atol=1e-12)
+            assert np.allclose(posed[t, f], r.apply(extra[f]) + poses[t, f, :3, 3], atol=1e-12)

@@ -40,7 +40,7 @@ from ..kinematics import common_depth, face_poses, face_twists, speed_profile, t
 from ..tolerances import DEFAULT
 from . import spatialhash
 from .narrowphase import pair_state
-from .panels import _face_boxes, _in_sorted, _keys, panels
+from .panels import _corner_boxes, _face_boxes, _in_sorted, _keys, corner_boxes, panels
 
 MAX_STEPS = 4096
 """Most start-grid steps over the swept range."""
@@ -259,11 +259,18 @@ def _grid_geometry(ev, grid):
     n, f = len(grid), ev.n
     lo, hi, centre = np.empty((n, f, 3)), np.empty((n, f, 3)), np.empty((n, f, 3))
     omega, lin = np.empty((n, f, 3)), np.empty((n, f, 3))
-    step = max(1, ev.chunk // max(1, int(np.ceil(len(ev.pan.tri_face) / f))))
+    corners = corner_boxes(ev.pan)
+    # Boxes from corners need only the corners (and the centre) posed, not every triangle.
+    step = max(1, ev.chunk // (1 if corners else max(1, int(np.ceil(len(ev.pan.tri_face) / f)))))
     for k in range(0, n, step):
         poses, faces = ev.poses(grid[k:k + step], faces=True)
-        lo[k:k + step], hi[k:k + step] = _face_boxes(ev.pan, poses)
-        centre[k:k + step] = np.einsum("tfij,fj->tfi", poses[..., :3, :3], ev.pan.centre) + poses[..., :3, 3]
+        if corners:
+            lo[k:k + step], hi[k:k + step], centre[k:k + step] = _corner_boxes(ev.pan.hull_points, poses,
+                                                                               ev.pan.centre)
+        else:
+            lo[k:k + step], hi[k:k + step] = _face_boxes(ev.pan, poses)
+            centre[k:k + step] = (np.einsum("tfij,fj->tfi", poses[..., :3, :3], ev.pan.centre)
+                                  + poses[..., :3, 3])
         omega[k:k + step], lin[k:k + step] = ev.twists(faces)
     return lo, hi, centre, omega, lin
 
