@@ -322,9 +322,8 @@ def _candidates(ev, grid, lo, hi, k):
     swept_hi = np.maximum(hi[:-1], hi[1:]) + grow
     steps, f = swept_lo.shape[:2]
     block = 2 ** min(k, HASH_LEVELS)
-    rows = spatialhash.box_pairs_batched(swept_lo.reshape(-1, block, f, 3).min(axis=1),
-                                         swept_hi.reshape(-1, block, f, 3).max(axis=1),
-                                         None if ev.pan.passive is None else ~ev.pan.passive)
+    rows = _box_pairs(ev.pan, swept_lo.reshape(-1, block, f, 3).min(axis=1),
+                      swept_hi.reshape(-1, block, f, 3).max(axis=1))
     rows = rows[~_in_sorted(_keys(rows[:, 1:], ev.n), ev.pan.skip_keys)[0]]
     if block == 1:
         return np.column_stack([rows[:, 0], np.zeros(len(rows), rows.dtype), rows[:, 1:]])
@@ -342,6 +341,54 @@ def _candidates(ev, grid, lo, hi, k):
                                     part[full, 1:]]))
         s, j = np.nonzero(meet & ~full[:, None])
         out.append(np.column_stack([step[s, j], np.zeros(len(s), rows.dtype), part[s, 1:]]))
+    return np.concatenate(out)
+
+
+GROUP_ITEMS = 1.5
+"""Items per carrying face from which `_box_pairs` hashes the faces' boxes, not the items'."""
+
+
+def _box_pairs(pan, lo, hi):
+    """(frame, i, j) rows, i < j, of item boxes lo, hi (T, n, 3) that overlap, with an active item (in no set order).
+
+    `spatialhash.box_pairs_batched` on the items; or, where the faces carry
+    `GROUP_ITEMS` items or more each (a build's prisms and gear bodies), on each
+    face's box around its items, a third as many boxes, after which the items of
+    every two faces found are tested box against box. Items whose boxes overlap lie
+    on faces whose boxes do, so the two ways find the same pairs. Two items of one
+    face are never paired (they are one rigid part: `Panels.skip_keys` holds them).
+    """
+    active = None if pan.passive is None else ~pan.passive
+    if pan.owner is None or len(pan.owner) < GROUP_ITEMS * len(np.unique(pan.owner)):
+        return spatialhash.box_pairs_batched(lo, hi, active)
+    order = np.argsort(pan.owner, kind="stable")
+    first = np.flatnonzero(np.r_[True, pan.owner[order][1:] != pan.owner[order][:-1]])
+    count = np.diff(np.r_[first, len(order)])
+    group_lo = np.minimum.reduceat(lo[:, order], first, axis=1)
+    group_hi = np.maximum.reduceat(hi[:, order], first, axis=1)
+    group_active = None if active is None else np.logical_or.reduceat(active[order], first)
+    groups = spatialhash.box_pairs_batched(group_lo, group_hi, group_active)
+    n = lo.shape[1]
+    flat_lo, flat_hi = lo.reshape(-1, 3), hi.reshape(-1, 3)
+    out = [np.zeros((0, 3), np.int64)]
+    for k in range(0, len(groups), ROW_CHUNK // 8):
+        part = groups[k:k + ROW_CHUNK // 8]
+        ca, cb = count[part[:, 1]], count[part[:, 2]]
+        per = ca * cb
+        row = np.repeat(np.arange(len(part)), per)
+        local = np.arange(per.sum()) - np.repeat(np.cumsum(per) - per, per)
+        i = order[first[part[row, 1]] + local // cb[row]]
+        j = order[first[part[row, 2]] + local % cb[row]]
+        if active is not None:
+            keep = active[i] | active[j]
+            row, i, j = row[keep], i[keep], j[keep]
+        at = part[row, 0] * n
+        # One axis at a time, on the pairs still left.
+        for axis in range(3):
+            a, b = at + i, at + j
+            meet = (np.maximum(flat_lo[a, axis], flat_lo[b, axis]) <= np.minimum(flat_hi[a, axis], flat_hi[b, axis]))
+            at, i, j = at[meet], i[meet], j[meet]
+        out.append(np.column_stack([at // n, np.minimum(i, j), np.maximum(i, j)]))
     return np.concatenate(out)
 
 
