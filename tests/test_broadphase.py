@@ -109,3 +109,31 @@ def test_integer_boxes_match_brute_force(lo, data):
     hi = lo + size
     # common practice: the same pair list as checking every pair
     assert np.array_equal(overlapping_boxes(lo, hi), brute_force(lo, hi))
+
+
+@pytest.mark.parametrize("seed", [0, 1, 2])
+def test_items_grouped_by_face_find_every_overlapping_pair(seed):
+    """The sweep's broad phase on items carried by faces (`sweep._box_pairs`, faces' boxes first).
+
+    Against all pairs checked one by one (common practice), per frame: every two
+    items of different faces whose boxes overlap and of which one is active.
+    """
+    from types import SimpleNamespace
+
+    from foldsim.analysis.sweep import _box_pairs
+
+    rng = np.random.default_rng(seed)
+    n_t, m = 3, 240
+    owner = rng.integers(0, 60, m)
+    passive = rng.random(m) < 0.4
+    lo = rng.random((n_t, m, 3))
+    hi = lo + rng.random((n_t, m, 3)) * 0.12
+    rows = _box_pairs(SimpleNamespace(owner=owner, passive=passive), lo, hi)
+    got = {tuple(r) for r in rows.tolist()}
+    assert len(got) == len(rows)
+    want = set()
+    for t in range(n_t):
+        for i, j in brute_force(lo[t], hi[t]).tolist():
+            if owner[i] != owner[j] and not (passive[i] and passive[j]):
+                want.add((t, i, j))
+    assert got == want
