@@ -545,10 +545,14 @@ def _pair_solids(pairs, tip, coarse):
     (`sector_frusta`).
     """
     rows = []  # (pair, gear index, is rod, frame and ranges, segments)
+    every = [g for p in pairs for g in p.gears]
+    # The third axis of every gear's frame at once.
+    across = iter(geometry.cross(np.array([g.spin for g in every], float).reshape(-1, 3),
+                                 np.array([g.e1 for g in every], float).reshape(-1, 3)))
     for n, p in enumerate(pairs):
         grow = p.module if tip else 0.0
         for k, g in enumerate(p.gears):
-            e2 = geometry.cross(g.spin, g.e1)
+            e2 = next(across)
             span = g.sector[1] - g.sector[0]
             radii = (g.r_range[0] + grow, g.r_range[1] + grow)
             segments = _segments(span)
