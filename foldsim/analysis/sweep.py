@@ -371,8 +371,10 @@ def _box_pairs(pan, lo, hi):
     n = lo.shape[1]
     flat_lo, flat_hi = lo.reshape(-1, 3), hi.reshape(-1, 3)
     out = [np.zeros((0, 3), np.int64)]
-    for k in range(0, len(groups), ROW_CHUNK // 8):
-        part = groups[k:k + ROW_CHUNK // 8]
+    # Blocks of face pairs that make about `ROW_CHUNK` item pairs each.
+    made = np.cumsum(count[groups[:, 1]] * count[groups[:, 2]])
+    cuts = np.searchsorted(made, np.arange(ROW_CHUNK, made[-1] if len(made) else 0, ROW_CHUNK), side="right")
+    for part in np.split(groups, cuts):
         ca, cb = count[part[:, 1]], count[part[:, 2]]
         per = ca * cb
         row = np.repeat(np.arange(len(part)), per)
