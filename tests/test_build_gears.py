@@ -360,6 +360,30 @@ def test_new_writes_a_build_object(tmp_path, capsys):
     assert "--module: sizes gears on thick panels; give --thickness too" in capsys.readouterr().err
 
 
+def test_new_refuses_a_module_too_large_for_the_edges(tmp_path, capsys):
+    # The cube's corner bevel pairs have ratio 1, so their fewest teeth are 12:12
+    # (sizing's MIN_TEETH). At module 1 each pitch radius is m z / 2 = 6 (pitch
+    # diameter = m z, ISO 54 / any gear handbook), and a 90-degree bevel pair's pitch
+    # cones are 45 degrees, so each gear reaches r / tan(45) = 6 along its hinge
+    # (worked by hand): past a 5 mm edge, within a 7 mm one.
+    from foldsim.cli import main
+
+    out = tmp_path / "small.mech.json"
+    assert main(["new", "cube", "--size", "5", "--thickness", "0.5", "--module", "1", "-o", str(out)]) == 2
+    err = capsys.readouterr().err.strip()
+    assert err.count("\n") == 0 and err.startswith("foldsim: --module: ")
+    assert "(12:12)" in err and "reaches 6 along its hinge" in err and "length 5" in err
+    assert not out.exists()
+    # At 7 mm the pairs fit; the spur pairs, sized by their hinges' distance, come
+    # too near, which `check` also fails (exit 1), so `new` exits 1 as well.
+    out = tmp_path / "fits.mech.json"
+    code = main(["new", "cube", "--size", "7", "--thickness", "0.5", "--module", "1", "-o", str(out), "--json"])
+    rows = json.loads(capsys.readouterr().out)["gear_sizing"]
+    assert out.exists()
+    assert code == (0 if all(r["passes"] for r in rows) else 1)
+    assert main(["check", str(out)]) == code
+
+
 def _write(tmp_path, doc, name="m.mech.json"):
     path = tmp_path / name
     path.write_text(json.dumps(doc))

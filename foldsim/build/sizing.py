@@ -74,7 +74,7 @@ def _clearance_of(mech, build, coupling, tol, cache):
                 cache[key] = gear_pairs(trial, replace(spec, gears=(doc,)), tol)[0]
             pairs.append(cache[key])
     except ModelError as exc:
-        return {"min_clearance": -1.0, "with": str(exc).split(": ", 1)[-1], "at_t": None}
+        return {"min_clearance": -1.0, "with": str(exc).split(": ", 1)[-1], "at_t": None, "unbuildable": True}
     # Pass or fail is all sizing asks (`size_gears`'s ``passes``): a stretch is
     # refined until its bound clears the clearance and the check's resolution by
     # one resolution more, or until a distance the bodies really reach is within
@@ -168,6 +168,14 @@ def size_gears(mech, thickness, module, clearance=0.0, max_teeth=200, tol=DEFAUL
                 s = min(tops[k], max(s + 1, (3 * s) // 2))
                 row = trial(k, s)
             if not passes(row):
+                if smallest.get("unbuildable"):
+                    # No size can be built at all (a larger pair reaches farther):
+                    # say so as an option's error, not as a field of a file never written.
+                    zi, zj = entry(k, scale[k])["teeth"]
+                    raise ModelError(f"--module: gears of module {module:g} do not fit coupling {k} even "
+                                     f"at the fewest teeth its ratio allows ({zi}:{zj}): {smallest['with']}; "
+                                     f"give a smaller --module, a larger --size, or a --teeth range "
+                                     f"with fewer teeth")
                 # None passes: back to the smallest (the others have not moved).
                 s, row = scale[k], smallest
         size[k], first[k] = s, row

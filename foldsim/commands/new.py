@@ -113,6 +113,10 @@ def _format(report, verbose=False):
                 clear = f"at least {r['guaranteed_min']:.3g} {units}"
             lines.append(f" coupling {r['coupling']} {r['kind']}: teeth {r['teeth'][0]}:{r['teeth'][1]}, "
                          f"clearance {clear}{'' if r['passes'] else ' (too near)'}, limited by {r['limited_by']}")
+        near = sum(not r["passes"] for r in report["gear_sizing"])
+        if near:
+            lines.append(f"gear sizing: {near} of {len(report['gear_sizing'])} pairs too near at every size "
+                         f"tried; `foldsim check` lists where (gear_contacts)")
     return "\n".join(lines)
 
 
@@ -148,4 +152,5 @@ def run(args):
     except OSError as exc:
         raise ModelError(f"{args.output}: cannot write file: {exc.strerror or exc}") from None
     print(json.dumps(report, indent=2) if args.json else _format(report, args.verbose))
-    return 0 if report["dof"] == 1 and report["collision_free"] else 1
+    gears_clear = all(r["passes"] for r in report.get("gear_sizing", ()))
+    return 0 if report["dof"] == 1 and report["collision_free"] and gears_clear else 1
