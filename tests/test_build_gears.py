@@ -721,3 +721,35 @@ def test_first_pose_containment_matches_trimesh():
 
     want = [inside(boxes[a], tri[start[b], 0]) or inside(boxes[b], tri[start[a], 0]) for a, b in pairs]
     assert got.tolist() == want == [True, False, False]
+
+
+def test_sizing_gives_spur_pairs_sharing_a_hinge_bands_of_their_own():
+    # The cube's net from its bottom has two spur pairs whose gears both sit on
+    # hinge 0 (coaxial). Centred on their hinges' common length, as a file without
+    # positions places them, they overlap from the flat state on; sizing gives them
+    # lanes of their own, and python-fcl (a general-purpose collision library) on
+    # the posed meshes finds them apart all along the motion.
+    fcl = pytest.importorskip("fcl")
+    from dataclasses import replace
+
+    from foldsim.design import build, shape_args
+
+    mech, report = build(shape_args("cube", size=60.0, thickness=2.0, module=1.0))
+    rows = report["gear_sizing"]
+    spurs = [r["coupling"] for r in rows if r["kind"] == "spur"]
+    assert len(spurs) == 2 and all(r["passes"] for r in rows)
+    shared = set(mech.couplings[spurs[0]].hinges) & set(mech.couplings[spurs[1]].hinges)
+    assert len(shared) == 1
+    hinge = int(shared.pop())
+    t = np.linspace(0.0, 1.0, 21)
+
+    def nearest(m):
+        solids = gear_solids(m, build_spec(m))
+        pair = [next(k for k, s in enumerate(solids) if s.coupling == c and s.hinge == hinge) for c in spurs]
+        return _dense_fcl(fcl, m, solids, pair, t)
+
+    assert nearest(mech).min() > 0.0
+    entries = [{k: v for k, v in g.items() if k not in ("corner_distance", "face_width")}
+               for g in mech.extras["build"]["gears"]]
+    centred = replace(mech, extras={**mech.extras, "build": {**mech.extras["build"], "gears": entries}})
+    assert nearest(centred)[0] == 0.0

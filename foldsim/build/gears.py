@@ -245,6 +245,26 @@ def _teeth(doc, coupling, field, tol):
     return zi, zj
 
 
+def _common_span(ends, d):
+    """Where two parallel hinge edges ``ends`` ((p, q) each) both run, along direction ``d``.
+
+    Returns the span's start, measured from ``ends[0][0]`` along ``d``, and its length.
+    """
+    lo = max(min((p - ends[0][0]) @ d for p in e) for e in ends)
+    hi = min(max((p - ends[0][0]) @ d for p in e) for e in ends)
+    return lo, hi - lo
+
+
+def spur_common_length(mech, i, j, face):
+    """Length along which hinges i and j (parallel, both edges of ``face``) both run: a spur band's room."""
+    poly = mech.flat_faces[face]
+    ends = []
+    for h in (i, j):
+        e = hinge_edge(mech, h, face)
+        ends.append((poly[e], poly[(e + 1) % len(poly)]))
+    return _common_span(ends, _unit(mech.axes[i, 1] - mech.axes[i, 0]))[1]
+
+
 def gear_pairs(mech, spec, tol=DEFAULT):
     """Resolve every ``build.gears`` entry against the mechanism.
 
@@ -319,9 +339,7 @@ def _resolve_pairs(mech, spec, tol):
                 raise ModelError(f"{field}.pitch_radius: hinges {i} and {j} lie {a:.6g} apart, so teeth "
                                  f"{zi}:{zj} need pitch radius {r[0]:.6g}, not {doc.pitch_radius:.6g}")
             d = spins[0]
-            lo = max(min((p - ends[0][0]) @ d for p in e) for e in ends)
-            hi = min(max((p - ends[0][0]) @ d for p in e) for e in ends)
-            common = hi - lo
+            lo, common = _common_span(ends, d)
             width = doc.face_width if doc.face_width is not None else min(10.0 * m, 0.25 * common)
             start = doc.corner_distance if doc.corner_distance is not None else (common - width) / 2.0
             if start + width > common * (1 + 1e-9):

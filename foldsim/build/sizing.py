@@ -28,6 +28,7 @@ from dataclasses import replace
 
 from ..errors import ModelError
 from ..tolerances import DEFAULT
+from .gears import spur_common_length
 from .spec import build_spec
 from .sweep import RESOLUTION, gear_clearance
 
@@ -87,6 +88,40 @@ def _clearance_of(mech, build, coupling, tol, cache):
     return next(r for r in rows if r["coupling"] == coupling)
 
 
+def _spur_lanes(mech, spurs):
+    """Per spur coupling that shares a hinge with another spur coupling: its lanes, first choice first.
+
+    Gears of two spur pairs on one hinge are coaxial, and bands centred on their
+    hinges' common length (the default) would lie on top of each other. The spur
+    couplings that share hinges are coloured so that no two sharing a hinge get the
+    same colour (greedy, in breadth-first order: a chain of parallel hinges takes
+    two), and colour c of n puts the band's centre at (c + 1) / (n + 1) of the
+    common length, measured along the coupling's first hinge. The other lanes
+    follow as fallbacks (a chain can run its hinges either way).
+
+    Returns
+    -------
+    dict
+        coupling -> tuple of fractions of the common length.
+    """
+    import networkx as nx
+
+    graph = nx.Graph()
+    by_hinge = {}
+    for k in spurs:
+        for h in mech.couplings[k].hinges:
+            by_hinge.setdefault(int(h), []).append(k)
+    for ks in by_hinge.values():
+        graph.add_edges_from((a, b) for x, a in enumerate(ks) for b in ks[x + 1:])
+    out = {}
+    for part in nx.connected_components(graph):
+        colour = nx.greedy_color(graph.subgraph(sorted(part)), strategy="connected_sequential_bfs")
+        n = max(colour.values()) + 1
+        for k, c in colour.items():
+            out[k] = tuple((x + 1) / (n + 1) for x in [c] + [y for y in range(n) if y != c])
+    return out
+
+
 def size_gears(mech, thickness, module, clearance=0.0, max_teeth=200, tol=DEFAULT):
     """Fill in a ``build`` object with the largest gears that pass.
 
@@ -113,24 +148,35 @@ def size_gears(mech, thickness, module, clearance=0.0, max_teeth=200, tol=DEFAUL
     from ..layout import pair_geometry
 
     build = {"thickness": float(thickness), "clearance": float(clearance), "gears": []}
-    kinds, base = {}, {}
+    kinds, base, spurs = {}, {}, {}
     for k, c in enumerate(mech.couplings):
         i, j = c.hinges
-        kind = pair_geometry(mech, i, j, ratio=c.ratio, tol=tol).kind
-        if kind not in ("spur", "bevel", "remote-bevel"):
+        geo = pair_geometry(mech, i, j, ratio=c.ratio, tol=tol)
+        if geo.kind not in ("spur", "bevel", "remote-bevel"):
             continue
-        kinds[k] = kind
+        kinds[k] = geo.kind
         base[k] = _base_teeth(c)
+        if geo.kind == "spur":
+            spurs[k] = (geo.centre_distance, spur_common_length(mech, int(i), int(j), geo.face))
+    lanes = _spur_lanes(mech, spurs)
     scale = {}
     for k, (zi, zj) in base.items():
         scale[k] = max(1, math.ceil(MIN_TEETH / min(zi, zj)))
     entries = {}
     cache = {}
 
+    lane = {k: fractions[0] for k, fractions in lanes.items()}
+
     def entry(k, s):
         zi, zj = base[k]
         if kinds[k] == "spur":
-            return {"coupling": k, "teeth": [zi * s, zj * s]}
+            out = {"coupling": k, "teeth": [zi * s, zj * s]}
+            if k in lane:
+                # A band of its own along hinges another spur pair also uses.
+                a, common = spurs[k]
+                width = min(10.0 * 2.0 * a / ((zi + zj) * s), common / (2.0 * (len(lanes[k]) + 1)))
+                out.update(corner_distance=lane[k] * common - width / 2.0, face_width=width)
+            return out
         return {"coupling": k, "module": float(module), "teeth": [zi * s, zj * s]}
 
     for k in base:
@@ -163,6 +209,15 @@ def size_gears(mech, thickness, module, clearance=0.0, max_teeth=200, tol=DEFAUL
     for k in base:
         s = scale[k]
         row = smallest = trial(k, s)
+        if k in lanes and not passes(row):
+            # A spur pair's size is fixed; its band may move to another lane.
+            for fraction in lanes[k][1:]:
+                lane[k] = fraction
+                row = trial(k, s)
+                if passes(row):
+                    break
+            else:
+                lane[k], row = lanes[k][0], smallest
         if kinds[k] != "spur":
             while not passes(row) and s < tops[k]:
                 s = min(tops[k], max(s + 1, (3 * s) // 2))
