@@ -116,7 +116,9 @@ def _format(report, verbose=False):
         near = sum(not r["passes"] for r in report["gear_sizing"])
         if near:
             lines.append(f"gear sizing: {near} of {len(report['gear_sizing'])} pairs too near at every size "
-                         f"tried; `foldsim check` lists where (gear_contacts)")
+                         f"tried; `foldsim check` lists where (gear_contacts). A pair grows in whole multiples "
+                         f"of its fewest teeth: a --teeth range with fewer teeth gives finer steps, for a "
+                         f"larger ratio error")
     return "\n".join(lines)
 
 
