@@ -435,3 +435,56 @@ def test_refusing_bad_input_loads_no_qt(tmp_path):
     done = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=False, env=env,
                           cwd=tmp_path, timeout=120)
     assert done.stdout.split() == ["2", "False"], done.stderr
+
+
+LANTERN_BUILD = ROOT / "assets" / "lantern-build.mech.json"
+
+
+def _png_rgb(path):
+    from PySide6 import QtGui
+
+    image = QtGui.QImage(str(path)).convertToFormat(QtGui.QImage.Format.Format_RGB888)
+    ptr = image.constBits()
+    return np.frombuffer(ptr, np.uint8, image.sizeInBytes()).reshape(image.height(), image.bytesPerLine())[
+        :, :3 * image.width()].reshape(image.height(), image.width(), 3).copy()
+
+
+def test_record_draws_a_build_and_captions_its_clashes_as_check_finds_them(qtbot, tmp_path, capsys):
+    # The lantern's top and a side run into each other as thick panels near the
+    # end (docs/build.md's worked example; python-fcl confirms the check's prism
+    # clashes in tests/test_build.py). The clip's caption takes its collisions from
+    # the same sweeps as `check`, so a still inside the clash says so, whatever is
+    # drawn; one before it does not.
+    assert cli.main(["check", str(LANTERN_BUILD), "--json"]) == 1
+    import json
+
+    clash = json.loads(capsys.readouterr().out)["panel_clashes"][0]
+    inside = round(0.5 * (clash["first_t"] + clash["last_t"]), 4)
+    shots = {}
+    for draw in ("", "--no-gears", "--thin"):
+        out = tmp_path / f"lantern{draw}.png"
+        args = ["record", str(LANTERN_BUILD), "-o", str(out), "--to", str(inside), "--size", "400x300"]
+        assert cli.main(args + ([draw] if draw else [])) == 0
+        said = capsys.readouterr().out.strip()
+        assert said == f"wrote {out}: 400x300 at t = {inside:g}; panels collide"
+        shots[draw] = _png_rgb(out)
+    assert cli.main(["record", str(LANTERN_BUILD), "-o", str(tmp_path / "early.png"), "--to", "0.6",
+                     "--size", "400x300"]) == 0
+    assert capsys.readouterr().out.strip().endswith("at t = 0.6; no collision")
+    # Thick panels and gear bodies are drawn: each choice gives a different picture.
+    assert (shots[""] != shots["--no-gears"]).any(axis=2).mean() > 1e-3
+    assert (shots["--no-gears"] != shots["--thin"]).any(axis=2).mean() > 1e-2
+
+
+def test_a_long_title_is_cut_short_inside_the_frame(qtbot):
+    from foldsim.gui.record.caption import _Caption, draw_overlay
+
+    lines = ["a lantern " * 40, "t = 0.5", "no collision"]
+    cap = _Caption((320, 240))
+    width, _ = cap.box(lines, False)
+    assert width <= 320 - 2 * cap.pad
+    assert cap.fitted(lines, False)[0].endswith("\u2026")
+    frame = np.full((240, 320, 4), 200, np.uint8)
+    drawn = draw_overlay(frame, lines, False)
+    # The box's right edge stays inside the frame: its last column is untouched.
+    assert (drawn[:, -1] == frame[:, -1]).all()

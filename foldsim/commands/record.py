@@ -70,6 +70,11 @@ def register(sub):
                              "flat to closed")
     parser.add_argument("--no-overlay", dest="overlay", action="store_false",
                         help="leave out the caption (name, t, collision state)")
+    parser.add_argument("--thin", dest="draw", action="store_const", const="thin", default="solids",
+                        help="a file with a build object: draw the flat panels instead of its thick "
+                             "panels and gear bodies")
+    parser.add_argument("--no-gears", dest="draw", action="store_const", const="panels",
+                        help="a file with a build object: draw its thick panels without the gear bodies")
     parser.set_defaults(run=run)
 
 
@@ -87,12 +92,50 @@ def run(args):
     check_target(args.output)
     mech = load(args.model)
     info = record(mech, args.output, fmt=fmt, t_from=t_from, t_to=t_to, seconds=seconds, fps=fps, size=size,
-                  orbit=orbit, overlay=args.overlay, view=args.view, fit=FITS[args.fit])
+                  orbit=orbit, overlay=args.overlay, view=args.view, fit=FITS[args.fit], draw=args.draw)
     print(info.summary())
     return 0
 
 
-def record(mech, output, fmt, size, view="iso", t_to=1.0, fit=True, **options):
+def build_collisions(mech, t_from, t_to):
+    """For a file with a ``build`` object: what collides from t_from to t_to, as `check` finds it.
+
+    The thin panels' sweep and the build's thick-panel clashes and gear contacts
+    (`foldsim.report.build_checks`), as intervals ``{"faces", "first_t", "last_t"}``
+    for `FoldView.set_known_collisions`, so that a clip's caption says what the
+    app's strip shows. None for a file without one (each frame is then queried).
+    """
+    from ..analysis.collision import collision_intervals
+    from ..build.spec import build_spec
+    from ..gearing import fold_schedule
+    from ..report import build_checks
+
+    lo, hi = sorted((float(t_from), float(t_to)))
+    if build_spec(mech) is None or not hi > lo:
+        return None
+    schedule = fold_schedule(mech)
+    found = list(collision_intervals(mech, schedule, lo, hi))
+    keys, _ = build_checks(mech, schedule, lo, hi)
+    found += [{"faces": list(c["faces"]), "first_t": c["first_t"], "last_t": c["last_t"]}
+              for c in keys.get("panel_clashes", []) + keys.get("gear_contacts", []) if "last_t" in c]
+    return found
+
+
+def drawn_solids(mech, draw="solids"):
+    """The solids a view draws for ``draw`` ("solids", "panels" or "thin"): None for the flat panels."""
+    from ..build.gears import build_solids
+    from ..build.spec import build_spec
+
+    spec = build_spec(mech)
+    if spec is None or draw == "thin":
+        return None
+    from ..gui.window.model import DETAIL_PAIRS
+
+    made = build_solids(mech, spec, coarse=len(spec.gears) > DETAIL_PAIRS)
+    return [s for s in made if draw == "solids" or s.kind == "panel"]
+
+
+def record(mech, output, fmt, size, view="iso", t_to=1.0, fit=True, draw="solids", **options):
     """Draw a mechanism in a hidden 3D view and record it (see `foldsim.gui.record.recorder`).
 
     Parameters
@@ -106,6 +149,11 @@ def record(mech, output, fmt, size, view="iso", t_to=1.0, fit=True, **options):
     t_to : float
     fit : True, "pose" or "motion"
         Framing (`foldsim.gui.record.recorder.record_clip`).
+    draw : str
+        For a file with a ``build`` object: "solids" (thick panels and gear
+        bodies), "panels" (thick panels only) or "thin" (the flat panels).
+        Collisions are then the `check`'s, thick panels and gear bodies included,
+        whatever is drawn (`build_collisions`).
     **options
         The rest of `record_clip`'s options.
 
@@ -135,7 +183,14 @@ def record(mech, output, fmt, size, view="iso", t_to=1.0, fit=True, **options):
             widget.grabFramebuffer()
         if not widget.isValid():
             raise FoldsimError("cannot draw: no OpenGL context could be made on this display")
+        known = build_collisions(mech, options.get("t_from", 0.0), t_to)
         widget.set_mechanism(mech)
+        solids = drawn_solids(mech, draw)
+        if solids:
+            widget.set_solids(solids)
+        lo, hi = sorted((float(options.get("t_from", 0.0)), float(t_to)))
+        if known is not None and hi > lo:
+            widget.set_known_collisions(known, (lo, hi))
         widget.set_t(t_to)
         widget.set_view(view)
         if fmt == "png":

@@ -110,14 +110,27 @@ class _Caption:
         self.bold = QtGui.QFont(self.regular)
         self.bold.setBold(True)
         self.dot = 0.55 * self.px
+        # Room for a line of text: the frame less the box's margins and padding.
+        self.room = max(1.0, w - 4 * self.pad)
 
     def fonts(self, colliding):
         return [self.bold, self.regular, self.bold if colliding else self.regular]
 
+    def fitted(self, lines, colliding):
+        """The lines, each cut short with an ellipsis where it would run past the frame."""
+        from PySide6 import QtCore, QtGui
+
+        out = []
+        for k, (text, font) in enumerate(zip(lines, self.fonts(colliding))):
+            room = self.room - (self.dot + 0.4 * self.px if colliding and k == len(lines) - 1 else 0.0)
+            out.append(QtGui.QFontMetricsF(font).elidedText(text, QtCore.Qt.TextElideMode.ElideRight, room))
+        return out
+
     def box(self, lines, colliding):
-        """(width, height) of the caption's box for these lines."""
+        """(width, height) of the caption's box for these lines (cut short to fit, `fitted`)."""
         from PySide6 import QtGui
 
+        lines = self.fitted(lines, colliding)
         metrics = [QtGui.QFontMetricsF(f) for f in self.fonts(colliding)]
         widths = [m.horizontalAdvance(text) for m, text in zip(metrics, lines)]
         if colliding:
@@ -167,6 +180,7 @@ def draw_overlay(rgba, lines, colliding, box_width=None):
     h, w = out.shape[:2]
     cap = _Caption((w, h))
     bw, bh = cap.box(lines, colliding)
+    lines = cap.fitted(lines, colliding)
     box = QtCore.QRectF(cap.pad, cap.pad, max(bw, box_width or 0.0), bh)
     image = _qimage(out)
     painter = QtGui.QPainter(image)
