@@ -753,3 +753,52 @@ def test_sizing_gives_spur_pairs_sharing_a_hinge_bands_of_their_own():
                for g in mech.extras["build"]["gears"]]
     centred = replace(mech, extras={**mech.extras, "build": {**mech.extras["build"], "gears": entries}})
     assert nearest(centred)[0] == 0.0
+
+
+def test_block_rows_settled_by_oriented_boxes_are_apart_by_python_fcl(monkeypatch):
+    # The gear screen first drops the (block, item, item) rows whose oriented box
+    # and bounding sphere stay apart over the block (`sweep._apart_over_blocks`).
+    # Every dropped row must be farther apart than the sweep's clearance at every
+    # drive value of its block: python-fcl (a general-purpose collision library)
+    # on the two posed meshes at nine drive values across the block, for the 150
+    # dropped rows whose items come nearest (their meshes' nearest corners at the
+    # block's middle), where a bound too bold would show first.
+    fcl = pytest.importorskip("fcl")
+    from dataclasses import replace
+
+    from foldsim.analysis import sweep
+    from foldsim.design import build, shape_args
+    from foldsim.geometry import transform_points
+    from foldsim.report import check
+
+    mech = build(shape_args("geodesic:1", size=100.0))[0]
+    gears = [{"coupling": c} for c in range(len(mech.couplings))]
+    mech = replace(mech, extras={**mech.extras, "build": {"thickness": 0.5, "gears": gears}})
+    seen = []
+    real = sweep._apart_over_blocks
+
+    def spy(ev, grid, rows, block):
+        out = real(ev, grid, rows, block)
+        seen.append((ev, grid, rows, block, out))
+        return out
+
+    monkeypatch.setattr(sweep, "_apart_over_blocks", spy)
+    check(mech)
+    ev, grid, rows, block, apart = seen[0]
+    assert ev.pan.passive is not None and ev.clearance > 0
+    assert 0.5 < apart.mean() < 1.0  # it settles most rows, not all
+    pan = ev.pan
+    dropped = rows[apart]
+    middle = ev.poses(0.5 * (grid[:-block:block] + grid[block::block]))
+    tris = [pan.tri_points[pan.start[i]:pan.start[i] + pan.count[i]] for i in range(pan.n)]
+    near = []
+    for j, a, b in dropped:
+        pa = transform_points(middle[j, a], tris[a]).reshape(-1, 3)
+        pb = transform_points(middle[j, b], tris[b]).reshape(-1, 3)
+        near.append(np.sqrt(((pa[:, None] - pb[None]) ** 2).sum(axis=2)).min())
+    for j, a, b in dropped[np.argsort(near)[:150]]:
+        t = np.linspace(grid[j * block], grid[(j + 1) * block], 9)
+        poses = ev.poses(t)
+        for k in range(len(t)):
+            d = _fcl_distance(fcl, transform_points(poses[k, a], tris[a]), transform_points(poses[k, b], tris[b]))
+            assert d > ev.clearance, (j, a, b, t[k], d)
