@@ -366,7 +366,8 @@ def _apart_over_blocks(ev, grid, rows, block):
     centres' largest distance over the block (the box's frame turns at most at W
     about a point that moves at its own bound). So over a block of length D whose
     ends give g0 and g1 the coordinate stays above (g0 + g1 - L D) / 2, the usual
-    two-sided bound. Each block's swept boxes overlap long before the boxes
+    two-sided bound; a row is settled where that, less the sphere's radius, clears
+    the clearance and the contact tolerance. Each block's swept boxes overlap long before the boxes
     themselves: a build's gear bodies sit in the boxes of the tilted prisms
     around their corner, which this settles for most of the screen's rows before
     their fine steps and stretches are formed.
@@ -417,7 +418,7 @@ def _apart_over_blocks(ev, grid, rows, block):
                 gap = 0.5 * gap - pan.box_half[box, i]
                 low = gap if low is None else np.maximum(low, gap)
             np.maximum(best, low - 0.5 * rate * length - pan.radius[ball], out=best)
-        out[k:k + BLOCK_ROWS] = best > ev.clearance
+        out[k:k + BLOCK_ROWS] = best > ev.clearance + ev.eps
     return out
 
 
