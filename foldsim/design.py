@@ -49,7 +49,11 @@ def _sized_build(mech, args):
     else:
         from .build.sizing import size_gears
 
-        build, rows = size_gears(mech, thickness, module, clearance)
+        try:
+            build, rows = size_gears(mech, thickness, module, clearance)
+        except ModelError as exc:
+            raise ModelError(f"--module: {exc}; give a smaller --module, a larger --size, or a --teeth range "
+                             f"with fewer teeth") from None
     out = replace(mech, extras={**mech.extras, "build": build})
     from .build.spec import build_spec
 

@@ -225,12 +225,10 @@ def size_gears(mech, thickness, module, clearance=0.0, max_teeth=200, tol=DEFAUL
             if not passes(row):
                 if smallest.get("unbuildable"):
                     # No size can be built at all (a larger pair reaches farther):
-                    # say so as an option's error, not as a field of a file never written.
+                    # say so, not as a field of a build object nobody wrote.
                     zi, zj = entry(k, scale[k])["teeth"]
-                    raise ModelError(f"--module: gears of module {module:g} do not fit coupling {k} even "
-                                     f"at the fewest teeth its ratio allows ({zi}:{zj}): {smallest['with']}; "
-                                     f"give a smaller --module, a larger --size, or a --teeth range "
-                                     f"with fewer teeth")
+                    raise ModelError(f"gears of module {module:g} do not fit coupling {k} even at the fewest "
+                                     f"teeth its ratio allows ({zi}:{zj}): {smallest['with']}")
                 # None passes: back to the smallest (the others have not moved).
                 s, row = scale[k], smallest
         size[k], first[k] = s, row
