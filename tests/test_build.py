@@ -413,3 +413,29 @@ def test_pivoting_prisms_take_the_cone_and_the_weighted_separation():
     assert [c["faces"] for c in found] == [c["faces"] for c in reference] == [[6, 7]]
     assert found[0]["first_t"] == pytest.approx(reference[0]["first_t"], abs=1e-3)
     assert found[0]["last_t"] == pytest.approx(reference[0]["last_t"], abs=1e-3)
+
+
+def test_a_long_list_of_problems_is_one_a_line_and_says_how_many(tmp_path, capsys):
+    # A geodesic sphere (80 panels) with a default gear pair on every coupling has
+    # dozens of pairs too near (their gears share hinges): the text report lists the
+    # first problems one a line, counts them all as --json does, and says where the
+    # rest are.
+    from dataclasses import replace
+
+    from foldsim.cli import main
+    from foldsim.commands.check import SHOWN_PROBLEMS
+    from foldsim.design import build, shape_args
+    from foldsim.io.mechanism_json import save
+
+    mech = build(shape_args("geodesic:1", size=100.0))[0]
+    gears = [{"coupling": c} for c in range(len(mech.couplings))]
+    path = tmp_path / "crowded.mech.json"
+    save(replace(mech, extras={**mech.extras, "build": {"thickness": 0.5, "gears": gears}}), path)
+    assert main(["check", str(path), "--json"]) == 1
+    problems = json.loads(capsys.readouterr().out)["problems"]
+    assert len(problems) > SHOWN_PROBLEMS
+    assert main(["check", str(path)]) == 1
+    lines = capsys.readouterr().out.rstrip("\n").split("\n")
+    head = lines.index(f"PROBLEMS ({len(problems)}):")
+    assert lines[head + 1:head + 1 + SHOWN_PROBLEMS] == [f"  - {p}" for p in problems[:SHOWN_PROBLEMS]]
+    assert lines[-1] == f"  ... and {len(problems) - SHOWN_PROBLEMS} more (`foldsim check --json` lists them all)"

@@ -83,8 +83,33 @@ def _format_check(report):
                      f"p95 closure gap {play['p95_gap']:.4g} {units} (limit {play['limit']:.4g}) -> "
                      f"{'within' if play['ok'] else 'OVER'}")
     lines.append("")
-    lines.append("OK" if report["ok"] else "PROBLEMS: " + "; ".join(report["problems"]))
+    lines += _problem_lines(report)
     return "\n".join(lines)
+
+
+SHOWN_PROBLEMS = 20
+"""Problems the text report lists one by one; `--json` has them all."""
+
+
+def _problem_lines(report):
+    """``OK``, or the problems: on one line when there are a few, else one a line, the first `SHOWN_PROBLEMS`.
+
+    Examples
+    --------
+    >>> _problem_lines({"ok": False, "problems": ["a", "b"]})
+    ['PROBLEMS: a; b']
+    >>> _problem_lines({"ok": False, "problems": list("abcdef")})[:2]
+    ['PROBLEMS (6):', '  - a']
+    """
+    problems = report["problems"]
+    if report["ok"]:
+        return ["OK"]
+    if len(problems) <= 3:
+        return ["PROBLEMS: " + "; ".join(problems)]
+    out = [f"PROBLEMS ({len(problems)}):"] + [f"  - {p}" for p in problems[:SHOWN_PROBLEMS]]
+    if len(problems) > SHOWN_PROBLEMS:
+        out.append(f"  ... and {len(problems) - SHOWN_PROBLEMS} more (`foldsim check --json` lists them all)")
+    return out
 
 
 def _format_build(report):
