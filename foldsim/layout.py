@@ -386,8 +386,11 @@ def _center(graph, nodes, chunk=256):
 def _bfs_pairs(graph, start, depth):
     """Shortest-path tree from start: each hinge takes a parent one step nearer.
 
-    A parent joined by a bevel or spur pair wins over a remote bevel; then the
-    lowest hinge index.
+    A parent joined by a bevel pair wins over a spur pair, and either over a remote
+    bevel; then the lowest hinge index. A bevel pair sits at a corner of its carrier
+    and is as large as its module and edge allow; a spur pair's pitch radii add up
+    to the distance between its hinges, so its gears span the carrier, and two spur
+    pairs across one face cross each other there.
     """
     dist = nx.single_source_shortest_path_length(graph, start)
     chosen = []
@@ -396,7 +399,8 @@ def _bfs_pairs(graph, start, depth):
         if h == start:
             continue
         options = [g for g in graph.neighbors(h) if dist.get(g) == dist[h] - 1]
-        parent = min(options, key=lambda g: (graph.edges[g, h]["pair"].kind not in SIMPLE, g))
+        parent = min(options, key=lambda g: (graph.edges[g, h]["pair"].kind not in SIMPLE,
+                                             graph.edges[g, h]["pair"].kind != "bevel", g))
         chosen.append((parent, h, graph.edges[parent, h]["pair"]))
     return chosen
 

@@ -802,3 +802,26 @@ def test_block_rows_settled_by_oriented_boxes_are_apart_by_python_fcl(monkeypatc
         for k in range(len(t)):
             d = _fcl_distance(fcl, transform_points(poses[k, a], tris[a]), transform_points(poses[k, b], tris[b]))
             assert d > ev.clearance, (j, a, b, t[k], d)
+
+
+def test_layout_prefers_a_bevel_pair_to_a_second_spur_pair_across_a_face(capsys, tmp_path):
+    # The truncated tetrahedron's hexagons: a hinge two steps from the drive can be
+    # reached across a hexagon by a spur pair or from a neighbouring side by a bevel
+    # pair, at equal chain length. Two spur pairs across one hexagon join opposite
+    # sides, and two such chords cross (their ends alternate round the hexagon; hand
+    # geometry), so their gears, which span the face, run into each other. The
+    # layout takes the bevel pair, and the sized build folds clean.
+    from foldsim.cli import main
+    from foldsim.design import build, shape_args
+    from foldsim.layout import gear_layout
+
+    mech = build(shape_args("truncated-tetrahedron", size=40.0))[0]
+    layout = gear_layout(mech)
+    spur_faces = [p.face for p in layout.pairs if p.kind == "spur"]
+    assert len(spur_faces) == len(set(spur_faces))
+    assert layout.chain == 2  # still the shortest chains
+    out = tmp_path / "tt.mech.json"
+    assert main(["new", "truncated-tetrahedron", "--size", "40", "--thickness", "1", "--module", "0.5",
+                 "-o", str(out), "--json"]) == 0
+    assert all(r["passes"] for r in json.loads(capsys.readouterr().out)["gear_sizing"])
+    assert main(["check", str(out)]) == 0
