@@ -110,7 +110,7 @@ def face_poses(mech, angles, faces=None):
     return np.ascontiguousarray(work[rows].transpose(1, 0, 2, 3))
 
 
-def row_poses(mech, schedule, faces, t):
+def row_poses(mech, schedule, faces, t, start=None):
     """Pose of one face at one drive value per row: face ``faces[r]`` at ``t[r]``.
 
     The same transforms as `poses_at` (each the product of its chain's hinge
@@ -126,6 +126,11 @@ def row_poses(mech, schedule, faces, t):
     schedule : Schedule
     faces : (n,) int
     t : (n,) float
+    start : (n,) int, optional
+        Leave out each row's first ``start[r]`` hinges from the root: the pose
+        relative to the face's ancestor at that depth. Two faces posed from their
+        common ancestor (`common_depth`) keep their relative placement, which is all
+        a distance needs, for the hinges between them only.
 
     Returns
     -------
@@ -134,6 +139,12 @@ def row_poses(mech, schedule, faces, t):
     faces = np.asarray(faces, np.int64).ravel()
     t = np.asarray(t, float).ravel()
     table = _ancestry(mech)
+    if start is not None:
+        # Shift each row's chain left by its start, -1 past its end.
+        at = np.arange(table.shape[1])[None, :] + np.asarray(start, np.int64).ravel()[:, None]
+        rows = table[faces]
+        table = np.where(at < table.shape[1], np.take_along_axis(rows, np.minimum(at, table.shape[1] - 1), 1), -1)
+        faces = np.arange(len(faces))
     out = np.empty((len(faces), 4, 4))
     step = max(1, ROW_BUDGET // max(1, table.shape[1]))
     for lo in range(0, len(faces), step):

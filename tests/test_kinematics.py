@@ -224,6 +224,33 @@ def test_poses_one_face_and_drive_value_per_row_match_scipy(seed, root, closed, 
         np.testing.assert_allclose(ours[k], poses_at(mech, schedule, [x])[0, f], rtol=0, atol=1e-12)
 
 
+@PROPERTY
+@given(seeds, st.integers(0, 3), st.lists(st.floats(0.2, 2.5), min_size=3, max_size=3),
+       st.lists(st.tuples(st.integers(0, 3), st.integers(0, 3), st.floats(-1.0, 1.0)), min_size=1, max_size=6))
+def test_pairs_posed_from_their_common_ancestor_keep_their_relative_placement(seed, root, closed, rows):
+    # row_poses with start = the pair's common depth: both faces moved by one rigid
+    # motion, so the distance between any point of one and any point of the other
+    # is as in the posed model (the faces' corners, posed with scipy's Rotation
+    # reference), and a face posed from its own depth stays flat.
+    from foldsim.kinematics import common_depth
+
+    pts, quads, hinges = flat_chain(seed)
+    mech = build_mechanism(pts, quads, hinges, root=root, state="flat", closed_angles=closed)
+    schedule = fold_schedule(mech)
+    pairs = np.array([(a, b) for a, b, _ in rows])
+    t = np.array([x for _, _, x in rows])
+    start = np.repeat(common_depth(mech, pairs), 2)
+    ours = row_poses(mech, schedule, pairs.ravel(), np.repeat(t, 2), start=start).reshape(-1, 2, 4, 4)
+    for k, (a, b, x) in enumerate(rows):
+        reference = turn_subtrees([pts[q] for q in quads], quads, hinges, root, x * schedule.rates)
+        pa, pb = (posed_one(ours[k, s], mech.flat_faces[f]) for s, f in ((0, a), (1, b)))
+        ref = np.linalg.norm(reference[a][:, None] - reference[b][None], axis=2)
+        np.testing.assert_allclose(np.linalg.norm(pa[:, None] - pb[None], axis=2), ref, rtol=0, atol=1e-11)
+    own = np.array([common_depth(mech, [[f, f]])[0] for f, _, _ in rows])
+    flat = row_poses(mech, schedule, pairs[:, 0], t, start=own)
+    np.testing.assert_allclose(flat, np.broadcast_to(np.eye(4), flat.shape), rtol=0, atol=1e-15)
+
+
 def posed_one(pose, points):
     return points @ pose[:3, :3].T + pose[:3, 3]
 

@@ -99,10 +99,20 @@ def _sphere_bounds(centre, radius, pairs, poses):
 
 
 def _pair_poses(mech, schedule, faces, t):
-    """(n, 2, 4, 4): the poses of face pairs ``faces`` (n, 2) at drive values t (n,) (`kinematics.row_poses`)."""
-    faces = np.asarray(faces, np.int64).reshape(-1, 2)
-    return row_poses(mech, schedule, faces.ravel(), np.repeat(t, 2)).reshape(-1, 2, 4, 4)
+    """(n, 2, 4, 4): face pairs ``faces`` (n, 2) at drive values t (n,), each pair posed from its common ancestor.
 
+    Both faces of a row are moved by the same rigid motion (the inverse of their
+    common ancestor's pose), so every distance between what they carry is as in
+    the posed model, for the product of only the hinges between them
+    (`kinematics.row_poses` with ``start``).
+    """
+    faces = np.asarray(faces, np.int64).reshape(-1, 2)
+    start = np.repeat(common_depth(mech, faces), 2)
+    return row_poses(mech, schedule, faces.ravel(), np.repeat(t, 2), start=start).reshape(-1, 2, 4, 4)
+
+
+TIE = 1e-12
+"""Distances within this share of the model's size are one (`gear_clearance` reports the earliest t)."""
 
 PAIR_BUDGET = 200_000
 """Triangle pairs `row_distances` holds at once."""
@@ -400,7 +410,11 @@ def gear_clearance(mech, spec, schedule=None, t_from=0.0, t_to=1.0, pairs=None, 
                 rows[c]["guaranteed_min"] = floor if known is None else min(known, floor)
         if not exact.any():
             continue
-        k = int(np.flatnonzero(exact)[np.argmin(lows[exact])])
+        # The earliest t at the least distance: bodies that turn about one axis
+        # keep their distance, and round-off alone should not pick the t.
+        measured = np.flatnonzero(exact)
+        least = lows[measured].min()
+        k = int(measured[lows[measured] <= least + TIE * mech.size][0])
         a, b = (solids[i] for i in pair)
         for s, other in ((a, b), (b, a)):
             if s.kind == "panel":
