@@ -70,11 +70,12 @@ def register(sub):
                              "flat to closed")
     parser.add_argument("--no-overlay", dest="overlay", action="store_false",
                         help="leave out the caption (name, t, collision state)")
-    parser.add_argument("--thin", dest="draw", action="store_const", const="thin", default="solids",
-                        help="a file with a build object: draw the flat panels instead of its thick "
-                             "panels and gear bodies")
-    parser.add_argument("--no-gears", dest="draw", action="store_const", const="panels",
-                        help="a file with a build object: draw its thick panels without the gear bodies")
+    drawn = parser.add_mutually_exclusive_group()
+    drawn.add_argument("--thin", dest="draw", action="store_const", const="thin", default="solids",
+                       help="a file with a build object: draw the flat panels instead of its thick "
+                            "panels and gear bodies")
+    drawn.add_argument("--no-gears", dest="draw", action="store_const", const="panels",
+                       help="a file with a build object: draw its thick panels without the gear bodies")
     parser.set_defaults(run=run)
 
 
