@@ -471,6 +471,10 @@ def test_record_draws_a_build_and_captions_its_clashes_as_check_finds_them(qtbot
     assert cli.main(["record", str(LANTERN_BUILD), "-o", str(tmp_path / "early.png"), "--to", "0.6",
                      "--size", "400x300"]) == 0
     assert capsys.readouterr().out.strip().endswith("at t = 0.6; no collision")
+    # A still swept over no range at all: the sweep's resolution about its t.
+    assert cli.main(["record", str(LANTERN_BUILD), "-o", str(tmp_path / "still.png"), "--from", str(inside),
+                     "--to", str(inside), "--size", "400x300"]) == 0
+    assert capsys.readouterr().out.strip().endswith(f"at t = {inside:g}; panels collide")
     # Thick panels and gear bodies are drawn: each choice gives a different picture.
     assert (shots[""] != shots["--no-gears"]).any(axis=2).mean() > 1e-3
     assert (shots["--no-gears"] != shots["--thin"]).any(axis=2).mean() > 1e-2

@@ -111,15 +111,26 @@ def build_collisions(mech, t_from, t_to):
     from ..gearing import fold_schedule
     from ..report import build_checks
 
-    lo, hi = sorted((float(t_from), float(t_to)))
-    if build_spec(mech) is None or not hi > lo:
+    if build_spec(mech) is None:
         return None
+    lo, hi = _swept_range(t_from, t_to)
     schedule = fold_schedule(mech)
     found = list(collision_intervals(mech, schedule, lo, hi))
     keys, _ = build_checks(mech, schedule, lo, hi)
     found += [{"faces": list(c["faces"]), "first_t": c["first_t"], "last_t": c["last_t"]}
               for c in keys.get("panel_clashes", []) + keys.get("gear_contacts", []) if "last_t" in c]
     return found
+
+
+def _swept_range(t_from, t_to):
+    """The range of t whose collisions a clip reads: its own, or a still's t with the sweep's resolution about it."""
+    from ..tolerances import DEFAULT
+
+    lo, hi = sorted((float(t_from), float(t_to)))
+    if hi - lo < 2 * DEFAULT.t_resolution:
+        mid = 0.5 * (lo + hi)
+        lo, hi = max(-1.0, mid - DEFAULT.t_resolution), min(1.0, mid + DEFAULT.t_resolution)
+    return lo, hi
 
 
 def drawn_solids(mech, draw="solids"):
@@ -189,9 +200,8 @@ def record(mech, output, fmt, size, view="iso", t_to=1.0, fit=True, draw="solids
         solids = drawn_solids(mech, draw)
         if solids:
             widget.set_solids(solids)
-        lo, hi = sorted((float(options.get("t_from", 0.0)), float(t_to)))
-        if known is not None and hi > lo:
-            widget.set_known_collisions(known, (lo, hi))
+        if known is not None:
+            widget.set_known_collisions(known, _swept_range(options.get("t_from", 0.0), t_to))
         widget.set_t(t_to)
         widget.set_view(view)
         if fmt == "png":
