@@ -102,7 +102,7 @@ def test_15_6_lone_surrogate(tmp_path, capsys, key):
 
 
 @pytest.mark.parametrize("argv", [["check", str(REPO / "assets" / "tray.mech.json")],
-                                  ["new", "prism:150", "-o", "OUT"]])
+                                  ["new", "geodesic:4", "-o", "OUT"]])  # about 15 s: interrupted mid-run
 def test_15_7_ctrl_c_exits_130_without_traceback(tmp_path, argv):
     argv = [str(tmp_path / "o.mech.json") if a == "OUT" else a for a in argv]
     proc = subprocess.Popen([sys.executable, "-m", "foldsim", *argv], stdout=subprocess.PIPE,
