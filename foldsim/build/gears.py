@@ -255,14 +255,19 @@ def _common_span(ends, d):
     return lo, hi - lo
 
 
+def _hinge_ends(mech, hinges, face):
+    """The end points (p, q) of each hinge's edge as ``face`` runs round it (flat frame)."""
+    poly = mech.flat_faces[face]
+    out = []
+    for h in hinges:
+        e = hinge_edge(mech, h, face)
+        out.append((poly[e], poly[(e + 1) % len(poly)]))
+    return out
+
+
 def spur_common_length(mech, i, j, face):
     """Length along which hinges i and j (parallel, both edges of ``face``) both run: a spur band's room."""
-    poly = mech.flat_faces[face]
-    ends = []
-    for h in (i, j):
-        e = hinge_edge(mech, h, face)
-        ends.append((poly[e], poly[(e + 1) % len(poly)]))
-    return _common_span(ends, _unit(mech.axes[i, 1] - mech.axes[i, 0]))[1]
+    return _common_span(_hinge_ends(mech, (i, j), face), _unit(mech.axes[i, 1] - mech.axes[i, 0]))[1]
 
 
 def gear_pairs(mech, spec, tol=DEFAULT):
@@ -320,12 +325,7 @@ def _resolve_pairs(mech, spec, tol):
                  for h in (i, j)]
         signs = [1.0 if int(mech.child[h]) == o else -1.0 for h, o in zip((i, j), other)]
         spins = [_unit(mech.axes[h, 1] - mech.axes[h, 0]) for h in (i, j)]
-        poly = mech.flat_faces[f]
-        n = len(poly)
-        ends = []
-        for h in (i, j):
-            e = hinge_edge(mech, h, f)
-            ends.append((poly[e], poly[(e + 1) % n]))
+        ends = _hinge_ends(mech, (i, j), f)
         cone_angles = cone_distance = None
         rod_radius = doc.rod_radius
         if kind == "spur":

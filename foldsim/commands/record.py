@@ -98,8 +98,8 @@ def run(args):
     return 0
 
 
-def build_collisions(mech, t_from, t_to):
-    """For a file with a ``build`` object: what collides from t_from to t_to, as `check` finds it.
+def build_collisions(mech, lo, hi):
+    """For a file with a ``build`` object: what collides from t = lo to hi, as `check` finds it.
 
     The thin panels' sweep and the build's thick-panel clashes and gear contacts
     (`foldsim.report.build_checks`), as intervals ``{"faces", "first_t", "last_t"}``
@@ -113,7 +113,6 @@ def build_collisions(mech, t_from, t_to):
 
     if build_spec(mech) is None:
         return None
-    lo, hi = _swept_range(t_from, t_to)
     schedule = fold_schedule(mech)
     found = list(collision_intervals(mech, schedule, lo, hi))
     keys, _ = build_checks(mech, schedule, lo, hi)
@@ -195,13 +194,14 @@ def record(mech, output, fmt, size, view="iso", t_to=1.0, fit=True, draw="solids
             widget.grabFramebuffer()
         if not widget.isValid():
             raise FoldsimError("cannot draw: no OpenGL context could be made on this display")
-        known = build_collisions(mech, options.get("t_from", 0.0), t_to)
+        swept = _swept_range(options.get("t_from", 0.0), t_to)
+        known = build_collisions(mech, *swept)
         widget.set_mechanism(mech)
         solids = drawn_solids(mech, draw)
         if solids:
             widget.set_solids(solids)
         if known is not None:
-            widget.set_known_collisions(known, _swept_range(options.get("t_from", 0.0), t_to))
+            widget.set_known_collisions(known, swept)
         widget.set_t(t_to)
         widget.set_view(view)
         if fmt == "png":
